@@ -1,0 +1,898 @@
+// The results page of one study (served at /experiments/{id}). Plain browser ES module: no build step, no
+// framework, nothing from another origin. Every text goes through textContent; the only markup inserted is
+// the service's own SVG charts, parsed as XML and checked first.
+//
+// Flow: read key (sessionStorage, sent as "Authorization: Bearer …", never in a URL) → definition →
+// one comparison per measure (+ its box plot and trajectory SVG) → live updates from the event stream
+// (fetch + our own text/event-stream parser, because EventSource cannot send a header) → refresh the
+// figures, debounced, whenever dataVersion moves.
+//
+// Every displayed number sits in its own element with
+//   data-measure="<measure id>"  data-field="<dotted path in that measure's comparison JSON>"
+//   data-format="<formatter name in format.js>"
+// so a test can format the JSON value with formatByKind() and expect the element's text. Elements whose value
+// comes from elsewhere say so with data-source="definition" (progress) or data-source="family" (the
+// adjusted p-values of GET /v1/experiments/{id}/comparisons).
+
+import {
+  MISSING,
+  formatByKind,
+  formatCount,
+  formatLevel,
+  formatNumber,
+  formatPExact,
+} from './format.js';
+import { dataVersionOf, readEventStream } from './sse.js';
+
+const KEY_STORAGE = 'splitballot.readKey';
+const REFRESH_DEBOUNCE_MS = 400;
+const MAX_RECONNECT_MS = 30_000;
+const LIVE_ON = 'Live: connected; the figures update as answers arrive.';
+
+const $ = (id) => document.getElementById(id);
+/** The key input, typed for editors that check this file. */
+const keyInput = () => /** @type {HTMLInputElement} */ (document.getElementById('key-input'));
+
+const state = {
+  id: null,
+  key: null,
+  definition: null,
+  pair: null, // { a, b } condition ids when the study has more than two conditions
+  dataVersion: null,
+  refreshTimer: null,
+  refreshing: false,
+  refreshAgain: false,
+  live: null, // AbortController of the event-stream loop
+  generation: 0, // bumps on every key change so stale responses are ignored
+  familySize: 0, // comparisons in the adjusted family (0 when not loaded)
+};
+
+// ---------------------------------------------------------------------------------------------------------
+// Small DOM helpers
+// ---------------------------------------------------------------------------------------------------------
+
+/** Create an element: attrs may hold class, text, hidden and any attribute (data-*, aria-*); children are nodes or strings. */
+function h(tag, attrs = {}, ...children) {
+  const el = document.createElement(tag);
+  for (const [k, v] of Object.entries(attrs)) {
+    if (v === null || v === undefined || v === false) continue;
+    if (k === 'class') el.className = v;
+    else if (k === 'text') el.textContent = v;
+    else if (k === 'hidden') el.hidden = true;
+    else el.setAttribute(k, v === true ? '' : String(v));
+  }
+  for (const c of children.flat()) {
+    if (c === null || c === undefined || c === false) continue;
+    el.append(typeof c === 'string' ? document.createTextNode(c) : c);
+  }
+  return el;
+}
+
+/** One displayed number, marked for the browser test. */
+function num(measure, field, kind, value, extra = {}) {
+  /** @type {Record<string, string>} */
+  const attrs = { class: `num num-${kind}`, 'data-field': field, 'data-format': kind, ...extra };
+  if (measure !== null) attrs['data-measure'] = measure;
+  if (kind === 'p' && typeof value === 'number') attrs.title = `p = ${formatPExact(value)}`;
+  return h('span', attrs, formatByKind(kind, value));
+}
+
+function setStatus(text, tone = 'plain') {
+  const el = $('page-status');
+  el.textContent = text;
+  el.dataset.tone = tone;
+  el.hidden = text === '';
+}
+
+function readPathLocal(obj, path) {
+  let cur = obj;
+  for (const part of path.split('.')) {
+    if (cur === null || cur === undefined || typeof cur !== 'object') return undefined;
+    cur = cur[part];
+  }
+  return cur;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Key handling and HTTP
+// ---------------------------------------------------------------------------------------------------------
+
+let memoryKey = null; // fallback when sessionStorage is unavailable
+
+function loadKey() {
+  try {
+    return sessionStorage.getItem(KEY_STORAGE);
+  } catch {
+    return memoryKey;
+  }
+}
+function saveKey(key) {
+  memoryKey = key;
+  try {
+    if (key === null) sessionStorage.removeItem(KEY_STORAGE);
+    else sessionStorage.setItem(KEY_STORAGE, key);
+  } catch {
+    /* storage disabled: keep it in memory for this page only */
+  }
+}
+
+class HttpError extends Error {
+  constructor(status, problem) {
+    super(problem && (problem.detail || problem.title) ? String(problem.detail || problem.title) : `HTTP ${status}`);
+    this.status = status;
+    this.problem = problem;
+  }
+}
+
+const isAuthError = (err) => err instanceof HttpError && (err.status === 401 || err.status === 403);
+
+async function api(path, accept = 'application/json', signal) {
+  const res = await fetch(path, {
+    headers: { Authorization: `Bearer ${state.key}`, Accept: accept },
+    cache: 'no-cache', // revalidate with the ETag: a 304 comes back as the cached 200
+    credentials: 'omit',
+    signal,
+  });
+  if (!res.ok) {
+    let problem = null;
+    try {
+      problem = await res.json();
+    } catch {
+      /* not JSON */
+    }
+    throw new HttpError(res.status, problem);
+  }
+  return res;
+}
+
+const base = () => `/v1/experiments/${encodeURIComponent(state.id)}`;
+
+function pairQuery() {
+  if (!state.pair) return '';
+  return `?a=${encodeURIComponent(state.pair.a)}&b=${encodeURIComponent(state.pair.b)}`;
+}
+
+function showKeyPanel(message) {
+  stopLive();
+  $('key-panel').hidden = false;
+  $('toolbar').hidden = true;
+  $('progress').hidden = true;
+  $('measures').replaceChildren();
+  $('pair-picker-slot').replaceChildren();
+  const err = $('key-error');
+  if (message) {
+    err.textContent = message;
+    err.hidden = false;
+    $('key-input').setAttribute('aria-invalid', 'true');
+  } else {
+    err.hidden = true;
+    $('key-input').removeAttribute('aria-invalid');
+  }
+  setStatus('');
+  keyInput().value = '';
+  $('key-input').focus();
+}
+
+function onAuthFailure(err) {
+  saveKey(null);
+  state.key = null;
+  state.generation++;
+  const why = err && err.status === 403 ? 'That key may not read this study' : 'That key was not accepted';
+  showKeyPanel(`${why} (HTTP ${err ? err.status : 401}). Check that you copied the whole read key for this study, then try again.`);
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// SVG charts from the service
+// ---------------------------------------------------------------------------------------------------------
+
+const SVG_NS = 'http://www.w3.org/2000/svg';
+
+/** Parse the service's SVG after a sanity check, drop anything active, and return a node for this document. */
+function svgFromText(text) {
+  const trimmed = text.trimStart();
+  if (!trimmed.startsWith('<svg')) throw new Error('the chart response is not an SVG image');
+  const doc = new DOMParser().parseFromString(trimmed, 'image/svg+xml');
+  const root = doc.documentElement;
+  if (!root || root.namespaceURI !== SVG_NS || root.localName !== 'svg' || doc.getElementsByTagName('parsererror').length > 0) {
+    throw new Error('the chart could not be read as SVG');
+  }
+  for (const el of Array.from(root.querySelectorAll('script, foreignObject, style, iframe, use[href^="http"]'))) el.remove();
+  for (const el of [root, ...Array.from(root.querySelectorAll('*'))]) {
+    for (const attr of Array.from(el.attributes)) {
+      const name = attr.name.toLowerCase();
+      const value = attr.value.trim().toLowerCase();
+      if (name.startsWith('on') || name === 'style' || ((name === 'href' || name === 'xlink:href') && !value.startsWith('#'))) {
+        el.removeAttribute(attr.name);
+      }
+    }
+  }
+  return document.importNode(root, true);
+}
+
+async function fetchSvg(path) {
+  const res = await api(path, 'image/svg+xml');
+  return svgFromText(await res.text());
+}
+
+function chartFigure(kind, caption, svgResult) {
+  const box = h('div', { class: `chart-box chart-${kind}` });
+  const fig = h('figure', { class: `chart-figure figure-${kind}` }, box);
+  if (svgResult.svg) {
+    box.append(svgResult.svg);
+    const desc = svgResult.svg.querySelector('desc');
+    if (desc && desc.textContent) {
+      fig.append(h('details', { class: 'chart-words' }, h('summary', { text: 'This chart in words' }), h('p', { text: desc.textContent })));
+    }
+  } else {
+    box.append(h('p', { class: 'chart-missing', text: svgResult.error }));
+  }
+  fig.prepend(h('figcaption', { class: 'chart-caption', text: caption }));
+  return fig;
+}
+
+async function loadSvg(path) {
+  try {
+    return { svg: await fetchSvg(path) };
+  } catch (err) {
+    if (isAuthError(err)) throw err;
+    return { svg: null, error: err instanceof HttpError && err.status === 404 ? 'No chart yet.' : `The chart could not be loaded (${err.message}).` };
+  }
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Definition helpers (tolerant of the exact shape)
+// ---------------------------------------------------------------------------------------------------------
+
+function measureScale(m) {
+  const s = m.scale && typeof m.scale === 'object' ? m.scale : m;
+  return { min: s.min, max: s.max, integer: Boolean(s.integer) };
+}
+
+function conditionLabel(id) {
+  const c = (state.definition.conditions || []).find((x) => x.id === id);
+  return c ? c.label || c.id : id;
+}
+
+/** Answers so far per condition, read from the definition's counts (object or array) or the conditions. */
+function countFor(def, conditionId) {
+  const pick = (v) => {
+    if (typeof v === 'number') return v;
+    if (v && typeof v === 'object') {
+      for (const k of ['n', 'count', 'responses', 'answers']) if (typeof v[k] === 'number') return v[k];
+    }
+    return null;
+  };
+  const counts = def.counts ?? def.countsPerCondition ?? def.responseCounts ?? null;
+  if (Array.isArray(counts)) {
+    const entry = counts.find((e) => e && (e.condition === conditionId || e.id === conditionId));
+    if (entry) return pick(entry);
+  } else if (counts && typeof counts === 'object') {
+    const v = pick(counts[conditionId]);
+    if (v !== null) return v;
+  }
+  const cond = (def.conditions || []).find((c) => c.id === conditionId);
+  return cond ? pick(cond) : null;
+}
+
+function plannedFor(def, conditionId) {
+  const p = def.plannedPerCondition;
+  if (typeof p === 'number') return p;
+  if (p && typeof p === 'object' && typeof p[conditionId] === 'number') return p[conditionId];
+  return null;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Rendering
+// ---------------------------------------------------------------------------------------------------------
+
+function renderHeader(def) {
+  const title = def.title || def.id;
+  $('study-title').textContent = title;
+  document.title = `${title} · results · Splitballot`;
+  const parts = [];
+  if (def.status) parts.push(h('span', { class: `badge badge-${String(def.status).replace(/[^a-z-]/gi, '')}`, text: String(def.status) }));
+  parts.push(h('span', { class: 'meta-item' }, 'Study ', h('code', { text: def.id })));
+  parts.push(
+    h('span', { class: 'meta-item' }, `${(def.conditions || []).length} conditions · ${(def.measures || []).length} ${(def.measures || []).length === 1 ? 'item' : 'items'}`),
+  );
+  if (state.dataVersion !== null) parts.push(h('span', { class: 'meta-item' }, 'data version ', h('span', { 'data-field': 'dataVersion', text: String(state.dataVersion) })));
+  $('study-meta').replaceChildren(...parts);
+}
+
+function renderProgress(def) {
+  const list = $('progress-list');
+  const items = (def.conditions || []).map((c) => {
+    const n = countFor(def, c.id);
+    const planned = plannedFor(def, c.id);
+    const labelId = `progress-label-${c.id}`.replace(/[^A-Za-z0-9_-]/g, '-');
+    const attrs = { 'data-source': 'definition', 'data-condition': c.id };
+    const value = n === null ? null : n;
+    const text =
+      planned !== null
+        ? [num(null, 'count', 'count', value, attrs), ' of ', num(null, 'planned', 'count', planned, attrs), ' planned (', num(null, 'fraction', 'percent', value === null ? null : value / planned, attrs), ')']
+        : [num(null, 'count', 'count', value, attrs), ' answers (no planned size)'];
+    const bar =
+      planned !== null && value !== null
+        ? h('progress', { max: String(planned), value: String(Math.min(value, planned)), 'aria-labelledby': labelId, class: value >= planned ? 'complete' : '' })
+        : null;
+    return h('li', { class: 'progress-item' }, h('span', { class: 'progress-label', id: labelId, text: c.label || c.id }), bar, h('span', { class: 'progress-text' }, ...text));
+  });
+  list.replaceChildren(...items);
+  $('progress').hidden = items.length === 0;
+}
+
+function renderPairPicker(def) {
+  const slot = $('pair-picker-slot');
+  const conditions = def.conditions || [];
+  if (conditions.length <= 2) {
+    state.pair = null;
+    slot.replaceChildren();
+    return;
+  }
+  if (!state.pair) state.pair = { a: conditions[0].id, b: conditions[1].id };
+  if (slot.firstChild) return;
+  const select = (name, label, value) =>
+    h(
+      'label',
+      { class: 'pair-field' },
+      label,
+      h('select', { name }, ...conditions.map((c) => h('option', { value: c.id, selected: c.id === value ? true : null, text: c.label || c.id }))),
+    );
+  const form = h(
+    'form',
+    { class: 'panel pair-picker', 'aria-label': 'Choose the two conditions to compare' },
+    h('p', { class: 'pair-title', text: 'This study has more than two conditions. Compare' }),
+    select('a', 'first (a) ', state.pair.a),
+    select('b', ' with (b) ', state.pair.b),
+    h('button', { type: 'submit', text: 'Compare' }),
+    h('p', { class: 'form-error', role: 'alert', hidden: true }),
+  );
+  form.addEventListener('submit', (ev) => {
+    ev.preventDefault();
+    const a = form.elements.namedItem('a').value;
+    const b = form.elements.namedItem('b').value;
+    const err = form.querySelector('.form-error');
+    if (a === b) {
+      err.textContent = 'Choose two different conditions.';
+      err.hidden = false;
+      return;
+    }
+    err.hidden = true;
+    state.pair = { a, b };
+    refreshNow();
+  });
+  slot.replaceChildren(form);
+}
+
+function scaleText(scale) {
+  return `${formatNumber(scale.min)} to ${formatNumber(scale.max)}${scale.integer ? ', whole numbers' : ''}`;
+}
+
+function reasonsOf(cmp) {
+  const out = [];
+  const add = (label, obj) => {
+    if (obj && typeof obj.reason === 'string' && obj.reason) out.push(`${label}: ${obj.reason}`);
+  };
+  add(`${conditionLabel(cmp.a)}`, cmp.groups && cmp.groups.a);
+  add(`${conditionLabel(cmp.b)}`, cmp.groups && cmp.groups.b);
+  add("Welch's t-test", cmp.welch);
+  add('Student t-test', cmp.student);
+  add('Rank-sum test', cmp.mannWhitney);
+  add('Hodges–Lehmann shift', cmp.hodgesLehmann);
+  add('Effect sizes', cmp.effectSizes);
+  return out;
+}
+
+function comparisonTable(mid, cmp) {
+  const g = cmp.groups || { a: {}, b: {} };
+  const la = conditionLabel(cmp.a);
+  const lb = conditionLabel(cmp.b);
+  const n = (field, kind, extra) => num(mid, field, kind, readPathLocal(cmp, field), extra);
+  const level = readPathLocal(cmp, 'welch.ci.level');
+  const line = (...parts) => h('span', { class: 'line' }, ...parts);
+
+  const diffLabel = 'Difference a − b and test';
+  const meanDiff = h(
+    'td',
+    { class: 'diff', 'data-label': diffLabel },
+    line(h('span', { class: 'term', text: 'Mean difference ' }), n('welch.meanDifference', 'number'), ', ', num(mid, 'welch.ci.level', 'level', level), ' CI ', n('welch.ci', 'interval')),
+    line(h('span', { class: 'term', text: "Welch's t-test " }), 't = ', n('welch.t', 'number'), ', df = ', n('welch.df', 'number'), ', ', h('em', { text: 'p' }), ' = ', n('welch.p', 'p')),
+    line(h('span', { class: 'term term-secondary', text: 'Student t-test (pooled) ' }), h('em', { text: 'p' }), ' = ', n('student.p', 'p')),
+  );
+
+  const hlLevel = readPathLocal(cmp, 'hodgesLehmann.ci.level');
+  const achieved = readPathLocal(cmp, 'hodgesLehmann.ci.achievedLevel');
+  const showAchieved = typeof achieved === 'number' && typeof hlLevel === 'number' && Math.abs(achieved - hlLevel) > 5e-4;
+  const mw = cmp.mannWhitney || {};
+  const mwMethod =
+    mw.method === 'exact'
+      ? 'exact'
+      : `normal approximation${mw.continuityCorrection ? ', continuity correction' : ''}${mw.tieCorrection ? ', tie correction' : ''}`;
+  const medianDiff = h(
+    'td',
+    { class: 'diff', 'data-label': diffLabel },
+    line(
+      h('span', { class: 'term', text: 'Hodges–Lehmann shift ' }),
+      n('hodgesLehmann.estimate', 'number'),
+      ', ',
+      num(mid, 'hodgesLehmann.ci.level', 'level', hlLevel),
+      ' CI ',
+      n('hodgesLehmann.ci', 'interval'),
+      showAchieved ? h('span', { class: 'achieved' }, ' (achieved level ', n('hodgesLehmann.ci.achievedLevel', 'level'), ')') : null,
+    ),
+    line(
+      h('span', { class: 'term', text: 'Rank-sum test (Mann–Whitney) ' }),
+      h('em', { text: 'U' }),
+      ' = ',
+      n('mannWhitney.u', 'number'),
+      ', ',
+      h('em', { text: 'p' }),
+      ' = ',
+      n('mannWhitney.p', 'p'),
+    ),
+    line(h('span', { class: 'term-secondary', text: mwMethod })),
+  );
+
+  const cellLabel = (key) => `${key} · ${key === 'a' ? la : lb}`;
+  const group = (key) => [
+    h('td', { class: 'grp', 'data-label': cellLabel(key) }, h('span', { class: 'cell-value' }, n(`groups.${key}.mean`, 'number'), ' (', n(`groups.${key}.sd`, 'number'), ')')),
+  ];
+  const groupMedian = (key) => [
+    h(
+      'td',
+      { class: 'grp', 'data-label': cellLabel(key) },
+      h('span', { class: 'cell-value' }, n(`groups.${key}.median`, 'number'), h('span', { class: 'iqr' }, ' (', n(`groups.${key}.q1`, 'number'), ' to ', n(`groups.${key}.q3`, 'number'), ')')),
+    ),
+  ];
+
+  const table = h(
+    'table',
+    { class: 'comparison' },
+    h('caption', { class: 'visually-hidden', text: `Both tests for ${la} compared with ${lb}` }),
+    h(
+      'thead',
+      {},
+      h(
+        'tr',
+        {},
+        h('td', {}),
+        h('th', { scope: 'col' }, h('span', { class: 'col-key', text: 'a' }), ' ', la),
+        h('th', { scope: 'col' }, h('span', { class: 'col-key', text: 'b' }), ' ', lb),
+        h('th', { scope: 'col', text: 'Difference a − b and test' }),
+      ),
+    ),
+    h(
+      'tbody',
+      {},
+      h('tr', { class: 'row-n' }, h('th', { scope: 'row', text: 'Answers (n)' }), h('td', { class: 'grp', 'data-label': cellLabel('a') }, n('groups.a.n', 'count')), h('td', { class: 'grp', 'data-label': cellLabel('b') }, n('groups.b.n', 'count')), h('td', { class: 'diff empty' })),
+      h('tr', { class: 'row-mean' }, h('th', { scope: 'row' }, 'Mean ', h('span', { class: 'unit', text: '(SD)' })), ...group('a'), ...group('b'), meanDiff),
+      h('tr', { class: 'row-median' }, h('th', { scope: 'row' }, 'Median ', h('span', { class: 'unit', text: '(Q1 to Q3)' })), ...groupMedian('a'), ...groupMedian('b'), medianDiff),
+    ),
+  );
+  return h('div', { class: 'table-scroll', role: 'region', 'aria-label': `Comparison table for ${la} and ${lb} (scrolls sideways)`, tabindex: '0' }, table);
+}
+
+function effectList(mid, cmp) {
+  const n = (field, kind) => num(mid, field, kind, readPathLocal(cmp, field));
+  const item = (term, help, ...value) => [h('dt', {}, term, help ? h('span', { class: 'help', text: help }) : null), h('dd', {}, ...value)];
+  return h(
+    'dl',
+    { class: 'facts effects' },
+    ...item("Hedges' g", 'mean difference in pooled SDs, small-sample corrected', n('effectSizes.hedgesG', 'number'), ' ', n('effectSizes.hedgesGCi', 'interval')),
+    ...item("Cohen's d", null, n('effectSizes.cohensD', 'number')),
+    ...item('Rank-biserial r', 'from −1 to 1; 0 means no tendency', n('effectSizes.rankBiserial', 'number')),
+    ...item('P(a > b)', 'chance an answer in a beats one in b (ties count half)', n('effectSizes.probabilityOfSuperiority', 'number')),
+  );
+}
+
+function robustList(mid, cmp) {
+  const n = (field, kind) => num(mid, field, kind, readPathLocal(cmp, field));
+  const trim = readPathLocal(cmp, 'robust.yuenWelch.trim');
+  return h(
+    'dl',
+    { class: 'facts robust' },
+    h('dt', {}, 'Brunner–Munzel test', h('span', { class: 'help', text: 'rank test that allows unequal spreads' })),
+    h('dd', {}, h('em', { text: 'p' }), ' = ', n('robust.brunnerMunzel.p', 'p')),
+    h('dt', {}, `Yuen's trimmed means${typeof trim === 'number' ? ` (${formatLevel(trim)} trimmed)` : ''}`),
+    h('dd', {}, 'difference ', n('robust.yuenWelch.difference', 'number'), ', ', h('em', { text: 'p' }), ' = ', n('robust.yuenWelch.p', 'p')),
+  );
+}
+
+function flagList(cmp) {
+  const flags = Array.isArray(cmp.flags) ? [...cmp.flags] : [];
+  flags.sort((x, y) => (x.severity === y.severity ? 0 : x.severity === 'warning' ? -1 : 1));
+  if (flags.length === 0) return h('p', { class: 'no-flags', text: 'No quality flags: nothing unusual was seen in these answers.' });
+  return h(
+    'ul',
+    { class: 'flags' },
+    ...flags.map((f) => {
+      const warning = f.severity === 'warning';
+      return h(
+        'li',
+        { class: `flag flag-${warning ? 'warning' : 'info'}`, 'data-code': f.code, 'data-severity': warning ? 'warning' : 'info' },
+        h('span', { class: 'flag-mark', 'aria-hidden': 'true', text: warning ? '!' : 'i' }),
+        h('span', { class: 'flag-body' }, h('strong', { class: 'flag-kind', text: warning ? 'Warning: ' : 'Note: ' }), f.message || f.code),
+      );
+    }),
+  );
+}
+
+function formatWhen(iso) {
+  if (typeof iso !== 'string') return MISSING;
+  const d = new Date(iso);
+  return Number.isNaN(d.getTime()) ? iso : d.toLocaleString();
+}
+
+function interimBlock(mid, cmp, trajectory) {
+  const mon = cmp.monitoring;
+  const heading = h('h3', { text: 'Interim monitoring' });
+  if (!mon) {
+    return h('section', { class: 'interim' }, heading, h('p', { class: 'muted', text: 'No interim monitoring is available for this comparison yet.' }));
+  }
+  const parts = [heading];
+  const av = mon.anytimeValid;
+  if (av) {
+    const n = (field, kind) => num(mid, field, kind, readPathLocal(cmp, field));
+    parts.push(
+      h(
+        'dl',
+        { class: 'facts interim-facts' },
+        h('dt', {}, 'Always-valid ', h('em', { text: 'p' }), h('span', { class: 'help', text: 'may be checked after every answer' })),
+        h('dd', {}, n('monitoring.anytimeValid.p', 'p')),
+        h('dt', {}, 'Confidence sequence for a − b', h('span', { class: 'help', text: 'valid at every look' })),
+        h('dd', {}, n('monitoring.anytimeValid.ci.level', 'level'), ' ', n('monitoring.anytimeValid.ci', 'interval')),
+      ),
+    );
+    if (av.reason) parts.push(h('p', { class: 'muted', text: av.reason }));
+    if (av.method) parts.push(h('p', { class: 'method', text: `Method: ${av.method}.` }));
+    parts.push(chartFigure('trajectory', 'The confidence sequence and the always-valid p as answers arrived', trajectory));
+  } else {
+    parts.push(h('p', { class: 'muted', text: 'The always-valid p-value is not available for this comparison.' }));
+  }
+  const gs = mon.groupSequential;
+  if (gs && Array.isArray(gs.looks)) {
+    parts.push(h('h4', { text: `Planned looks (${gs.spending === 'pocock' ? 'Pocock' : "O'Brien–Fleming"}-type boundaries)` }));
+    if (gs.looks.length === 0) parts.push(h('p', { class: 'muted', text: 'No interim look has been recorded yet.' }));
+    else {
+      const rows = gs.looks.map((look, i) => {
+        const p = (field, kind) => num(mid, `monitoring.groupSequential.looks.${i}.${field}`, kind, look[field]);
+        return h(
+          'tr',
+          { class: look.crossed ? 'crossed' : '' },
+          h('th', { scope: 'row', text: String(look.number ?? i + 1) }),
+          h('td', {}, p('fraction', 'percent')),
+          h('td', {}, p('boundaryZ', 'z')),
+          h('td', {}, p('observedZ', 'z')),
+          h('td', { class: 'crossed-cell' }, look.crossed ? h('strong', { text: 'Yes, stop' }) : 'No'),
+          h('td', { text: formatWhen(look.recordedAt) }),
+        );
+      });
+      parts.push(
+        h(
+          'div',
+          { class: 'table-scroll', role: 'region', 'aria-label': 'Planned looks (scrolls sideways)', tabindex: '0' },
+          h(
+            'table',
+            { class: 'looks' },
+            h('caption', { class: 'visually-hidden', text: 'Recorded interim looks with their boundaries' }),
+            h(
+              'thead',
+              {},
+              h('tr', {}, ...['Look', 'Share of planned answers', 'Boundary |z|', 'Observed z', 'Crossed?', 'Recorded'].map((t) => h('th', { scope: 'col', text: t }))),
+            ),
+            h('tbody', {}, ...rows),
+          ),
+        ),
+      );
+    }
+  }
+  if (mon.caveat) parts.push(h('p', { class: 'caveat', text: mon.caveat }));
+  return h('section', { class: 'interim' }, ...parts);
+}
+
+function adjustedLine(mid, entry) {
+  if (!entry || !entry.adjusted) return null;
+  const adj = entry.adjusted;
+  const method = adj.method === 'bh' ? 'Benjamini–Hochberg' : adj.method === 'holm' ? 'Holm' : String(adj.method || 'adjusted');
+  const attrs = { 'data-source': 'family' };
+  return h(
+    'p',
+    { class: 'adjusted' },
+    h('strong', { text: `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
+    "Welch ", h('em', { text: 'p' }), ' = ', num(mid, 'adjusted.welchP', 'p', adj.welchP, attrs),
+    ', rank-sum ', h('em', { text: 'p' }), ' = ', num(mid, 'adjusted.mannWhitneyP', 'p', adj.mannWhitneyP, attrs),
+  );
+}
+
+function renderMeasure(m, result) {
+  const mid = m.id;
+  const scale = measureScale(m);
+  const headingId = `measure-heading-${mid}`.replace(/[^A-Za-z0-9_-]/g, '-');
+  const section = h('section', { class: 'measure panel', id: `measure-${mid}`.replace(/[^A-Za-z0-9_-]/g, '-'), 'data-measure': mid, 'aria-labelledby': headingId });
+  section.append(
+    h(
+      'header',
+      { class: 'measure-head' },
+      h('h2', { id: headingId, text: m.label || m.id }),
+      h('p', { class: 'scale' }, `Scale ${scaleText(scale)}`, m.required === false ? ' · optional item' : ''),
+    ),
+  );
+  if (result.error) {
+    section.append(h('p', { class: 'load-error', role: 'alert', text: result.error }));
+    return section;
+  }
+  const cmp = result.cmp;
+  section.dataset.dataVersion = String(cmp.dataVersion ?? '');
+  const body = h(
+    'div',
+    { class: 'measure-body' },
+    chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
+    h(
+      'div',
+      { class: 'numbers' },
+      h('h3', { class: 'numbers-title', text: 'Both tests side by side' }),
+      comparisonTable(mid, cmp),
+      adjustedLine(mid, result.family),
+      h('h4', { text: 'Effect sizes' }),
+      effectList(mid, cmp),
+      h('h4', { text: 'Robust checks' }),
+      robustList(mid, cmp),
+    ),
+  );
+  section.append(body);
+  const reasons = reasonsOf(cmp);
+  if (reasons.length > 0) {
+    section.append(h('div', { class: 'reasons' }, h('h4', { text: 'Why some numbers are missing' }), h('ul', {}, ...reasons.map((r) => h('li', { text: r })))));
+  }
+  section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp)));
+  section.append(interimBlock(mid, cmp, result.trajectory));
+  section.append(
+    h(
+      'p',
+      { class: 'computed' },
+      'Data version ',
+      h('span', { 'data-measure': mid, 'data-field': 'dataVersion', 'data-format': 'count', text: formatCount(cmp.dataVersion) }),
+      ` · computed ${formatWhen(cmp.computedAt)}`,
+    ),
+  );
+  return section;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Loading
+// ---------------------------------------------------------------------------------------------------------
+
+async function loadMeasure(m) {
+  const path = `${base()}/comparisons/${encodeURIComponent(m.id)}`;
+  const q = pairQuery();
+  let cmp;
+  try {
+    cmp = await (await api(path + q)).json();
+  } catch (err) {
+    if (isAuthError(err)) throw err;
+    return { error: `This comparison could not be loaded: ${err.message}` };
+  }
+  const [chart, trajectory] = await Promise.all([
+    loadSvg(`${path}/chart.svg${q}`),
+    cmp.monitoring && cmp.monitoring.anytimeValid ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve({ svg: null, error: '' }),
+  ]);
+  return { cmp, chart, trajectory };
+}
+
+/** Adjusted p-values across the family (only meaningful with several items or pairs); null when unavailable. */
+async function loadFamily(def) {
+  if ((def.measures || []).length < 2) return null;
+  try {
+    const q = state.pair ? `&a=${encodeURIComponent(state.pair.a)}&b=${encodeURIComponent(state.pair.b)}` : '';
+    const body = await (await api(`${base()}/comparisons?pairs=first&adjust=holm${q}`)).json();
+    const entries = Array.isArray(body) ? body : body.comparisons || body.items || body.results || [];
+    return Array.isArray(entries) ? entries : null;
+  } catch (err) {
+    if (isAuthError(err)) throw err;
+    return null;
+  }
+}
+
+async function refresh() {
+  if (!state.key) return;
+  if (state.refreshing) {
+    state.refreshAgain = true;
+    return;
+  }
+  state.refreshing = true;
+  const generation = state.generation;
+  const first = state.definition === null;
+  if (first) setStatus('Loading the study…');
+  try {
+    const def = await (await api(base())).json();
+    if (generation !== state.generation) return;
+    state.definition = def;
+    renderPairPicker(def);
+    const measures = def.measures || [];
+    const [results, family] = await Promise.all([Promise.all(measures.map(loadMeasure)), loadFamily(def)]);
+    if (generation !== state.generation) return;
+    const versions = results.map((r) => (r.cmp && typeof r.cmp.dataVersion === 'number' ? r.cmp.dataVersion : null)).filter((v) => v !== null);
+    if (typeof def.dataVersion === 'number') versions.push(def.dataVersion);
+    if (versions.length > 0) state.dataVersion = Math.max(...versions);
+    state.familySize = family ? family.length : 0;
+
+    $('key-panel').hidden = true;
+    $('toolbar').hidden = false;
+    renderHeader(def);
+    renderProgress(def);
+    // Keep keyboard focus where it was when a live refresh swaps the numbers.
+    const active = document.activeElement;
+    const focusKey = active && active.closest && active.closest('.measure') ? active.closest('.measure').id : null;
+    const sections = measures.map((m, i) => {
+      const entry = family ? family.find((e) => e && e.measure === m.id && (!state.pair || (e.a === state.pair.a && e.b === state.pair.b))) : null;
+      return renderMeasure(m, { ...results[i], family: entry });
+    });
+    $('measures').replaceChildren(...sections);
+    if (focusKey) {
+      const again = document.getElementById(focusKey);
+      const target = again && /** @type {HTMLElement | null} */ (again.querySelector('.table-scroll'));
+      if (target) target.focus({ preventScroll: true });
+    }
+    if ($('live-status').dataset.tone === 'busy') setLive(LIVE_ON, 'on');
+    if (measures.length === 0) setStatus('This study has no items yet.');
+    else setStatus('');
+    if (first) {
+      $('study-title').focus({ preventScroll: true });
+      startLive();
+    }
+  } catch (err) {
+    if (generation !== state.generation) return;
+    if (isAuthError(err)) onAuthFailure(err);
+    else if (err instanceof HttpError && err.status === 404) setStatus(`There is no study with the id "${state.id}".`, 'error');
+    else setStatus(`The results could not be loaded: ${err.message}. Try "Refresh now" in a moment.`, 'error');
+    if (first) state.definition = null;
+  } finally {
+    state.refreshing = false;
+    if (state.refreshAgain && state.key) {
+      state.refreshAgain = false;
+      scheduleRefresh();
+    }
+  }
+}
+
+function scheduleRefresh() {
+  clearTimeout(state.refreshTimer);
+  state.refreshTimer = setTimeout(refresh, REFRESH_DEBOUNCE_MS);
+}
+
+function refreshNow() {
+  clearTimeout(state.refreshTimer);
+  refresh();
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Live updates
+// ---------------------------------------------------------------------------------------------------------
+
+function setLive(text, tone) {
+  const el = $('live-status');
+  el.textContent = text;
+  el.dataset.tone = tone;
+}
+
+function stopLive() {
+  if (state.live) state.live.abort();
+  state.live = null;
+}
+
+function sleep(ms, signal) {
+  return new Promise((/** @type {(value?: unknown) => void} */ resolve) => {
+    const t = setTimeout(resolve, ms);
+    signal.addEventListener('abort', () => {
+      clearTimeout(t);
+      resolve();
+    }, { once: true });
+  });
+}
+
+function onDataVersion(version) {
+  if (state.dataVersion === null || version !== state.dataVersion) {
+    setLive(`Live: new answers (data version ${version}), updating…`, 'busy');
+    scheduleRefresh();
+  }
+}
+
+async function startLive() {
+  stopLive();
+  const controller = new AbortController();
+  state.live = controller;
+  const { signal } = controller;
+  let failures = 0;
+  while (!signal.aborted) {
+    let delay;
+    try {
+      const res = await fetch(`${base()}/events`, {
+        headers: { Authorization: `Bearer ${state.key}`, Accept: 'text/event-stream' },
+        cache: 'no-store',
+        credentials: 'omit',
+        signal,
+      });
+      if (res.status === 401 || res.status === 403) {
+        onAuthFailure(new HttpError(res.status, null));
+        return;
+      }
+      if (res.status === 404 || res.status === 405) {
+        setLive('Live updates are not available here; use "Refresh now".', 'off');
+        return;
+      }
+      if (!res.ok) throw new HttpError(res.status, null);
+      failures = 0;
+      setLive(LIVE_ON, 'on');
+      const retry = await readEventStream(res, (event) => {
+        const v = dataVersionOf(event);
+        if (v !== null) onDataVersion(v);
+      });
+      delay = retry ?? 1000;
+    } catch {
+      if (signal.aborted) return;
+      failures++;
+      delay = Math.min(MAX_RECONNECT_MS, 1000 * 2 ** Math.min(failures - 1, 5));
+    }
+    if (signal.aborted) return;
+    setLive(`Live updates paused; reconnecting in ${Math.round(delay / 1000)} s.`, 'off');
+    await sleep(delay, signal);
+  }
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Start
+// ---------------------------------------------------------------------------------------------------------
+
+function experimentIdFromPath(pathname) {
+  const m = pathname.match(/\/experiments\/([^/]+)\/?$/);
+  if (!m) return null;
+  try {
+    return decodeURIComponent(m[1]);
+  } catch {
+    return null;
+  }
+}
+
+function init() {
+  state.id = experimentIdFromPath(location.pathname);
+  if (!state.id) {
+    setStatus('This page expects an address of the form /experiments/{id}.', 'error');
+    return;
+  }
+
+  $('key-form').addEventListener('submit', (ev) => {
+    ev.preventDefault();
+    const value = keyInput().value.trim();
+    if (!value) {
+      $('key-error').textContent = 'Enter the read key first.';
+      $('key-error').hidden = false;
+      $('key-input').setAttribute('aria-invalid', 'true');
+      $('key-input').focus();
+      return;
+    }
+    saveKey(value);
+    state.key = value;
+    state.generation++;
+    state.definition = null;
+    $('key-error').hidden = true;
+    $('key-input').removeAttribute('aria-invalid');
+    keyInput().value = '';
+    refreshNow();
+  });
+  $('refresh-button').addEventListener('click', refreshNow);
+  $('forget-key-button').addEventListener('click', () => {
+    saveKey(null);
+    state.key = null;
+    state.generation++;
+    state.definition = null;
+    state.dataVersion = null;
+    showKeyPanel(null);
+  });
+
+  state.key = loadKey();
+  if (state.key) refreshNow();
+  else showKeyPanel(null);
+}
+
+if (document.readyState === 'loading') document.addEventListener('DOMContentLoaded', init);
+else init();
