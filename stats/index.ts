@@ -1,0 +1,108 @@
+/**
+ * The public surface of `stats/`: compare two conditions on one item, by the mean-based and the
+ * rank-based route side by side.
+ *
+ *   compare(a, b, options)                 raw answers of each condition (any order)        O(n log n)
+ *   compareCounts(countsA, countsB, opts)  per-value counts of a bounded integer item         O(K), K distinct values
+ *   compareSamples(sa, sb, options)        already-built Samples (e.g. values read in index order)
+ *
+ * All three return the same frozen `Comparison` (see types.ts for the conventions: differences are
+ * a − b; `u` is the U statistic of a, equal to R's W and scipy's U1). `compareCounts` builds Samples
+ * from the counts and runs exactly the code `compare` runs, so the two agree on the expanded data.
+ *
+ * Options: alternative "two-sided" (default) | "less" | "greater"; confidenceLevel in (0, 1), default
+ * 0.95; exact "auto" (default) | "always" | "never" for the rank-sum test (rule in rank-sum.ts).
+ */
+import { describe } from './descriptives.js';
+import { effectSizes } from './effect-sizes.js';
+import { hodgesLehmann } from './hodges-lehmann.js';
+import { rankSum } from './rank-sum.js';
+import { brunnerMunzel, yuenWelch } from './robust.js';
+import { fromCounts, fromValues, type Sample } from './sample.js';
+import { shapiroWilk } from './shapiro-wilk.js';
+import type { Alternative, CompareOptions, Comparison, ExactMode, GroupSummary } from './types.js';
+import { freezeDeep } from './types.js';
+import { studentTest, welchTest } from './welch.js';
+
+export * from './types.js';
+export { fromCounts, fromSortedValues, fromValues, fromWeighted, expand, type Sample } from './sample.js';
+
+interface ResolvedOptions {
+  alternative: Alternative;
+  confidenceLevel: number;
+  exact: ExactMode;
+}
+
+const ALTERNATIVES: readonly Alternative[] = ['two-sided', 'less', 'greater'];
+const EXACT_MODES: readonly ExactMode[] = ['auto', 'always', 'never'];
+
+/** Check and fill in the options; a bad option is a programming error and throws a RangeError. */
+export function resolveOptions(options: CompareOptions = {}): ResolvedOptions {
+  const alternative = options.alternative ?? 'two-sided';
+  const confidenceLevel = options.confidenceLevel ?? 0.95;
+  const exact = options.exact ?? 'auto';
+  if (!ALTERNATIVES.includes(alternative)) {
+    throw new RangeError(`alternative is "${String(alternative)}"; use one of ${ALTERNATIVES.join(', ')}`);
+  }
+  if (typeof confidenceLevel !== 'number' || !(confidenceLevel > 0 && confidenceLevel < 1)) {
+    throw new RangeError(`confidenceLevel is ${String(confidenceLevel)}; it must be a number strictly between 0 and 1`);
+  }
+  if (!EXACT_MODES.includes(exact)) {
+    throw new RangeError(`exact is "${String(exact)}"; use one of ${EXACT_MODES.join(', ')}`);
+  }
+  return { alternative, confidenceLevel, exact };
+}
+
+function summarize(s: Sample): GroupSummary {
+  const base = describe(s);
+  const sw = shapiroWilk(s);
+  const reasons = [base.reason, sw.result === null ? `Shapiro–Wilk: ${sw.reason}` : undefined].filter(
+    (r): r is string => typeof r === 'string' && r.length > 0,
+  );
+  const summary: GroupSummary = { ...base, shapiroWilk: sw.result };
+  delete summary.reason;
+  if (reasons.length > 0) summary.reason = reasons.join(' ');
+  return summary;
+}
+
+/** Compare two Samples (the core every entry point runs). */
+export function compareSamples(a: Sample, b: Sample, options: CompareOptions = {}): Comparison {
+  const opts = resolveOptions(options);
+  const mannWhitney = rankSum(a, b, { alternative: opts.alternative, exact: opts.exact });
+  const result: Comparison = {
+    groups: { a: summarize(a), b: summarize(b) },
+    welch: welchTest(a, b, opts),
+    student: studentTest(a, b, opts),
+    mannWhitney,
+    hodgesLehmann: hodgesLehmann(a, b, opts),
+    effectSizes: effectSizes(a, b, mannWhitney.u, opts.confidenceLevel),
+    robust: {
+      brunnerMunzel: brunnerMunzel(a, b, { alternative: opts.alternative }),
+      yuenWelch: yuenWelch(a, b, { alternative: opts.alternative, trim: 0.2 }),
+    },
+  };
+  return freezeDeep(result);
+}
+
+/**
+ * Compare the raw answers of two conditions. Inputs are not mutated; NaN or ±Infinity throws a
+ * RangeError naming the group and index (e.g. "a[3] is NaN").
+ */
+export function compare(a: ArrayLike<number>, b: ArrayLike<number>, options: CompareOptions = {}): Comparison {
+  resolveOptions(options);
+  return compareSamples(fromValues(a, 'a'), fromValues(b, 'b'), options);
+}
+
+/**
+ * Compare two conditions of a bounded integer item from per-value counts: counts[k] answers of the
+ * value min + k. Costs O(K) in the number of possible values, whatever the number of answers.
+ */
+export function compareCounts(
+  countsA: ArrayLike<number>,
+  countsB: ArrayLike<number>,
+  options: CompareOptions & { min?: number } = {},
+): Comparison {
+  const { min = 0, ...rest } = options;
+  resolveOptions(rest);
+  return compareSamples(fromCounts(countsA, min, 'countsA'), fromCounts(countsB, min, 'countsB'), rest);
+}
