@@ -1,0 +1,49 @@
+/**
+ * Open the SQLite database file with the pragmas the service relies on.
+ *
+ *  - journal_mode = WAL: readers never block the writer and the writer never blocks readers.
+ *  - synchronous = FULL: every commit is fsync'ed before it returns, so an acknowledged response survives a
+ *    process crash and a power loss (with NORMAL, WAL mode may lose the last commits on power loss).
+ *  - foreign_keys = ON: SQLite leaves them off unless asked, per connection.
+ *  - busy_timeout: wait (up to 5 s) for another connection's write lock, e.g. the `splitballot keys` CLI,
+ *    instead of failing at once with SQLITE_BUSY.
+ *
+ * The folder of the file is created if missing. ":memory:" works (journal_mode then stays "memory"), but the
+ * service and the tests use files.
+ */
+import { mkdirSync } from 'node:fs';
+import { dirname, resolve } from 'node:path';
+import Database from 'better-sqlite3';
+
+export type SqliteDatabase = Database.Database;
+
+export const BUSY_TIMEOUT_MS = 5000;
+
+export function openDatabase(path: string, options: { readonly?: boolean } = {}): SqliteDatabase {
+  const inMemory = path === ':memory:';
+  if (!inMemory && !options.readonly) mkdirSync(dirname(resolve(path)), { recursive: true });
+  const db = new Database(path, { readonly: options.readonly ?? false, fileMustExist: options.readonly ?? false });
+  try {
+    db.pragma(`busy_timeout = ${BUSY_TIMEOUT_MS}`);
+    if (!options.readonly) {
+      const mode = db.pragma('journal_mode = WAL', { simple: true });
+      if (!inMemory && mode !== 'wal') throw new Error(`could not switch ${path} to WAL mode (got ${String(mode)})`);
+    }
+    db.pragma('synchronous = FULL');
+    db.pragma('foreign_keys = ON');
+  } catch (err) {
+    db.close();
+    throw err;
+  }
+  return db;
+}
+
+/** Checkpoint the WAL into the main file and close. Used on graceful shutdown. */
+export function closeDatabase(db: SqliteDatabase): void {
+  if (!db.open) return;
+  try {
+    if (!db.readonly && db.name !== ':memory:') db.pragma('wal_checkpoint(TRUNCATE)');
+  } finally {
+    db.close();
+  }
+}

@@ -1,0 +1,77 @@
+/** Schemas of the ingest routes: one response, a batch, and what the service answers. */
+import { z } from 'zod';
+
+/** Client response ids: URL-safe, 1–128 characters (they appear in later URLs such as …/responses/{responseId}/exclusion). */
+export const RESPONSE_ID_PATTERN = /^[A-Za-z0-9][A-Za-z0-9._~:-]{0,127}$/;
+export const MAX_BATCH_ITEMS = 10_000;
+/** Body limits: one response (JSON or form) and a batch. */
+export const SINGLE_BODY_LIMIT = 1024 * 1024;
+export const BATCH_BODY_LIMIT = 16 * 1024 * 1024;
+
+const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]+$/;
+
+export const ResponseInputSchema = z
+  .strictObject({
+    responseId: z
+      .string()
+      .regex(RESPONSE_ID_PATTERN, 'must be 1–128 characters: letters, digits, ".", "_", "~", ":" or "-", starting with a letter or digit')
+      .optional()
+      .describe('Client id for safe retries: the same id with the same content is stored once. Generated when absent.'),
+    condition: z.string().max(200).describe('Id of the condition this respondent saw'),
+    respondent: z
+      .string()
+      .min(1)
+      .max(256)
+      .regex(NO_CONTROL_CHARS, 'must not contain control characters')
+      .nullable()
+      .optional()
+      .describe('Optional reference to the respondent (used for erasure requests); at most 256 characters'),
+    submittedAt: z.iso
+      .datetime({ offset: true, message: 'must be an ISO 8601 date-time with a time zone, e.g. 2027-03-01T12:00:00Z' })
+      .optional()
+      .describe('When the respondent submitted (client clock); defaults to the time the service received it'),
+    values: z
+      .record(z.string(), z.unknown())
+      .meta({
+        additionalProperties: { type: 'number' },
+        description:
+          'One finite number per measure id, within the measure\'s [min, max] and whole for integer measures. ' +
+          'A measure that is not required may be omitted or null. Numbers longer than 40 characters are refused.',
+      }),
+  })
+  .meta({ id: 'ResponseSubmission' });
+
+export const BatchInputSchema = z
+  .strictObject({
+    responses: z.array(ResponseInputSchema).min(1).max(MAX_BATCH_ITEMS),
+  })
+  .meta({ id: 'BatchSubmission' });
+
+/** What the handler validates the batch envelope with (items are checked one by one, so every problem is listed). */
+export const BatchEnvelopeSchema = z.strictObject({
+  responses: z
+    .array(z.unknown())
+    .min(1, 'must contain at least one response')
+    .max(MAX_BATCH_ITEMS, `must contain at most ${MAX_BATCH_ITEMS} responses`),
+});
+
+export const StoredResponseSchema = z
+  .object({
+    responseId: z.string(),
+    condition: z.string(),
+    respondent: z.string().nullable(),
+    values: z.record(z.string(), z.number()),
+    submittedAt: z.string(),
+    receivedAt: z.string(),
+  })
+  .meta({ id: 'StoredResponse' });
+
+export const BatchResultSchema = z
+  .object({
+    created: z.number().int().describe('Responses stored by this request'),
+    repeated: z.number().int().describe('Items that repeated an already stored response (same responseId and content)'),
+    responseIds: z.array(z.string()).describe('The responseId of every item, in input order (generated where absent)'),
+  })
+  .meta({ id: 'BatchResult' });
+
+export const ExperimentParams = z.object({ id: z.string().max(200) });

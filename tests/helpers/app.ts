@@ -1,0 +1,162 @@
+/**
+ * Shared test helpers: a temporary database file, an app built on it (buildApp, never listening unless a test
+ * asks supertest to), API keys, captured log lines, and the water-utility demo experiment (invented data).
+ */
+import { mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
+import { afterAll } from 'vitest';
+import { buildApp } from '../../server/app.js';
+import { generateSecret, hashSecret } from '../../server/auth.js';
+import type { Config } from '../../server/config.js';
+import { openSqliteStore, type SqliteStore } from '../../server/db/store.js';
+import type { Scope } from '../../server/db/types.js';
+
+export const WATER_ID = 'water-bill-2027';
+
+/** The demo experiment: does showing the bill first or the service first change how customers rate their water utility? */
+export function waterBillDefinition(overrides: Record<string, unknown> = {}): Record<string, unknown> {
+  return {
+    id: WATER_ID,
+    title: 'Water utility survey 2027: bill first or service first?',
+    conditions: [
+      { id: 'bill-first', label: 'The bill questions come first' },
+      { id: 'service-first', label: 'The service questions come first' },
+    ],
+    measures: [
+      { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
+      { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
+      { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
+    ],
+    plannedPerCondition: 400,
+    alpha: 0.05,
+    ...overrides,
+  };
+}
+
+const createdDirs: string[] = [];
+// Every temporary folder made by a test file is removed after that file's tests (registered when the file
+// imports this helper; vitest isolates each file, so each file gets its own list).
+afterAll(() => {
+  for (const dir of createdDirs.splice(0)) rmSync(dir, { recursive: true, force: true });
+});
+
+/** A new folder under os.tmpdir(), removed after the test file. */
+export function tempDir(prefix = 'splitballot-test-'): string {
+  const dir = mkdtempSync(join(tmpdir(), prefix));
+  createdDirs.push(dir);
+  return dir;
+}
+
+export function testConfig(dbPath: string, overrides: Partial<Config> = {}): Config {
+  return { port: 0, host: '127.0.0.1', dbPath, adminKeyHash: null, corsOrigins: [], logLevel: 'info', ...overrides };
+}
+
+/** Collects every log line the app writes. */
+export class LogCapture {
+  readonly lines: string[] = [];
+  write(line: string): void {
+    this.lines.push(line);
+  }
+  text(): string {
+    return this.lines.join('');
+  }
+  parsed(): Record<string, unknown>[] {
+    return this.lines.map((l) => JSON.parse(l) as Record<string, unknown>);
+  }
+}
+
+export interface TestApp {
+  app: FastifyInstance;
+  store: SqliteStore;
+  dir: string;
+  dbPath: string;
+  config: Config;
+  logs: LogCapture;
+  /** An admin key (made like `splitballot keys create --scope admin`). */
+  adminKey: string;
+  /** Authorization header for a secret. */
+  auth(secret: string): { authorization: string };
+  key(scope: Scope, experiment?: string | null, label?: string): Promise<string>;
+  /** app.inject with the admin key unless headers.authorization is given (use null to send none). */
+  request(opts: InjectOptions & { key?: string | null }): Promise<LightMyRequestResponse>;
+  createWater(overrides?: Record<string, unknown>): Promise<LightMyRequestResponse>;
+  /** Close the app and build a new one on the same file (a restart). */
+  restart(): Promise<void>;
+  close(): Promise<void>;
+}
+
+export async function createKey(store: SqliteStore, scope: Scope, experiment: string | null = null, label = ''): Promise<string> {
+  let experimentKey: number | null = null;
+  if (experiment !== null) {
+    const e = await store.experiments.getBySlug(experiment);
+    if (!e) throw new Error(`no experiment ${experiment}`);
+    experimentKey = e.key;
+  }
+  const secret = generateSecret();
+  await store.apiKeys.create({ hash: hashSecret(secret), scope, experimentKey, label, origin: 'cli', createdAt: new Date().toISOString() });
+  return secret;
+}
+
+export async function startTestApp(options: { config?: Partial<Config>; dir?: string } = {}): Promise<TestApp> {
+  const dir = options.dir ?? tempDir();
+  const dbPath = join(dir, 'splitballot.db');
+  const config = testConfig(dbPath, options.config);
+  const logs = new LogCapture();
+  let app = buildApp(config, { logStream: logs });
+  await app.ready();
+  const store = () => app.store as SqliteStore;
+  const adminKey = await createKey(store(), 'admin', null, 'test admin');
+  const t: TestApp = {
+    get app() {
+      return app;
+    },
+    get store() {
+      return store();
+    },
+    dir,
+    dbPath,
+    config,
+    logs,
+    adminKey,
+    auth: (secret) => ({ authorization: `Bearer ${secret}` }),
+    key: (scope, experiment = null, label = '') => createKey(store(), scope, experiment, label),
+    request: (opts) => {
+      const { key, ...rest } = opts;
+      const headers = { ...(rest.headers ?? {}) } as Record<string, string>;
+      if (key !== null && headers.authorization === undefined) headers.authorization = `Bearer ${key ?? adminKey}`;
+      return app.inject({ ...rest, headers });
+    },
+    createWater: (overrides = {}) =>
+      app.inject({ method: 'POST', url: '/v1/experiments', headers: { authorization: `Bearer ${adminKey}` }, payload: waterBillDefinition(overrides) }),
+    async restart() {
+      await app.close();
+      app = buildApp(config, { logStream: logs });
+      await app.ready();
+    },
+    async close() {
+      await app.close();
+      rmSync(dir, { recursive: true, force: true });
+    },
+  } as TestApp;
+  return t;
+}
+
+/** Every row of every application table, for "the database is unchanged" comparisons. */
+export function dumpTables(store: SqliteStore): Record<string, unknown[]> {
+  const tables = ['experiments', 'conditions', 'measures', 'responses', 'response_values', 'value_counts', 'rejected_value_counts', 'api_keys'];
+  const out: Record<string, unknown[]> = {};
+  for (const t of tables) out[t] = store.db.prepare(`SELECT * FROM ${t} ORDER BY 1, 2`).all();
+  return out;
+}
+
+/** Open the store of a file directly (e.g. after the app closed). */
+export function openStore(dbPath: string): SqliteStore {
+  return openSqliteStore(dbPath);
+}
+
+/** A valid response for the water experiment. */
+export function waterResponse(overrides: Record<string, unknown> = {}, values: Record<string, unknown> = {}): Record<string, unknown> {
+  return { condition: 'bill-first', values: { satisfaction: 7, trust: 5, fair_price: 42.5, ...values }, ...overrides };
+}
