@@ -22,6 +22,16 @@ import { experimentRoutes } from './routes/experiments.js';
 import { healthRoutes } from './routes/health.js';
 import { pageRoutes } from './routes/pages.js';
 import { responseRoutes } from './routes/responses.js';
+import { adminRoutes } from './routes/admin.js';
+import { assignmentRoutes } from './routes/assignments.js';
+import { comparisonRoutes } from './routes/comparisons.js';
+import { eventRoutes } from './routes/events.js';
+import { exclusionRoutes } from './routes/exclusions.js';
+import { exportRoutes } from './routes/exports.js';
+import { importRoutes } from './routes/imports.js';
+import { lookRoutes } from './routes/looks.js';
+import { planningRoutes } from './routes/planning.js';
+import { resultsPageRoutes } from './routes/results-page.js';
 import { SINGLE_BODY_LIMIT } from './schemas/responses.js';
 import { zodValidatorCompiler } from './schemas/validator.js';
 
@@ -134,6 +144,16 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(pageRoutes);
   app.register(experimentRoutes, { store });
   app.register(responseRoutes, { store });
+  app.register(comparisonRoutes, { store });
+  app.register(exclusionRoutes, { store });
+  app.register(lookRoutes, { store });
+  app.register(planningRoutes, { store });
+  app.register(assignmentRoutes, { store });
+  app.register(eventRoutes, { store });
+  app.register(exportRoutes, { store });
+  app.register(importRoutes, { store });
+  app.register(resultsPageRoutes, { store });
+  app.register(adminRoutes, { store });
 
   if (ownsStore) app.addHook('onClose', async () => store.close());
   return app;

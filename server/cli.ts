@@ -4,6 +4,7 @@
  */
 import { parseArgs } from 'node:util';
 import { buildApp } from './app.js';
+import { importCommand } from './commands/import.js';
 import { ensureAdminKey, generateSecret, hashSecret, SCOPES } from './auth.js';
 import { ConfigError, loadConfig, type Config } from './config.js';
 import { MigrationError } from './db/migrate.js';
@@ -292,6 +293,8 @@ export async function runCli(argv: string[], io: CliIo): Promise<number> {
         return await migrateCommand(rest, io);
       case 'keys':
         return await keysCommand(rest, io);
+      case 'import':
+        return await importCommand(rest, io);
       default:
         throw new UsageError(`unknown command "${command}"`);
     }

@@ -16,7 +16,7 @@
 import { describe } from './descriptives.js';
 import { effectSizes } from './effect-sizes.js';
 import { hodgesLehmann } from './hodges-lehmann.js';
-import { rankSum } from './rank-sum.js';
+import { analyseRankSum, rankSumFromAnalysis } from './rank-sum.js';
 import { brunnerMunzel, yuenWelch } from './robust.js';
 import { fromCounts, fromValues, type Sample } from './sample.js';
 import { shapiroWilk } from './shapiro-wilk.js';
@@ -68,13 +68,16 @@ function summarize(s: Sample): GroupSummary {
 /** Compare two Samples (the core every entry point runs). */
 export function compareSamples(a: Sample, b: Sample, options: CompareOptions = {}): Comparison {
   const opts = resolveOptions(options);
-  const mannWhitney = rankSum(a, b, { alternative: opts.alternative, exact: opts.exact });
+  // One rank analysis (U, tie-corrected variance, the exact distribution when used) serves both the
+  // rank-sum test and the Hodges–Lehmann interval.
+  const analysis = analyseRankSum(a, b, opts.exact);
+  const mannWhitney = rankSumFromAnalysis(analysis, opts.alternative);
   const result: Comparison = {
     groups: { a: summarize(a), b: summarize(b) },
     welch: welchTest(a, b, opts),
     student: studentTest(a, b, opts),
     mannWhitney,
-    hodgesLehmann: hodgesLehmann(a, b, opts),
+    hodgesLehmann: hodgesLehmann(a, b, { ...opts, analysis }),
     effectSizes: effectSizes(a, b, mannWhitney.u, opts.confidenceLevel),
     robust: {
       brunnerMunzel: brunnerMunzel(a, b, { alternative: opts.alternative }),

@@ -153,8 +153,8 @@ export class SqliteExperimentRepository implements ExperimentRepository {
     this.slugTaken = db.prepare<[string], { id: number }>(`SELECT id FROM experiments WHERE slug = ?`);
     this.dataVersion = db.prepare<[number], { data_version: number }>(`SELECT data_version FROM experiments WHERE id = ?`);
     this.valueCount = db.prepare<[number], { n: number }>(`SELECT count(*) AS n FROM response_values WHERE measure_id = ?`);
-    this.updateExperiment = db.prepare<[string, string, number | null, number, string | null, string, number]>(
-      `UPDATE experiments SET title = ?, status = ?, planned_per_condition = ?, alpha = ?, thank_you_url = ?, updated_at = ? WHERE id = ?`,
+    this.updateExperiment = db.prepare<[string, string, number | null, number, string | null, string, string, number]>(
+      `UPDATE experiments SET title = ?, status = ?, planned_per_condition = ?, alpha = ?, thank_you_url = ?, options = ?, updated_at = ? WHERE id = ?`,
     );
     this.updateMeasure = db.prepare<[string, number, number, number, number, number]>(
       `UPDATE measures SET label = ?, min = ?, max = ?, is_integer = ?, required = ? WHERE id = ?`,
@@ -226,6 +226,7 @@ export class SqliteExperimentRepository implements ExperimentRepository {
         patch.plannedPerCondition !== undefined ? patch.plannedPerCondition : current.plannedPerCondition,
         patch.alpha ?? current.alpha,
         patch.thankYouUrl !== undefined ? patch.thankYouUrl : current.thankYouUrl,
+        JSON.stringify(mergeOptions(current.options, patch.options)),
         now,
         key,
       );
@@ -255,4 +256,14 @@ export class SqliteExperimentRepository implements ExperimentRepository {
   async getDataVersion(experimentKey: number): Promise<number | null> {
     return this.dataVersion.get(experimentKey)?.data_version ?? null;
   }
+}
+
+/** Apply an options patch: each key is replaced; a null value removes the key. */
+function mergeOptions(current: Record<string, unknown>, patch: Record<string, unknown> | undefined): Record<string, unknown> {
+  const next: Record<string, unknown> = { ...current };
+  for (const [k, v] of Object.entries(patch ?? {})) {
+    if (v === null || v === undefined) delete next[k];
+    else next[k] = v;
+  }
+  return next;
 }

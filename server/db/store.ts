@@ -6,6 +6,7 @@ import { SqliteApiKeyRepository } from './api-keys.js';
 import { SqliteExperimentRepository } from './experiments.js';
 import { loadMigrations, migrate, migrationsCurrent, type Migration, type MigrateResult } from './migrate.js';
 import { closeDatabase, openDatabase, type SqliteDatabase } from './open.js';
+import { SqliteAssignmentRepository, SqliteLookRepository } from './monitoring.js';
 import { SqliteResponseRepository } from './responses.js';
 import type { Store } from './types.js';
 
@@ -38,6 +39,8 @@ export function openSqliteStore(path: string, options: { migrations?: Migration[
     experiments: new SqliteExperimentRepository(db),
     responses: new SqliteResponseRepository(db),
     apiKeys: new SqliteApiKeyRepository(db),
+    looks: new SqliteLookRepository(db),
+    assignments: new SqliteAssignmentRepository(db),
     async readiness() {
       try {
         ping.get();

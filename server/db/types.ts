@@ -13,6 +13,8 @@
  *  - for integer measures, per-value counts (by condition and excluded flag) match the stored values.
  */
 
+import type { AssignmentRepository, LookRepository } from './monitoring-types.js';
+
 export type Scope = 'admin' | 'ingest' | 'read';
 export type ExperimentStatus = 'open' | 'closed';
 
@@ -94,6 +96,8 @@ export interface ExperimentPatch {
   alpha?: number;
   thankYouUrl?: string | null;
   measures?: MeasurePatch[];
+  /** Keys to set in the definition's options (flagThresholds, …); a null value removes the key. */
+  options?: Record<string, unknown>;
 }
 
 export type CreateExperimentResult = { kind: 'created'; experiment: ExperimentRecord } | { kind: 'duplicate' };
@@ -251,6 +255,10 @@ export interface Store {
   experiments: ExperimentRepository;
   responses: ResponseRepository;
   apiKeys: ApiKeyRepository;
+  /** Interim looks (group-sequential monitoring); interfaces in monitoring-types.ts. */
+  looks: LookRepository;
+  /** Balanced, sticky assignment of respondents to conditions. */
+  assignments: AssignmentRepository;
   /** Database reachable and every known migration applied with its recorded checksum. */
   readiness(): Promise<{ ready: true; migrations: number } | { ready: false; reason: string }>;
   close(): Promise<void>;

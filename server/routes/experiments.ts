@@ -26,6 +26,9 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
     thankYouUrl: e.thankYouUrl,
+    flagThresholds: (e.options.flagThresholds as ExperimentView['flagThresholds']) ?? null,
+    monitoring: (e.options.monitoring as ExperimentView['monitoring']) ?? null,
+    allocation: (e.options.allocation as ExperimentView['allocation']) ?? null,
     dataVersion: e.dataVersion,
     createdAt: e.createdAt,
     updatedAt: e.updatedAt,
@@ -66,6 +69,11 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         plannedPerCondition: b.plannedPerCondition ?? null,
         alpha: b.alpha,
         thankYouUrl: b.thankYouUrl ?? null,
+        options: {
+          ...(b.flagThresholds ? { flagThresholds: b.flagThresholds } : {}),
+          ...(b.monitoring ? { monitoring: b.monitoring } : {}),
+          ...(b.allocation ? { allocation: b.allocation } : {}),
+        },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);
       reply.code(201).header('location', `/v1/experiments/${result.experiment.id}`);
@@ -128,7 +136,12 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         .filter(({ m }) => !e.measures.some((x) => x.id === m.id))
         .map(({ m, i }) => ({ path: `measures[${i}].id`, message: `is not a measure of this experiment`, value: m.id }));
       if (unknown.length > 0) throw new RequestValidationError('body', unknown);
-      const result = await store.experiments.update(e.key, patch, new Date().toISOString());
+      const { flagThresholds, ...rest } = patch;
+      const result = await store.experiments.update(
+        e.key,
+        { ...rest, ...(flagThresholds !== undefined ? { options: { flagThresholds } } : {}) },
+        new Date().toISOString(),
+      );
       switch (result.kind) {
         case 'updated':
           return experimentView(result.experiment);

@@ -48,6 +48,51 @@ function uniqueIds(items: { id: string }[], ctx: z.RefinementCtx, what: string):
   });
 }
 
+/** Per-experiment overrides of the quality-flag thresholds (defaults and sources: stats/flags.ts, README "Reading a comparison"). */
+export const FlagThresholdsSchema = z
+  .strictObject({
+    tukeyMultiplier: z.number().gt(0).max(100).optional().describe("Tukey's fence multiplier (default 1.5)"),
+    farOutMultiplier: z.number().gt(0).max(100).optional().describe('"Far out" fence multiplier (default 3)'),
+    madMultiplier: z.number().gt(0).max(100).optional().describe('Scaled MADs from the median (default 2.5)'),
+    normalityP: z.number().gt(0).lt(1).optional().describe('Shapiro–Wilk p below which non_normal is raised (default 0.05)'),
+    skewness: z.number().gt(0).max(100).optional().describe('|skewness| above which non_normal is raised beyond n = 5000 (default 1)'),
+    largeN: z.number().int().min(2).max(1_000_000_000).optional().describe('Group size from which non_normal is only info (default 100)'),
+    sdRatio: z.number().gt(1).max(1000).optional().describe('SD ratio above which unequal_variance is raised (default 2)'),
+    smallN: z.number().int().min(1).max(1_000_000).optional().describe('Group size below which small_sample is raised (default 20)'),
+    imbalanceRatio: z.number().gt(1).max(1000).optional().describe('Size ratio above which imbalanced is raised (default 1.5)'),
+    allocationP: z.number().gt(0).lt(1).optional().describe('Chi-square p below which allocation_mismatch is raised (default 0.001)'),
+    tieFraction: z.number().gt(0).lt(1).optional().describe('Share of tied answers above which heavy_ties is raised (default 0.5)'),
+    floorCeilingFraction: z.number().gt(0).lt(1).optional().describe('Share at a scale end above which floor_ceiling is raised (default 0.15)'),
+  })
+  .meta({ id: 'FlagThresholds' });
+
+/** Group-sequential monitoring: which Lan–DeMets spending function the recorded looks use. */
+export const MonitoringOptionSchema = z
+  .strictObject({
+    spending: z.enum(['obrien-fleming', 'pocock']).describe('Alpha-spending function for recorded interim looks'),
+  })
+  .meta({ id: 'MonitoringOption' });
+
+/** Planned allocation: a positive weight per condition id (equal when absent). */
+export const AllocationSchema = z
+  .record(z.string(), z.number().gt(0).max(1_000_000))
+  .describe('Planned allocation weight per condition id, e.g. {"bill-first": 1, "service-first": 1}; equal when absent');
+
+function checkAllocation(
+  allocation: Record<string, number> | null | undefined,
+  conditions: readonly { id: string }[],
+  ctx: z.RefinementCtx,
+): void {
+  if (!allocation) return;
+  const ids = new Set(conditions.map((c) => c.id));
+  for (const key of Object.keys(allocation)) {
+    if (!ids.has(key)) ctx.addIssue({ code: 'custom', path: ['allocation', key], message: `is not a condition of this experiment` });
+  }
+  for (const id of ids) {
+    if (!(id in allocation)) ctx.addIssue({ code: 'custom', path: ['allocation'], message: `needs a weight for every condition (missing "${id}")` });
+  }
+}
+
 export const ExperimentInputSchema = z
   .strictObject({
     id: Slug.describe('Lowercase slug, e.g. water-bill-2027'),
@@ -65,7 +110,11 @@ export const ExperimentInputSchema = z
     plannedPerCondition: z.number().int().min(1).max(1_000_000_000).nullable().optional().describe('Planned responses per condition'),
     alpha: z.number().gt(0).max(0.5).default(0.05).describe('Significance level for comparisons (default 0.05)'),
     thankYouUrl: HttpUrl.nullable().optional().describe('Where a browser is sent after a successful form post'),
+    flagThresholds: FlagThresholdsSchema.optional(),
+    monitoring: MonitoringOptionSchema.nullable().optional().describe('Group-sequential interim looks (POST …/looks) with this spending function'),
+    allocation: AllocationSchema.nullable().optional(),
   })
+  .superRefine((e, ctx) => checkAllocation(e.allocation, e.conditions, ctx))
   .meta({ id: 'ExperimentDefinition' });
 
 export const ExperimentPatchSchema = z
@@ -89,6 +138,7 @@ export const ExperimentPatchSchema = z
       .max(500)
       .optional()
       .describe("Changes to existing measures; min, max and integer cannot change once the measure has values"),
+    flagThresholds: FlagThresholdsSchema.nullable().optional().describe('Replaces the flag thresholds; null restores the defaults'),
   })
   .refine((p) => Object.keys(p).length > 0, { message: 'must change at least one field' })
   .meta({ id: 'ExperimentPatch' });
@@ -111,6 +161,9 @@ export const ExperimentSchema = z
     plannedPerCondition: z.number().int().nullable(),
     alpha: z.number(),
     thankYouUrl: z.string().nullable(),
+    flagThresholds: FlagThresholdsSchema.nullable(),
+    monitoring: MonitoringOptionSchema.nullable(),
+    allocation: z.record(z.string(), z.number()).nullable(),
     dataVersion: z.number().int().describe('Moves forward with every accepted response, exclusion or erasure'),
     createdAt: z.string(),
     updatedAt: z.string(),

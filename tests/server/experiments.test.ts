@@ -33,6 +33,9 @@ describe('POST /v1/experiments', () => {
       plannedPerCondition: 400,
       alpha: 0.05,
       thankYouUrl: null,
+      flagThresholds: null,
+      monitoring: null,
+      allocation: null,
       dataVersion: 0,
       createdAt: ISO,
       updatedAt: ISO,
@@ -214,5 +217,38 @@ describe('PATCH /v1/experiments/{id}', () => {
     expect(status.json().errors).toEqual([{ path: 'status', message: 'Invalid option: expected one of "open"|"closed"' }]);
     const missing = await t.request({ method: 'PATCH', url: '/v1/experiments/nope', payload: { title: 'x' } });
     expect(missing.statusCode).toBe(404);
+  });
+});
+
+describe('experiment options: flag thresholds, monitoring, allocation', () => {
+  it('stores them at creation and returns them; flagThresholds can be patched and reset', async () => {
+    const res = await t.request({ method: 'POST', url: '/v1/experiments', payload: {
+      id: 'options-check',
+      title: 'Options',
+      conditions: [{ id: 'x' }, { id: 'y' }],
+      measures: [{ id: 'm', min: 0, max: 10, integer: true }],
+      flagThresholds: { sdRatio: 3 },
+      monitoring: { spending: 'pocock' },
+      allocation: { x: 1, y: 2 },
+    } });
+    expect(res.statusCode).toBe(201);
+    expect(res.json()).toMatchObject({ flagThresholds: { sdRatio: 3 }, monitoring: { spending: 'pocock' }, allocation: { x: 1, y: 2 } });
+    const patched = await t.request({ method: 'PATCH', url: '/v1/experiments/options-check', payload: { flagThresholds: { smallN: 10 } } });
+    expect(patched.json()).toMatchObject({ flagThresholds: { smallN: 10 }, monitoring: { spending: 'pocock' } });
+    const reset = await t.request({ method: 'PATCH', url: '/v1/experiments/options-check', payload: { flagThresholds: null } });
+    expect(reset.json().flagThresholds).toBeNull();
+  });
+
+  it('an allocation that misses a condition or names an unknown one → 422, nothing stored', async () => {
+    const res = await t.request({ method: 'POST', url: '/v1/experiments', payload: {
+      id: 'bad-allocation',
+      title: 'Bad',
+      conditions: [{ id: 'x' }, { id: 'y' }],
+      measures: [{ id: 'm', min: 0, max: 10 }],
+      allocation: { x: 1, z: 1 },
+    } });
+    expect(res.statusCode).toBe(422);
+    expect(res.json().errors.map((e: { path: string }) => e.path).sort()).toEqual(['allocation', 'allocation.z']);
+    expect((await t.request({ method: 'GET', url: '/v1/experiments/bad-allocation' })).statusCode).toBe(404);
   });
 });
