@@ -7,10 +7,22 @@
  *
  * Reads for comparisons: getCounts / getValueCounts read value_counts (integer measures, O(distinct values));
  * getSortedValues walks the index (measure_id, condition_id, excluded, value) in order into a Float64Array
- * (O(n), no sort). With includeExcluded the two sorted runs (excluded = 0 and = 1) are merged in O(n).
+ * (O(n), no sort). With includeExcluded the two sorted runs (excluded = 0 and = 1) are merged in O(n). The
+ * snapshots also read the per-condition counters and the rejected-value counts in the same read transaction, so
+ * every data-dependent input of a comparison belongs to one dataVersion.
+ *
+ * Exclusion / restoration and erasure are each ONE write transaction (BEGIN IMMEDIATE) that keeps the invariants
+ * of DEVELOPERS.md: response flag and reason, response_values.excluded, value_counts moved between excluded 0 and 1
+ * (or decremented; rows reaching 0 are deleted, so value_counts always equals a GROUP BY over response_values),
+ * conditions.response_count / excluded_count, dataVersion + 1 and an audit row (audit.ts).
  */
+import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
 import type {
+  ComparisonStamp,
+  ConditionCounter,
+  ErasureOutcome,
+  ExclusionOutcome,
   IngestOutcome,
   MeasureSnapshot,
   RejectedCount,
@@ -73,6 +85,25 @@ export class SqliteResponseRepository implements ResponseRepository {
   private readonly measureDataVersion;
   private readonly ingestTx;
   private readonly rejectedTx;
+  private readonly conditionCounters;
+  private readonly rejectedOfMeasure;
+  private readonly rejectedTotalOf;
+  private readonly stampOf;
+  private readonly responseForExclusion;
+  private readonly integerValuesOf;
+  private readonly setResponseExcluded;
+  private readonly setValuesExcluded;
+  private readonly decrementCount;
+  private readonly deleteEmptyCount;
+  private readonly incrementCount;
+  private readonly bumpExcluded;
+  private readonly responsesOfRespondent;
+  private readonly deleteValuesOf;
+  private readonly deleteResponse;
+  private readonly dropCondition;
+  private readonly audit: AuditWriter;
+  private readonly exclusionTx;
+  private readonly erasureTx;
 
   constructor(private readonly db: SqliteDatabase) {
     this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
@@ -149,6 +180,121 @@ export class SqliteResponseRepository implements ResponseRepository {
     this.measureDataVersion = db
       .prepare<[number], number>(`SELECT e.data_version FROM experiments e JOIN measures m ON m.experiment_id = e.id WHERE m.id = ?`)
       .pluck();
+
+    this.conditionCounters = db
+      .prepare<[number], [number, number, number]>(
+        `SELECT c.id, c.response_count, c.excluded_count FROM conditions c JOIN measures m ON m.experiment_id = c.experiment_id
+         WHERE m.id = ? ORDER BY c.position`,
+      )
+      .raw();
+    this.rejectedOfMeasure = db.prepare<[number], { reason: RejectionReason; count: number }>(
+      `SELECT reason, count FROM rejected_value_counts WHERE measure_id = ? AND count > 0 ORDER BY reason`,
+    );
+    this.rejectedTotalOf = db
+      .prepare<[number], number>(
+        `SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r JOIN measures m ON m.experiment_id = r.experiment_id WHERE m.id = ?`,
+      )
+      .pluck();
+    this.stampOf = db.prepare<[number], { data_version: number; rejected: number }>(
+      `SELECT e.data_version, (SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r WHERE r.experiment_id = e.id) AS rejected
+       FROM experiments e WHERE e.id = ?`,
+    );
+    this.responseForExclusion = db.prepare<
+      [number, string],
+      { id: number; condition_id: number; condition: string; excluded: number; excluded_reason: string | null }
+    >(
+      `SELECT r.id, r.condition_id, c.slug AS condition, r.excluded, r.excluded_reason
+       FROM responses r JOIN conditions c ON c.id = r.condition_id WHERE r.experiment_id = ? AND r.response_id = ?`,
+    );
+    this.integerValuesOf = db
+      .prepare<[number], [number, number]>(
+        `SELECT v.measure_id, v.value FROM response_values v JOIN measures m ON m.id = v.measure_id
+         WHERE v.response_id = ? AND m.is_integer = 1`,
+      )
+      .raw();
+    this.setResponseExcluded = db.prepare<[number, string | null, number]>(`UPDATE responses SET excluded = ?, excluded_reason = ? WHERE id = ?`);
+    this.setValuesExcluded = db.prepare<[number, number]>(`UPDATE response_values SET excluded = ? WHERE response_id = ?`);
+    this.decrementCount = db.prepare<[number, number, number, number, number]>(
+      `UPDATE value_counts SET count = count - ? WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ?`,
+    );
+    this.deleteEmptyCount = db.prepare<[number, number, number, number]>(
+      `DELETE FROM value_counts WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND count = 0`,
+    );
+    this.incrementCount = db.prepare<[number, number, number, number, number]>(
+      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, ?, ?, ?)
+       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
+    );
+    this.bumpExcluded = db.prepare<[number, number]>(`UPDATE conditions SET excluded_count = excluded_count + ? WHERE id = ?`);
+    this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
+      `SELECT id, response_id, condition_id, excluded FROM responses WHERE experiment_id = ? AND respondent = ?`,
+    );
+    this.deleteValuesOf = db.prepare<[number]>(`DELETE FROM response_values WHERE response_id = ?`);
+    this.deleteResponse = db.prepare<[number]>(`DELETE FROM responses WHERE id = ?`);
+    this.dropCondition = db.prepare<[number, number, number]>(
+      `UPDATE conditions SET response_count = response_count - ?, excluded_count = excluded_count - ? WHERE id = ?`,
+    );
+    this.audit = new AuditWriter(db);
+
+    this.exclusionTx = db.transaction(
+      (experimentKey: number, responseId: string, change: { excluded: boolean; reason: string | null }, apiKeyId: number | null, at: string): ExclusionOutcome => {
+        const state = this.experimentState.get(experimentKey);
+        if (!state) return { kind: 'not-found' };
+        const row = this.responseForExclusion.get(experimentKey, responseId);
+        if (!row) return { kind: 'not-found' };
+        const target = change.excluded ? 1 : 0;
+        if (row.excluded === target) {
+          return {
+            kind: 'unchanged',
+            responseId,
+            condition: row.condition,
+            excluded: row.excluded === 1,
+            reason: row.excluded_reason,
+            dataVersion: state.data_version,
+          };
+        }
+        const from = row.excluded as 0 | 1;
+        const reason = change.excluded ? change.reason : null;
+        this.setResponseExcluded.run(target, reason, row.id);
+        this.setValuesExcluded.run(target, row.id);
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, from, target);
+        this.bumpExcluded.run(change.excluded ? 1 : -1, row.condition_id);
+        const dataVersion = this.bumpVersion.get(experimentKey) as number;
+        this.audit.record({
+          experimentKey,
+          action: change.excluded ? 'exclude' : 'restore',
+          responseId,
+          // A restoration records the reason the response had been excluded for.
+          reason: change.excluded ? change.reason : row.excluded_reason,
+          count: 1,
+          apiKeyId,
+          at,
+          dataVersion,
+        });
+        return { kind: 'changed', responseId, condition: row.condition, excluded: change.excluded, reason, dataVersion };
+      },
+    );
+
+    this.erasureTx = db.transaction((experimentKey: number, respondent: string, apiKeyId: number | null, at: string): ErasureOutcome => {
+      const state = this.experimentState.get(experimentKey);
+      if (!state) return { kind: 'not-found' };
+      const rows = this.responsesOfRespondent.all(experimentKey, respondent);
+      const perCondition = new Map<number, { responses: number; excluded: number }>();
+      for (const row of rows) {
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, row.excluded as 0 | 1, null);
+        this.deleteValuesOf.run(row.id);
+        this.deleteResponse.run(row.id);
+        this.audit.redactResponse(experimentKey, row.response_id);
+        const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
+        c.responses += 1;
+        c.excluded += row.excluded;
+        perCondition.set(row.condition_id, c);
+      }
+      for (const [conditionKey, c] of perCondition) this.dropCondition.run(c.responses, c.excluded, conditionKey);
+      const dataVersion = rows.length > 0 ? (this.bumpVersion.get(experimentKey) as number) : state.data_version;
+      // Only the count and the time (and the key that asked): nothing that identifies the respondent.
+      this.audit.record({ experimentKey, action: 'erase', responseId: null, reason: null, count: rows.length, apiKeyId, at, dataVersion });
+      return { kind: 'erased', erased: rows.length, dataVersion };
+    });
 
     this.ingestTx = db.transaction(
       (experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): IngestOutcome => {
@@ -328,15 +474,51 @@ export class SqliteResponseRepository implements ResponseRepository {
       const m = this.measureRow.get(measureKey);
       if (!m) throw new RangeError(`measure key ${measureKey} does not exist`);
       const dataVersion = this.dataVersionOfMeasure(measureKey);
-      return { dataVersion, groups: conditionKeys.map((c) => this.readSorted(measureKey, c, includeExcluded)) };
+      return { dataVersion, groups: conditionKeys.map((c) => this.readSorted(measureKey, c, includeExcluded)), ...this.snapshotContext(measureKey) };
     })();
   }
 
   async getCountsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): Promise<MeasureSnapshot> {
     return this.db.transaction((): MeasureSnapshot => {
       const dataVersion = this.dataVersionOfMeasure(measureKey);
-      return { dataVersion, groups: conditionKeys.map((c) => this.readDense(measureKey, c, includeExcluded)) };
+      return { dataVersion, groups: conditionKeys.map((c) => this.readDense(measureKey, c, includeExcluded)), ...this.snapshotContext(measureKey) };
     })();
+  }
+
+  /** Per-condition counters and rejected counts, read inside the caller's transaction. */
+  private snapshotContext(measureKey: number): Pick<MeasureSnapshot, 'conditions' | 'rejected' | 'rejectedTotal'> {
+    const conditions: ConditionCounter[] = this.conditionCounters.all(measureKey).map(([key, responses, excluded]) => ({ key, responses, excluded }));
+    return { conditions, rejected: this.rejectedOfMeasure.all(measureKey), rejectedTotal: this.rejectedTotalOf.get(measureKey) as number };
+  }
+
+  async getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null> {
+    const row = this.stampOf.get(experimentKey);
+    return row ? { dataVersion: row.data_version, rejectedTotal: row.rejected } : null;
+  }
+
+  /**
+   * Move one answer's per-value count from excluded = `from` to excluded = `to` (null: remove it, for erasure).
+   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values.
+   */
+  private moveCount(measureKey: number, conditionKey: number, value: number, from: 0 | 1, to: 0 | 1 | null): void {
+    const changed = this.decrementCount.run(1, measureKey, conditionKey, from, value).changes;
+    if (changed !== 1) throw new Error(`value_counts has no row for measure ${measureKey}, condition ${conditionKey}, excluded ${from}, value ${value}`);
+    this.deleteEmptyCount.run(measureKey, conditionKey, from, value);
+    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1);
+  }
+
+  async setExcluded(
+    experimentKey: number,
+    responseId: string,
+    change: { excluded: boolean; reason: string | null },
+    apiKeyId: number | null,
+    at: string,
+  ): Promise<ExclusionOutcome> {
+    return this.exclusionTx.immediate(experimentKey, responseId, change, apiKeyId, at);
+  }
+
+  async eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome> {
+    return this.erasureTx.immediate(experimentKey, respondent, apiKeyId, at);
   }
 
   private dataVersionOfMeasure(measureKey: number): number {

@@ -3,6 +3,7 @@
  * Everything SQLite-specific stays under server/db/.
  */
 import { SqliteApiKeyRepository } from './api-keys.js';
+import { SqliteAuditRepository } from './audit.js';
 import { SqliteExperimentRepository } from './experiments.js';
 import { loadMigrations, migrate, migrationsCurrent, type Migration, type MigrateResult } from './migrate.js';
 import { closeDatabase, openDatabase, type SqliteDatabase } from './open.js';
@@ -39,6 +40,7 @@ export function openSqliteStore(path: string, options: { migrations?: Migration[
     experiments: new SqliteExperimentRepository(db),
     responses: new SqliteResponseRepository(db),
     apiKeys: new SqliteApiKeyRepository(db),
+    audit: new SqliteAuditRepository(db),
     looks: new SqliteLookRepository(db),
     assignments: new SqliteAssignmentRepository(db),
     async readiness() {

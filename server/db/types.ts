@@ -171,11 +171,72 @@ export interface WeightedValues {
   counts: Float64Array;
 }
 
-/** A consistent read of one measure across several conditions (one read transaction). */
+/** Stored and excluded responses of one condition, as kept in the per-condition counters. */
+export interface ConditionCounter {
+  key: number;
+  responses: number;
+  excluded: number;
+}
+
+/**
+ * A consistent read of one measure across several conditions (one read transaction): the values, the dataVersion
+ * they belong to, and the other data-dependent inputs of a comparison's flags read in the same transaction.
+ */
 export interface MeasureSnapshot {
   dataVersion: number;
   /** One entry per requested condition key, in request order. */
   groups: Float64Array[];
+  /** Every condition of the measure's experiment, in definition order (allocation and excluded flags). */
+  conditions: ConditionCounter[];
+  /** Values of this measure refused at ingest, by reason (only reasons with a count). */
+  rejected: { reason: RejectionReason; count: number }[];
+  /** All values refused at ingest in this experiment (part of the comparison cache key; see getComparisonStamp). */
+  rejectedTotal: number;
+}
+
+/**
+ * What a cached comparison depends on besides the definition: the dataVersion, and the rejected-value total
+ * (refused values are counted without moving the dataVersion, yet they feed the out_of_range flag).
+ */
+export interface ComparisonStamp {
+  dataVersion: number;
+  rejectedTotal: number;
+}
+
+export type ExclusionOutcome =
+  | { kind: 'not-found' }
+  | {
+      /** changed = false: the response already was in the requested state; nothing was written. */
+      kind: 'changed' | 'unchanged';
+      responseId: string;
+      condition: string;
+      excluded: boolean;
+      /** The stored reason (null when not excluded). */
+      reason: string | null;
+      dataVersion: number;
+    };
+
+export type ErasureOutcome = { kind: 'not-found' } | { kind: 'erased'; erased: number; dataVersion: number };
+
+export type AuditAction = 'exclude' | 'restore' | 'erase';
+
+export interface AuditEntry {
+  id: number;
+  action: AuditAction;
+  /** The responseId for exclude/restore; null for erase and for rows redacted by a later erasure. */
+  responseId: string | null;
+  reason: string | null;
+  count: number;
+  /** The API key that made the change. */
+  apiKeyId: number | null;
+  at: string;
+  dataVersion: number;
+  redacted: boolean;
+}
+
+export interface AuditRepository {
+  /** Newest first, at most `limit` (default 1,000). */
+  list(experimentKey: number, limit?: number): Promise<AuditEntry[]>;
 }
 
 export interface ExperimentRepository {
@@ -213,6 +274,27 @@ export interface ResponseRepository {
   getCountsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): Promise<MeasureSnapshot>;
   /** How many values a measure has stored (all conditions, excluded included). */
   countValues(measureKey: number): Promise<number>;
+  /** One cheap query: the dataVersion and rejected-value total of an experiment (null if it does not exist). */
+  getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null>;
+  /**
+   * Exclude (excluded = true, with a reason) or restore (false) one response, in ONE write transaction: the
+   * response's flag and reason, its values' excluded flag, the per-value counts of integer measures (moved between
+   * excluded 0 and 1), the condition's excluded counter, dataVersion + 1 and an audit row. A response already in
+   * the requested state is left alone ("unchanged": no write, no audit row, dataVersion unchanged).
+   */
+  setExcluded(
+    experimentKey: number,
+    responseId: string,
+    change: { excluded: boolean; reason: string | null },
+    apiKeyId: number | null,
+    at: string,
+  ): Promise<ExclusionOutcome>;
+  /**
+   * Delete every response of one respondent with its values, in ONE write transaction: per-value counts and
+   * per-condition counters decremented, dataVersion + 1 (when anything was deleted), an audit row with only the
+   * count and time, and earlier audit rows of the erased responses redacted. 0 responses is not an error.
+   */
+  eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome>;
 }
 
 export interface ApiKeyRecord {
@@ -255,6 +337,8 @@ export interface Store {
   experiments: ExperimentRepository;
   responses: ResponseRepository;
   apiKeys: ApiKeyRepository;
+  /** The audit trail of exclusions, restorations and erasures. */
+  audit: AuditRepository;
   /** Interim looks (group-sequential monitoring); interfaces in monitoring-types.ts. */
   looks: LookRepository;
   /** Balanced, sticky assignment of respondents to conditions. */

@@ -1,0 +1,204 @@
+/**
+ * Schemas of the comparison routes: query strings and the reply, which mirrors stats' `Comparison` (stats/types.ts)
+ * field for field plus the service's envelope (experiment, measure, a, b, dataVersion, computedAt, flags,
+ * monitoring). Every object that can hold a null quantity also has an optional `reason` (the serializer keeps
+ * only declared fields, so a field missing here would silently vanish from the reply).
+ */
+import { z } from 'zod';
+
+const num = z.number();
+const nullableNum = z.number().nullable();
+const reason = z.string().optional().describe('Why a quantity above is null (plain sentence)');
+
+export const IntervalSchema = z
+  .object({
+    level: num.describe('Confidence level'),
+    lower: nullableNum.describe('Lower bound (null: unbounded, for a one-sided interval)'),
+    upper: nullableNum.describe('Upper bound (null: unbounded)'),
+    reason,
+  })
+  .meta({ id: 'Interval' });
+
+export const GroupSummarySchema = z
+  .object({
+    n: z.number().int(),
+    mean: nullableNum,
+    sd: nullableNum.describe('Standard deviation (n − 1)'),
+    median: nullableNum,
+    q1: nullableNum.describe('First quartile (type 7, as R and numpy)'),
+    q3: nullableNum,
+    iqr: nullableNum,
+    min: nullableNum,
+    max: nullableNum,
+    skewness: nullableNum.describe('g1 = m3 / m2^(3/2)'),
+    excessKurtosis: nullableNum.describe('g2 = m4 / m2² − 3'),
+    mad: nullableNum.describe("1.4826 · median absolute deviation (R's mad())"),
+    shapiroWilk: z.object({ w: num, p: num }).nullable().describe('Shapiro–Wilk W and p (3 ≤ n ≤ 5000)'),
+    reason,
+  })
+  .meta({ id: 'GroupSummary' });
+
+export const TTestSchema = z
+  .object({
+    t: nullableNum,
+    df: nullableNum,
+    p: nullableNum,
+    meanDifference: nullableNum.describe('mean(a) − mean(b)'),
+    se: nullableNum,
+    ci: IntervalSchema,
+    reason,
+  })
+  .meta({ id: 'TTest' });
+
+export const MannWhitneySchema = z
+  .object({
+    u: nullableNum.describe("U of a = #(a > b) + ½·#(a = b) (R's W, scipy's U1)"),
+    z: nullableNum,
+    p: nullableNum,
+    method: z.enum(['exact', 'normal']),
+    continuityCorrection: z.boolean(),
+    tieCorrection: z.boolean(),
+    reason,
+  })
+  .meta({ id: 'MannWhitney' });
+
+export const HodgesLehmannSchema = z
+  .object({
+    estimate: nullableNum.describe('Median of all pairwise differences a_i − b_j'),
+    ci: IntervalSchema.extend({ achievedLevel: nullableNum.describe('The level the interval really has (lattice of differences)') }),
+    reason,
+  })
+  .meta({ id: 'HodgesLehmann' });
+
+export const EffectSizesSchema = z
+  .object({
+    cohensD: nullableNum,
+    hedgesG: nullableNum,
+    hedgesGCi: IntervalSchema,
+    rankBiserial: nullableNum.describe('2U/(n_a·n_b) − 1'),
+    probabilityOfSuperiority: nullableNum.describe('U/(n_a·n_b) = P(A > B) + ½·P(A = B)'),
+    reason,
+  })
+  .meta({ id: 'EffectSizes' });
+
+export const RobustSchema = z
+  .object({
+    brunnerMunzel: z.object({ statistic: nullableNum, df: nullableNum, p: nullableNum, reason }),
+    yuenWelch: z.object({
+      trim: num,
+      t: nullableNum,
+      df: nullableNum,
+      p: nullableNum,
+      difference: nullableNum.describe('Trimmed mean of a − trimmed mean of b'),
+      reason,
+    }),
+  })
+  .meta({ id: 'RobustTests' });
+
+export const FlagSchema = z
+  .object({
+    code: z.enum([
+      'out_of_range',
+      'outliers',
+      'non_normal',
+      'unequal_variance',
+      'small_sample',
+      'imbalanced',
+      'allocation_mismatch',
+      'tests_disagree',
+      'influential_point',
+      'heavy_ties',
+      'floor_ceiling',
+      'interim',
+      'excluded',
+    ]),
+    severity: z.enum(['info', 'warning']),
+    message: z.string().describe('One to three plain sentences: what was seen and what it means for which test'),
+    detail: z.record(z.string(), z.unknown()).describe('The numbers behind the flag (counts, thresholds, values)'),
+  })
+  .meta({ id: 'Flag' });
+
+const comparisonShape = {
+  experiment: z.string(),
+  measure: z.string(),
+  a: z.string().describe('Condition a (every difference is a − b)'),
+  b: z.string().describe('Condition b'),
+  dataVersion: z.number().int().describe('The experiment data version these numbers belong to'),
+  computedAt: z.string().describe('When these numbers were computed (a cached result keeps its time)'),
+  groups: z.object({ a: GroupSummarySchema, b: GroupSummarySchema }),
+  welch: TTestSchema.describe("Welch's t-test (unequal variances)"),
+  student: TTestSchema.describe('Pooled-variance t-test, for reference'),
+  mannWhitney: MannWhitneySchema.describe('Wilcoxon–Mann–Whitney rank-sum test'),
+  hodgesLehmann: HodgesLehmannSchema,
+  effectSizes: EffectSizesSchema,
+  robust: RobustSchema,
+  flags: z.array(FlagSchema),
+  monitoring: z
+    .record(z.string(), z.unknown())
+    .nullable()
+    .describe('Interim monitoring that stays valid however often you look (null until available)'),
+};
+
+export const ComparisonSchema = z.object(comparisonShape).meta({
+  id: 'Comparison',
+  description: 'Both tests, estimates, effect sizes and quality flags for one measure and one pair of conditions',
+});
+
+export const AdjustedSchema = z
+  .object({
+    welchP: nullableNum.describe('Welch p adjusted across the whole family'),
+    mannWhitneyP: nullableNum.describe('Rank-sum p adjusted across the whole family'),
+    method: z.enum(['holm', 'bh', 'none']),
+  })
+  .meta({ id: 'AdjustedP' });
+
+export const FamilyEntrySchema = z.object({ ...comparisonShape, adjusted: AdjustedSchema }).meta({ id: 'FamilyComparison' });
+
+export const FamilySchema = z
+  .object({
+    experiment: z.string(),
+    dataVersion: z.number().int().describe('The data version every entry belongs to (see the README when they differ)'),
+    adjust: z.enum(['holm', 'bh', 'none']),
+    pairs: z.enum(['first', 'all']),
+    comparisons: z.array(FamilyEntrySchema),
+  })
+  .meta({ id: 'ComparisonFamily' });
+
+const includeExcluded = z
+  .enum(['true', 'false'])
+  .default('false')
+  .describe('true: excluded responses are counted in (default false: they are left out)');
+
+const commonQuery = {
+  alternative: z.enum(['two-sided', 'less', 'greater']).default('two-sided').describe('"greater": a tends to be larger than b'),
+  confidenceLevel: z.coerce
+    .number({ message: 'must be a number strictly between 0 and 1' })
+    .gt(0, 'must be a number strictly between 0 and 1')
+    .lt(1, 'must be a number strictly between 0 and 1')
+    .default(0.95).describe('Level of every interval, strictly between 0 and 1 (default 0.95)'),
+  includeExcluded,
+};
+
+export const ComparisonParams = z.object({ id: z.string().max(200), measure: z.string().max(200) });
+
+export const ComparisonQuery = z.strictObject({
+  a: z.string().max(200).optional().describe('Condition id; defaults to the first condition when the experiment has exactly two'),
+  b: z.string().max(200).optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
+  ...commonQuery,
+});
+
+export const ChartQuery = z.strictObject({
+  a: ComparisonQuery.shape.a,
+  b: ComparisonQuery.shape.b,
+  includeExcluded,
+});
+
+export const FamilyQuery = z.strictObject({
+  pairs: z.enum(['first', 'all']).default('first').describe('first: the first two conditions; all: every pair of conditions'),
+  adjust: z.enum(['holm', 'bh', 'none']).default('holm').describe('holm (Holm 1979, default), bh (Benjamini–Hochberg 1995) or none'),
+  ...commonQuery,
+});
+
+export type ComparisonBody = z.infer<typeof ComparisonSchema>;
+export type FamilyBody = z.infer<typeof FamilySchema>;
+export type FamilyEntry = z.infer<typeof FamilyEntrySchema>;
