@@ -72,6 +72,8 @@ export interface ComparisonTarget {
 interface Stamp {
   dataVersion: number;
   rejectedTotal: number;
+  /** Recorded interim looks of the experiment: a new look changes the monitoring block without moving dataVersion. */
+  looks?: number;
 }
 
 // ---------------------------------------------------------------------------------------------------------
@@ -260,7 +262,7 @@ export class ComparisonService {
   async stamp(experiment: ExperimentRecord): Promise<Stamp> {
     const s = await this.store.responses.getComparisonStamp(experiment.key);
     if (!s) throw new ProblemError('not-found', `There is no experiment ${quote(experiment.id)}.`);
-    return s;
+    return { ...s, looks: await this.store.looks.count(experiment.key) };
   }
 
   comparisonKey(t: ComparisonTarget, o: ComparisonOptions, s: Stamp): string {
@@ -279,6 +281,7 @@ export class ComparisonService {
       o.includeExcluded ? 1 : 0,
       s.dataVersion,
       s.rejectedTotal,
+      s.looks ?? 0,
     ].join('|');
   }
 
@@ -296,7 +299,7 @@ export class ComparisonService {
     const s = stamp ?? (await this.stamp(t.experiment));
     const value = await this.cached(this.comparisonKey(t, o, s), async () => {
       const { body, snapshot } = await this.computeComparison(t, o);
-      return { kind: 'comparison', key: this.comparisonKey(t, o, snapshot), body };
+      return { kind: 'comparison', key: this.comparisonKey(t, o, { ...snapshot, looks: s.looks }), body };
     });
     if (value.kind !== 'comparison') throw new Error('cache entry of the wrong kind');
     return { body: value.body, etag: tagOf(value.key) };
@@ -409,6 +412,8 @@ export class ComparisonService {
       b: { n: gb.n, mean: gb.mean, variance: gb.sd === null ? null : gb.sd * gb.sd },
       welch: { t: cmp.welch.t, df: cmp.welch.df },
       alpha: e.alpha,
+      dataVersion: snapshot.dataVersion,
+      includeExcluded: o.includeExcluded,
     });
     const body: ComparisonBody = {
       experiment: e.id,

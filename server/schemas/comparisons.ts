@@ -5,6 +5,7 @@
  * only declared fields, so a field missing here would silently vanish from the reply).
  */
 import { z } from 'zod';
+import { MonitoringSchema } from './monitoring.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -133,10 +134,7 @@ const comparisonShape = {
   effectSizes: EffectSizesSchema,
   robust: RobustSchema,
   flags: z.array(FlagSchema),
-  monitoring: z
-    .record(z.string(), z.unknown())
-    .nullable()
-    .describe('Interim monitoring that stays valid however often you look (null until available)'),
+  monitoring: MonitoringSchema.nullable().describe('Interim monitoring that stays valid however often you look'),
 };
 
 export const ComparisonSchema = z.object(comparisonShape).meta({

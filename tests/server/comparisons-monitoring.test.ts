@@ -11,7 +11,7 @@ const calls: MonitoringInput[] = [];
 vi.mock('../../server/monitoring.js', () => ({
   computeMonitoring: async (input: MonitoringInput) => {
     calls.push(input);
-    return { kind: 'double', looks: [] };
+    return { anytimeValid: null, groupSequential: null, caveat: 'recording double' };
   },
 }));
 
@@ -28,7 +28,7 @@ it('passes n, mean, variance = sd² of each group, Welch t/df and alpha; the rep
   const responses = [3, 5, 8, 9, 4, 6, 7, 2].map((v, i) => ({ condition: i % 2 ? 'service-first' : 'bill-first', values: { satisfaction: v, trust: 4, fair_price: 10 * v } }));
   expect((await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, payload: { responses } })).statusCode).toBe(201);
   const body = (await t.request({ method: 'GET', url: `/v1/experiments/${WATER_ID}/comparisons/fair_price` })).json();
-  expect(body.monitoring).toEqual({ kind: 'double', looks: [] });
+  expect(body.monitoring).toEqual({ anytimeValid: null, groupSequential: null, caveat: 'recording double' });
   expect(calls).toHaveLength(1);
   const input = calls[0];
   const e = (await t.store.experiments.getBySlug(WATER_ID))!;
