@@ -40,6 +40,7 @@
  * `reason`.
  *
  * Cost: O(K) for K distinct values (quantiles add O(log K) each); the Sample's construction is the caller's.
+ * scaledMoments(a, b) gives the moments the t tests and effect sizes share, so a caller computes them once.
  */
 
 import type { GroupSummary } from './types.js';
@@ -170,6 +171,23 @@ export function timesPowerOfTwo(x: number, k: number): number {
   return x * 2 ** half * 2 ** (k - half);
 }
 
+/**
+ * The moments the t tests and the effect sizes share: both groups' moments() after the same exact
+ * power-of-two rescaling (exponent = rescaleExponent(a, b)). Computed once by compareSamples and passed
+ * to welchTest, studentTest and effectSizes, which would otherwise each compute exactly this. O(K_a + K_b).
+ */
+export interface ScaledMoments {
+  exponent: number;
+  a: Moments;
+  b: Moments;
+}
+
+/** The ScaledMoments of two Samples (what welchTest, studentTest and effectSizes compute themselves). O(K_a + K_b). */
+export function scaledMoments(a: Sample, b: Sample): ScaledMoments {
+  const exponent = rescaleExponent(a, b);
+  return { exponent, a: moments(scaleSample(a, exponent)), b: moments(scaleSample(b, exponent)) };
+}
+
 /** The Sample with every value multiplied by 2^k (exact unless subnormal). O(K). */
 export function scaleSample(s: Sample, k: number): Sample {
   if (k === 0) return s;
@@ -262,11 +280,12 @@ const MAD_CONSTANT = 1.4826;
 
 /**
  * Summary of one group (everything in GroupSummary except the Shapiro–Wilk test, which shapiro-wilk.ts
- * adds). O(K).
+ * adds). O(K). `known`, when given, must be moments(s) of this very Sample (unscaled); its mean is then
+ * reused instead of recomputed (the same number, so the summary is the same).
  */
-export function describe(s: Sample): Omit<GroupSummary, 'shapiroWilk'> {
+export function describe(s: Sample, known?: Moments): Omit<GroupSummary, 'shapiroWilk'> {
   const k = rescaleExponent(s);
-  if (k === 0) return describeUnscaled(s);
+  if (k === 0) return describeUnscaled(s, known !== undefined && known.n === s.n ? known.mean : null);
   // Values beyond 2^±200: summarise the exactly rescaled data, then restore the units. A statistic that
   // does not fit in a double after all (an sd of 1e308-sized values) becomes null with a reason.
   // Order statistics come from the original values (type-7 interpolation cannot overflow and must not lose
@@ -305,7 +324,7 @@ export function describe(s: Sample): Omit<GroupSummary, 'shapiroWilk'> {
   return freezeDeep(out);
 }
 
-function describeUnscaled(s: Sample): Omit<GroupSummary, 'shapiroWilk'> {
+function describeUnscaled(s: Sample, knownMean: number | null = null): Omit<GroupSummary, 'shapiroWilk'> {
   const n = s.n;
   if (n === 0) {
     return freezeDeep({
@@ -325,7 +344,7 @@ function describeUnscaled(s: Sample): Omit<GroupSummary, 'shapiroWilk'> {
     });
   }
   const cum = cumulativeCounts(s);
-  const mean = sampleMean(s);
+  const mean = knownMean ?? sampleMean(s);
   const median = type7(s, cum, 0.5);
   const q1 = type7(s, cum, 0.25);
   const q3 = type7(s, cum, 0.75);

@@ -28,14 +28,15 @@
  * multiplied by an exact power of two before the variances are formed, and the difference, se and interval
  * are scaled back; t, df and p are unchanged by such scaling.
  *
- * Cost: O(K_a + K_b) for the moments; O(1) from moments (welchFromMoments / studentFromMoments), which lets
- * a caller recompute the test after removing one observation (leave-one-out) without touching the data.
+ * Cost: O(K_a + K_b) for the moments (none when welchTest / studentTest receive them precomputed, as from
+ * compareSamples); O(1) from moments (welchFromMoments / studentFromMoments), which lets a caller recompute
+ * the test after removing one observation (leave-one-out) without touching the data.
  */
 
 import type { Alternative, Interval, TTestResult } from './types.js';
 import { freezeDeep } from './types.js';
 import type { Sample } from './sample.js';
-import { moments, rescaleExponent, scaleSample, timesPowerOfTwo, type Moments } from './descriptives.js';
+import { scaledMoments, timesPowerOfTwo, type Moments, type ScaledMoments } from './descriptives.js';
 import { checkConfidenceLevel, pValue, studentQuantile, studentUpperTail } from './distributions.js';
 
 export interface TTestOptions {
@@ -165,19 +166,22 @@ function unscale(r: TTestResult, k: number): TTestResult {
   return freezeDeep({ ...r, meanDifference: back(r.meanDifference), se: back(r.se), ci });
 }
 
-function runScaled(a: Sample, b: Sample, opts: TTestOptions, test: typeof welchFromMoments): TTestResult {
+function runScaled(a: Sample, b: Sample, opts: TTestOptions, test: typeof welchFromMoments, known?: ScaledMoments): TTestResult {
   // Data near 1e-300 or 1e300 are rescaled by an exact power of two so that variances neither underflow
   // nor overflow; t, df and p are scale-free and the units are restored afterwards.
-  const k = rescaleExponent(a, b);
-  return unscale(test(moments(scaleSample(a, k)), moments(scaleSample(b, k)), opts), k);
+  const m = known ?? scaledMoments(a, b);
+  return unscale(test(m.a, m.b, opts), m.exponent);
 }
 
-/** Welch's unequal-variance t test of a − b. O(K_a + K_b). */
-export function welchTest(a: Sample, b: Sample, opts: TTestOptions): TTestResult {
-  return runScaled(a, b, opts, welchFromMoments);
+/**
+ * Welch's unequal-variance t test of a − b. O(K_a + K_b); O(1) when `known` (scaledMoments(a, b) of
+ * these very Samples, as compareSamples shares it) is given.
+ */
+export function welchTest(a: Sample, b: Sample, opts: TTestOptions, known?: ScaledMoments): TTestResult {
+  return runScaled(a, b, opts, welchFromMoments, known);
 }
 
-/** Student's pooled-variance t test of a − b. O(K_a + K_b). */
-export function studentTest(a: Sample, b: Sample, opts: TTestOptions): TTestResult {
-  return runScaled(a, b, opts, studentFromMoments);
+/** Student's pooled-variance t test of a − b. O(K_a + K_b); O(1) with `known` as for welchTest. */
+export function studentTest(a: Sample, b: Sample, opts: TTestOptions, known?: ScaledMoments): TTestResult {
+  return runScaled(a, b, opts, studentFromMoments, known);
 }

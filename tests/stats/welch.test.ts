@@ -312,12 +312,13 @@ describe('properties', () => {
             expect(ba.t).toBeNull();
             continue;
           }
-          expect(ba.t).toBe(-ab.t);
-          expect(ba.meanDifference).toBe(-(ab.meanDifference as number));
+          // Exact negation; `+ 0` folds −0 into +0 (equal means give t = 0 both ways).
+          expect((ba.t as number) + 0).toBe(-ab.t + 0);
+          expect((ba.meanDifference as number) + 0).toBe(-(ab.meanDifference as number) + 0);
           expect(ba.df).toBe(ab.df);
           expect(ba.p).toBe(ab.p);
-          expect(ba.ci.lower).toBe(-(ab.ci.upper as number));
-          expect(ba.ci.upper).toBe(-(ab.ci.lower as number));
+          expect((ba.ci.lower as number) + 0).toBe(-(ab.ci.upper as number) + 0);
+          expect((ba.ci.upper as number) + 0).toBe(-(ab.ci.lower as number) + 0);
           expect(run(b, a, { alternative: 'less', confidenceLevel: L }).p).toBe(run(a, b, { alternative: 'greater', confidenceLevel: L }).p);
         }
       }),
