@@ -7,6 +7,7 @@ export default defineConfig({
     testTimeout: 30_000,
     hookTimeout: 60_000,
     pool: 'forks',
+    setupFiles: ['tests/setup.ts'],
     reporters: ['default'],
   },
 });
