@@ -353,6 +353,35 @@ function text(x: number, y: number, content: string, attrs: Record<string, strin
   return `<text x="${c(x)}" y="${c(y)}"${a}>${escapeXml(content)}</text>`;
 }
 
+/** Characters of a condition label per line under its box (15-px bold system font in a 196-px band). */
+export const LABEL_LINE_CHARS = 21;
+
+/**
+ * A label as at most two lines of at most `max` characters, broken between words where possible; a longer label
+ * ends with "…" (the full label is in the chart's description and in the page's table).
+ */
+export function wrapLabel(label: string, max: number): string[] {
+  if (label.length <= max) return [label];
+  const lines: string[] = [];
+  let rest = label.trim();
+  while (rest.length > 0 && lines.length < 2) {
+    if (rest.length <= max) {
+      lines.push(rest);
+      rest = '';
+      break;
+    }
+    const cut = rest.lastIndexOf(' ', max);
+    const at = cut > max / 3 ? cut : max;
+    lines.push(rest.slice(0, at).trimEnd());
+    rest = rest.slice(at).trimStart();
+  }
+  if (rest.length > 0) {
+    const last = lines[lines.length - 1];
+    lines[lines.length - 1] = `${last.length >= max ? last.slice(0, max - 1).trimEnd() : last}…`;
+  }
+  return lines;
+}
+
 function svgOpen(id: string, width: number, height: number, kind: string, title: string, desc: string): string {
   return (
     `<svg xmlns="http://www.w3.org/2000/svg" class="sb-chart sb-${kind}" role="img" ` +
@@ -410,7 +439,11 @@ export function renderDistributionChart(input: DistributionChartInput): string {
   const ticks = niceTicks(scale.min, scale.max, 6, scale.integer);
   const tickStep = ticks.length > 2 ? ticks[2] - ticks[1] : scale.max - scale.min;
   const labelTop = plotBottom + 24;
-  const legendTop = labelTop + 62;
+  // Condition labels longer than one line (about 21 characters at this size in a 196-px band) wrap onto a
+  // second line, and everything below moves down by one line.
+  const labelLines = groups.map((g) => wrapLabel(g.label, LABEL_LINE_CHARS));
+  const extra = labelLines.some((l) => l.length > 1) ? 17 : 0;
+  const legendTop = labelTop + 62 + extra;
   const height = legendTop + 64;
 
   // Per-group drawn points and the summary sentence.
@@ -529,13 +562,14 @@ export function renderDistributionChart(input: DistributionChartInput): string {
     }
     // Label, n and (if any) the subsample note under the group.
     const cx = x0 + D.band / 2;
-    const label = g.label.length > 26 ? `${g.label.slice(0, 25)}…` : g.label;
     out.push(`<rect class="group-key" x="${c(cx - 6)}" y="${labelTop - 17}" width="12" height="4" fill="${colour}"/>`);
-    out.push(text(cx, labelTop + 2, label, { 'text-anchor': 'middle', 'font-size': 15, 'font-weight': 600, class: 'group-label' }));
-    out.push(text(cx, labelTop + 20, `n = ${formatCount(g.n)}`, { 'text-anchor': 'middle', 'font-size': 14, fill: MUTED, class: 'group-n' }));
+    labelLines[i].forEach((line, k) => {
+      out.push(text(cx, labelTop + 2 + 17 * k, line, { 'text-anchor': 'middle', 'font-size': 15, 'font-weight': 600, class: k === 0 ? 'group-label' : 'group-label group-label-more' }));
+    });
+    out.push(text(cx, labelTop + 20 + extra, `n = ${formatCount(g.n)}`, { 'text-anchor': 'middle', 'font-size': 14, fill: MUTED, class: 'group-n' }));
     if (d.subsampled) {
       out.push(
-        text(cx, labelTop + 37, `showing ${formatCount(d.pts.length)} of ${formatCount(d.totalN)} answers`, {
+        text(cx, labelTop + 37 + extra, `showing ${formatCount(d.pts.length)} of ${formatCount(d.totalN)} answers`, {
           'text-anchor': 'middle',
           'font-size': 11.5,
           fill: MUTED,

@@ -68,6 +68,12 @@ function h(tag, attrs = {}, ...children) {
   return el;
 }
 
+/** " = 0.031" or " < 0.001" after an italic p (never "p = < 0.001"). */
+function pIs(el) {
+  // No-break spaces keep "p < 0.001" and "p = 0.03" on one line.
+  return [(el.textContent || '').startsWith('<') ? '\u00a0' : '\u00a0=\u00a0', el];
+}
+
 /** One displayed number, marked for the browser test. */
 function num(measure, field, kind, value, extra = {}) {
   /** @type {Record<string, string>} */
@@ -262,7 +268,9 @@ function countFor(def, conditionId) {
     }
     return null;
   };
-  const counts = def.counts ?? def.countsPerCondition ?? def.responseCounts ?? null;
+  let counts = def.counts ?? def.countsPerCondition ?? def.responseCounts ?? null;
+  // The service answers counts: { responses, excluded, byCondition: [{ condition, responses, excluded }] }.
+  if (counts && typeof counts === 'object' && Array.isArray(counts.byCondition)) counts = counts.byCondition;
   if (Array.isArray(counts)) {
     const entry = counts.find((e) => e && (e.condition === conditionId || e.id === conditionId));
     if (entry) return pick(entry);
@@ -396,8 +404,8 @@ function comparisonTable(mid, cmp) {
     'td',
     { class: 'diff', 'data-label': diffLabel },
     line(h('span', { class: 'term', text: 'Mean difference ' }), n('welch.meanDifference', 'number'), ', ', num(mid, 'welch.ci.level', 'level', level), ' CI ', n('welch.ci', 'interval')),
-    line(h('span', { class: 'term', text: "Welch's t-test " }), 't = ', n('welch.t', 'number'), ', df = ', n('welch.df', 'number'), ', ', h('em', { text: 'p' }), ' = ', n('welch.p', 'p')),
-    line(h('span', { class: 'term term-secondary', text: 'Student t-test (pooled) ' }), h('em', { text: 'p' }), ' = ', n('student.p', 'p')),
+    line(h('span', { class: 'term', text: "Welch's t-test " }), 't = ', n('welch.t', 'number'), ', df = ', n('welch.df', 'number'), ', ', h('em', { text: 'p' }), ...pIs(n('welch.p', 'p'))),
+    line(h('span', { class: 'term term-secondary', text: 'Student t-test (pooled) ' }), h('em', { text: 'p' }), ...pIs(n('student.p', 'p'))),
   );
 
   const hlLevel = readPathLocal(cmp, 'hodgesLehmann.ci.level');
@@ -427,8 +435,7 @@ function comparisonTable(mid, cmp) {
       n('mannWhitney.u', 'number'),
       ', ',
       h('em', { text: 'p' }),
-      ' = ',
-      n('mannWhitney.p', 'p'),
+      ...pIs(n('mannWhitney.p', 'p')),
     ),
     line(h('span', { class: 'term-secondary', text: mwMethod })),
   );
@@ -492,9 +499,9 @@ function robustList(mid, cmp) {
     'dl',
     { class: 'facts robust' },
     h('dt', {}, 'Brunner–Munzel test', h('span', { class: 'help', text: 'rank test that allows unequal spreads' })),
-    h('dd', {}, h('em', { text: 'p' }), ' = ', n('robust.brunnerMunzel.p', 'p')),
+    h('dd', {}, h('em', { text: 'p' }), ...pIs(n('robust.brunnerMunzel.p', 'p'))),
     h('dt', {}, `Yuen's trimmed means${typeof trim === 'number' ? ` (${formatLevel(trim)} trimmed)` : ''}`),
-    h('dd', {}, 'difference ', n('robust.yuenWelch.difference', 'number'), ', ', h('em', { text: 'p' }), ' = ', n('robust.yuenWelch.p', 'p')),
+    h('dd', {}, 'difference ', n('robust.yuenWelch.difference', 'number'), ', ', h('em', { text: 'p' }), ...pIs(n('robust.yuenWelch.p', 'p'))),
   );
 }
 
@@ -599,8 +606,8 @@ function adjustedLine(mid, entry) {
     'p',
     { class: 'adjusted' },
     h('strong', { text: `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
-    "Welch ", h('em', { text: 'p' }), ' = ', num(mid, 'adjusted.welchP', 'p', adj.welchP, attrs),
-    ', rank-sum ', h('em', { text: 'p' }), ' = ', num(mid, 'adjusted.mannWhitneyP', 'p', adj.mannWhitneyP, attrs),
+    "Welch ", h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.welchP', 'p', adj.welchP, attrs)),
+    ', rank-sum ', h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.mannWhitneyP', 'p', adj.mannWhitneyP, attrs)),
   );
 }
 

@@ -1,0 +1,197 @@
+/**
+ * The results page in a real browser: playwright-core driving Debian's Chromium (no browser download) against
+ * the app listening on 127.0.0.1 with a seeded, invented water-utility experiment.
+ *
+ * Checks: a wrong key shows a clear message; with the read key every measure has its chart (SVG) and its table;
+ * every number the page shows equals the JSON API's value formatted by server/pages/format.js (the page marks
+ * each number with data-field / data-format); a response posted during the test arrives through the event
+ * stream and the page updates itself; no script or CSP errors. Screenshots: test-output/results-page*.png
+ * (git-ignored) and server/pages/screenshot.png (the README's picture).
+ *
+ * When Chromium is missing the tests are skipped and a banner says so (.ci/run installs it, so CI always runs them).
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { formatByKind, readPath } from '../../server/pages/format.js';
+import { startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
+
+const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+const OUTPUT = join(ROOT, 'test-output');
+const README_SCREENSHOT = join(ROOT, 'server', 'pages', 'screenshot.png');
+const MEASURES = ['satisfaction', 'trust', 'fair_price'];
+
+function findChromium(): string | null {
+  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
+  try {
+    const found = execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim();
+    return found || null;
+  } catch {
+    return null;
+  }
+}
+
+const CHROMIUM = findChromium();
+if (!CHROMIUM) {
+  const line = '!'.repeat(100);
+  console.warn(
+    `\n${line}\n!! SKIPPED tests/browser/results-page.test.ts: Chromium was not found (looked for /usr/bin/chromium and "chromium" on PATH).\n` +
+      `!! Install it with: apt-get install -y chromium   (.ci/run does this, so CI always runs the browser test)\n${line}\n`,
+  );
+}
+
+/** Deterministic invented answers (bill-first a little lower), with a few extreme fair prices. */
+function seedResponses(n: number) {
+  return Array.from({ length: n }, (_, i) => {
+    const bill = i % 2 === 0;
+    const wobble = ((i * 7919) % 13) - 6; // −6 … 6
+    return {
+      responseId: `seed-${i}`,
+      condition: bill ? 'bill-first' : 'service-first',
+      values: {
+        satisfaction: Math.max(0, Math.min(10, (bill ? 6 : 7) + Math.round(wobble / 3))),
+        trust: Math.max(1, Math.min(7, 4 + Math.round(((i * 31) % 7) - 3) / 2 + (bill ? 0 : 1))),
+        fair_price: i % 37 === 0 ? 190 : Math.round((35 + ((i * 17) % 29) - (bill ? 2 : 0)) * 10) / 10,
+      },
+    };
+  }).map((r) => ({ ...r, values: { ...r.values, trust: Math.round(r.values.trust) } }));
+}
+
+describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
+  let t: TestApp;
+  let base: string;
+  let readKey: string;
+  let context: BrowserContext;
+  let page: Page;
+  let profile: string;
+  const problems: string[] = [];
+
+  beforeAll(async () => {
+    t = await startTestApp({ config: { logLevel: 'warn' } });
+    expect((await t.createWater()).statusCode).toBe(201);
+    const batch = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, payload: { responses: seedResponses(160) } });
+    expect(batch.statusCode, batch.body).toBe(201);
+    readKey = await t.key('read', WATER_ID, 'browser test');
+    await t.app.listen({ port: 0, host: '127.0.0.1' });
+    const addr = t.app.server.address();
+    base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
+    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
+    context = await chromium.launchPersistentContext(profile, {
+      executablePath: CHROMIUM!,
+      headless: true,
+      viewport: { width: 1280, height: 900 },
+      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+    });
+    page = context.pages()[0] ?? (await context.newPage());
+    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
+    page.on('console', (msg) => {
+      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
+    });
+    mkdirSync(OUTPUT, { recursive: true });
+  }, 60_000);
+
+  afterAll(async () => {
+    await context?.close();
+    if (profile) rmSync(profile, { recursive: true, force: true });
+    await t?.close();
+  });
+
+  async function api(path: string) {
+    const res = await t.request({ method: 'GET', url: path, key: readKey });
+    expect(res.statusCode, `${path}: ${res.body}`).toBe(200);
+    return res.json();
+  }
+
+  it('a wrong key shows a clear message and the key form again', async () => {
+    await page.goto(`${base}/experiments/${WATER_ID}`);
+    await page.locator('#key-input').fill('sb_this-is-not-a-real-key');
+    await page.locator('#key-submit').click();
+    const error = page.locator('#key-error');
+    await error.waitFor({ state: 'visible', timeout: 10_000 });
+    expect(await error.textContent()).toContain('That key was not accepted (HTTP 401)');
+    expect(await page.locator('#key-panel').isVisible()).toBe(true);
+    // The key never appears in the address.
+    expect(page.url()).toBe(`${base}/experiments/${WATER_ID}`);
+    await page.screenshot({ path: join(OUTPUT, 'results-page-wrong-key.png') });
+    // The browser logs the refused request itself; that one is expected here.
+    expect(problems.filter((p) => !p.includes('status of 401'))).toEqual([]);
+    problems.length = 0;
+  });
+
+  it('with the read key: a chart and a table for every measure, and every number equals the API', async () => {
+    await page.locator('#key-input').fill(readKey);
+    await page.locator('#key-submit').click();
+    for (const m of MEASURES) {
+      await page.locator(`section.measure[data-measure="${m}"] .chart-distribution svg`).waitFor({ timeout: 15_000 });
+      expect(await page.locator(`section.measure[data-measure="${m}"] table`).count(), `${m} table`).toBeGreaterThan(0);
+    }
+    expect(page.url()).toBe(`${base}/experiments/${WATER_ID}`);
+
+    const definition = await api(`/v1/experiments/${WATER_ID}`);
+    const family = await api(`/v1/experiments/${WATER_ID}/comparisons?pairs=first&adjust=holm`);
+    let checked = 0;
+    for (const m of MEASURES) {
+      const json = await api(`/v1/experiments/${WATER_ID}/comparisons/${m}`);
+      const shown = await page.$$eval(`[data-measure="${m}"][data-field][data-format]`, (els) =>
+        els.map((el) => ({ field: el.getAttribute('data-field')!, format: el.getAttribute('data-format')!, source: el.getAttribute('data-source'), text: el.textContent ?? '' })),
+      );
+      const fromComparison = shown.filter((s) => s.source === null);
+      expect(fromComparison.length, `${m}: numbers marked for the test`).toBeGreaterThan(15);
+      for (const s of fromComparison) {
+        expect(s.text, `${m} ${s.field} (${s.format})`).toBe(formatByKind(s.format, readPath(json, s.field)));
+        checked++;
+      }
+      // The headline numbers are really there (not "—").
+      for (const field of ['groups.a.n', 'groups.b.n', 'groups.a.mean', 'welch.p', 'mannWhitney.p', 'welch.meanDifference', 'hodgesLehmann.estimate']) {
+        const s = fromComparison.find((x) => x.field === field);
+        expect(s, `${m}: ${field} is shown`).toBeDefined();
+        expect(s!.text, `${m}: ${field}`).not.toBe('—');
+      }
+      const entry = family.comparisons.find((c: { measure: string }) => c.measure === m);
+      for (const s of shown.filter((x) => x.source === 'family')) {
+        expect(s.text, `${m} family ${s.field}`).toBe(formatByKind(s.format, readPath(entry, s.field)));
+        checked++;
+      }
+    }
+    // Progress toward the planned size, from the definition.
+    const progress = await page.$$eval('[data-source="definition"][data-condition][data-field]', (els) =>
+      els.map((el) => ({ condition: el.getAttribute('data-condition')!, field: el.getAttribute('data-field')!, format: el.getAttribute('data-format'), text: el.textContent ?? '' })),
+    );
+    for (const p of progress.filter((x) => x.field === 'count')) {
+      const n = definition.counts.byCondition.find((c: { condition: string }) => c.condition === p.condition).responses;
+      expect(p.text, `progress ${p.condition}`).toBe(formatByKind(p.format ?? 'count', n));
+      checked++;
+    }
+    expect(progress.filter((x) => x.field === 'count')).toHaveLength(2);
+    expect(checked).toBeGreaterThan(60);
+
+    await page.screenshot({ path: join(OUTPUT, 'results-page.png'), fullPage: true });
+    await page.screenshot({ path: README_SCREENSHOT, clip: { x: 0, y: 0, width: 1280, height: 1500 }, fullPage: true });
+    expect(problems).toEqual([]);
+  }, 60_000);
+
+  it('a response posted now appears through the event stream, without reloading', async () => {
+    await page.locator('#live-status').filter({ hasText: 'Live: connected' }).waitFor({ timeout: 10_000 });
+    const nBefore = await page.locator('section.measure[data-measure="satisfaction"] [data-field="groups.a.n"]').first().textContent();
+    const posted = await t.request({
+      method: 'POST',
+      url: `/v1/experiments/${WATER_ID}/responses`,
+      payload: { responseId: 'live-1', condition: 'bill-first', values: { satisfaction: 10, trust: 7, fair_price: 50 } },
+    });
+    expect(posted.statusCode).toBe(201);
+    const after = (await api(`/v1/experiments/${WATER_ID}/comparisons/satisfaction`)).groups.a.n;
+    expect(formatByKind('count', after)).not.toBe(nBefore);
+    await page
+      .locator('section.measure[data-measure="satisfaction"] [data-field="groups.a.n"]')
+      .first()
+      .filter({ hasText: new RegExp(`^${formatByKind('count', after)}$`) })
+      .waitFor({ timeout: 10_000 });
+    const version = (await api(`/v1/experiments/${WATER_ID}`)).dataVersion;
+    await page.locator(`section.measure[data-measure="satisfaction"] [data-field="dataVersion"]`).filter({ hasText: String(version) }).waitFor({ timeout: 10_000 });
+    expect(problems).toEqual([]);
+  }, 30_000);
+});
