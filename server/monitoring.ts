@@ -164,9 +164,9 @@ function lookView(l: LookRecord): LookView {
 }
 
 export const CAVEAT =
-  'Read anytimeValid.running.p (and running.ci) while the study runs: it may be checked after every answer without ' +
-  'inflating false positives, and it never moves back. The nominal Welch and rank-sum p-values of the comparison ' +
-  'are valid only once, at the planned size. The always-valid p and confidence sequence are for the difference in ' +
+  'While the study runs, read the running always-valid p-value and its confidence sequence: they may be checked ' +
+  'after every answer without inflating false positives, and they never move back. The ordinary Welch and rank-sum ' +
+  'p-values are valid only once, at the planned size. The always-valid p and confidence sequence are for the difference in ' +
   'means (the Welch setting) and use the asymptotic normal-mixture sequence for every item, continuous or bounded ' +
   'integer; the betting confidence sequence for bounded items (Waudby-Smith & Ramdas 2024) is not implemented. ' +
   'Group-sequential looks are valid only if the study stops at the first crossed boundary and looks no more often ' +

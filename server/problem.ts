@@ -85,7 +85,7 @@ const FASTIFY_CODES: Record<string, ProblemName> = {
 };
 
 const DETAILS: Partial<Record<ProblemName, string>> = {
-  'payload-too-large': 'The request body is larger than this route accepts (1 MiB for one response, 16 MiB for a batch).',
+  'payload-too-large': 'The request body is larger than this route accepts (1 MiB for one response, 16 MiB for a batch, 2 MiB for a CSV import; larger files go through the import command).',
   'unsupported-media-type': 'Send application/json (or application/x-www-form-urlencoded for a single response from an HTML form).',
 };
 

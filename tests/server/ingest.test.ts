@@ -267,7 +267,7 @@ describe('validation: exact problem bodies, nothing stored', () => {
       type: 'urn:splitballot:problem:payload-too-large',
       title: 'Payload too large',
       status: 413,
-      detail: 'The request body is larger than this route accepts (1 MiB for one response, 16 MiB for a batch).',
+      detail: 'The request body is larger than this route accepts (1 MiB for one response, 16 MiB for a batch, 2 MiB for a CSV import; larger files go through the import command).',
     });
   });
 });
