@@ -9,7 +9,10 @@
  *   out_of_range       any value rejected at ingest for this item (count by reason)            — service bookkeeping
  *   outliers           Tukey's fences, 1.5·IQR ("far out" beyond 3·IQR)                         — Tukey (1977) Exploratory Data Analysis
  *                      or |x − median| > 2.5 scaled MADs                                       — Leys et al. (2013) doi:10.1016/j.jesp.2013.03.013
- *                      (a rule is skipped for a group whose IQR or MAD is 0: on a tied scale it would call every other answer an outlier)
+ *                      (a rule is skipped for a group whose IQR or MAD is 0: on a tied scale it would call every other answer an outlier;
+ *                      no outliers are flagged on a short rating scale — whole numbers, 11 points or fewer — where every
+ *                      point is a legitimate answer and the fences would call the scale's own ends outliers;
+ *                      floor_ceiling and heavy_ties describe such data instead — service rule)
  *   non_normal         Shapiro–Wilk p < 0.05 (3 ≤ n ≤ 5000), else |skewness| > 1               — Royston (1995); |skew| > 1: common practice, no source
  *                      severity info when both groups have n ≥ 100 (the t-test is then robust) — common practice (central limit theorem)
  *   unequal_variance   SD ratio > 2                                                            — common practice, no source
@@ -125,6 +128,13 @@ function countWhere(s: Sample, pred: (v: number) => boolean): number {
   let c = 0;
   for (let i = 0; i < s.values.length; i++) if (pred(s.values[i])) c += s.counts[i];
   return c;
+}
+
+/** Whole-number scales with at most this many points get no outlier flag (see the header). */
+export const SHORT_RATING_SCALE_POINTS = 11;
+
+function isShortRatingScale(scale: FlagContext['scale']): boolean {
+  return scale.integer && scale.max - scale.min + 1 <= SHORT_RATING_SCALE_POINTS;
 }
 
 function outlierFlag(cmp: Comparison, groups: GroupView[], t: FlagThresholds): Flag | null {
@@ -459,7 +469,7 @@ export function computeFlags(
       detail: { total: rejectedTotal, byReason: { ...rejected } },
     });
   }
-  push(outlierFlag(cmp, groups, t));
+  if (!isShortRatingScale(ctx.scale)) push(outlierFlag(cmp, groups, t));
   push(nonNormalFlag(cmp, groups, t));
   push(unequalVarianceFlag(cmp, groups, t));
   push(smallSampleFlag(cmp, groups, t));

@@ -158,12 +158,13 @@ describe('quality flags over HTTP', () => {
     const id = await experiment();
     await post(id, 'rating', fromCounts([0, 0, 0, 1, 2, 4, 6, 10, 14, 23, 40]), fromCounts([0, 0, 0, 0, 0, 1, 2, 5, 10, 22, 60]));
     const f = await flags(id, 'rating');
-    expect(codes(f)).toEqual(['outliers', 'non_normal', 'heavy_ties', 'floor_ceiling']);
-    expect((f[3].detail.groups as { fractionAtMax: number }[]).map((g) => g.fractionAtMax)).toEqual([0.4, 0.6]);
-    expect(f[2].detail.tieFraction).toBe(199 / 200);
+    // No outlier flag on an 11-point rating scale (stats/flags.ts: every point is a legitimate answer).
+    expect(codes(f)).toEqual(['non_normal', 'heavy_ties', 'floor_ceiling']);
+    expect((f[2].detail.groups as { fractionAtMax: number }[]).map((g) => g.fractionAtMax)).toEqual([0.4, 0.6]);
+    expect(f[1].detail.tieFraction).toBe(199 / 200);
     const spread = await experiment();
     await post(spread, 'rating', fromCounts([0, 0, 4, 8, 12, 20, 20, 15, 11, 5, 5]), fromCounts([0, 0, 3, 7, 12, 18, 22, 16, 12, 5, 5]));
-    expect(codes(await flags(spread, 'rating'))).toEqual(['outliers', 'non_normal', 'heavy_ties']);
+    expect(codes(await flags(spread, 'rating'))).toEqual(['non_normal', 'heavy_ties']);
   });
 
   it('out_of_range counts refused values by reason (outside the scale, not a whole number, not a number); absent without refusals', async () => {

@@ -106,23 +106,24 @@ describe('quality flags', () => {
 
   it('heavy_ties and floor_ceiling on a 0–10 rating piled at the top', () => {
     // counts of answers 0…10 (invented): 40 % of "bill-first" and 60 % of "service-first" answered 10.
-    // On such a scale the low answers (3, 4) are outliers by Tukey's and the MAD rule, and Shapiro–Wilk
-    // rejects normality (info: 100 answers per group).
+    // Shapiro–Wilk rejects normality (info: 100 answers per group). No outliers on an 11-point rating scale.
     const a = fromCounts([0, 0, 0, 1, 2, 4, 6, 10, 14, 23, 40], 0);
     const b = fromCounts([0, 0, 0, 0, 0, 1, 2, 5, 10, 22, 60], 0);
     const { flags } = flagsOf(a, b, ratingScale);
-    expect(codes(flags)).toEqual(['outliers', 'non_normal', 'heavy_ties', 'floor_ceiling']);
-    expect(flags[1].severity).toBe('info');
-    const fc = flags[3].detail as { groups: { condition: string; fractionAtMax: number }[] };
+    expect(codes(flags)).toEqual(['non_normal', 'heavy_ties', 'floor_ceiling']);
+    expect(flags[0].severity).toBe('info');
+    const fc = flags[2].detail as { groups: { condition: string; fractionAtMax: number }[] };
     expect(fc.groups.map((g) => g.fractionAtMax)).toEqual([0.4, 0.6]);
-    expect(flags[2].detail.distinctValues).toBe(8);
-    expect(flags[2].detail.tieFraction).toBe(199 / 200); // the single answer 3 is the only one without a twin
+    expect(flags[1].detail.distinctValues).toBe(8);
+    expect(flags[1].detail.tieFraction).toBe(199 / 200); // the single answer 3 is the only one without a twin
   });
 
   it('floor_ceiling is absent at 5 % on the bound', () => {
     const a = fromCounts([0, 0, 4, 8, 12, 20, 20, 15, 11, 5, 5], 0);
     const b = fromCounts([0, 0, 3, 7, 12, 18, 22, 16, 12, 5, 5], 0);
-    expect(codes(flagsOf(a, b, ratingScale).flags)).toEqual(['outliers', 'non_normal', 'heavy_ties']);
+    expect(codes(flagsOf(a, b, ratingScale).flags)).toEqual(['non_normal', 'heavy_ties']);
+    // The same answers on a 0–100 scale (scores 0…10 used as points of a wider scale) do get outlier rules.
+    expect(codes(flagsOf(a, b, { ...ratingScale, scale: { min: 0, max: 100, integer: true } }).flags)).toEqual(['outliers', 'non_normal', 'heavy_ties']);
   });
 
   it('outlier rules are skipped for a group whose IQR and MAD are 0 (a tied scale is not full of outliers)', () => {
