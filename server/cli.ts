@@ -1,12 +1,16 @@
 /**
- * The `splitballot` command line: serve, migrate, keys create/list/revoke, each with --help.
- * runCli() returns the exit code (0 ok, 1 failure, 2 usage error); server/main.ts is the executable wrapper.
+ * The `splitballot` command line: serve, migrate, keys create/list/revoke, import, backup, restore, check, each
+ * with --help. runCli() returns the exit code (0 ok, 1 failure, 2 usage error); server/main.ts is the executable
+ * wrapper. Long operations (backup, restore, check) write progress to stderr and one summary line to stdout.
  */
+import { existsSync } from 'node:fs';
+import { resolve } from 'node:path';
 import { parseArgs } from 'node:util';
 import { buildApp } from './app.js';
+import { acquireServerLock, BackupError, backupFile, checkFile, checkSummary, lockPathOf, restoreDatabase, type BackupProgress } from './backup.js';
 import { importCommand } from './commands/import.js';
 import { ensureAdminKey, generateSecret, hashSecret, SCOPES } from './auth.js';
-import { ConfigError, loadConfig, type Config } from './config.js';
+import { ConfigError, loadConfig, SHUTDOWN_GRACE_DEFAULT_MS, type Config } from './config.js';
 import { MigrationError } from './db/migrate.js';
 import { openSqliteStore, type SqliteStore } from './db/store.js';
 import type { Scope } from './db/types.js';
@@ -19,7 +23,8 @@ export interface CliIo {
   shutdownSignal?: Promise<string>;
 }
 
-export const SHUTDOWN_GRACE_MS = 10_000;
+/** Default bound on the wait for in-flight requests at shutdown (SPLITBALLOT_SHUTDOWN_TIMEOUT overrides). */
+export const SHUTDOWN_GRACE_MS = SHUTDOWN_GRACE_DEFAULT_MS;
 
 const ENVIRONMENT_HELP = `Environment:
   PORT                      port to listen on (default 8080)
@@ -27,6 +32,12 @@ const ENVIRONMENT_HELP = `Environment:
   SPLITBALLOT_DB            SQLite database file (default ./data/splitballot.db; the folder is created)
   SPLITBALLOT_ADMIN_KEY     optional: this exact secret (32+ characters) is accepted as an admin key
   SPLITBALLOT_CORS_ORIGINS  comma-separated browser origins allowed to call the API (default: none)
+  SPLITBALLOT_RATE_LIMIT_INGEST  ingest requests per minute per API key and client address (default 600; 0 = off)
+  SPLITBALLOT_REQUEST_TIMEOUT    seconds within which a whole request must arrive (default 60)
+  SPLITBALLOT_SHUTDOWN_TIMEOUT   seconds in-flight requests may take after SIGTERM (default 10)
+  SPLITBALLOT_BACKUP_DIR    folder for POST /v1/admin/backup (default: "backups" beside the database)
+  SPLITBALLOT_METRICS_TOKEN optional: a token (32+ characters) that may read GET /metrics and nothing else
+  SPLITBALLOT_TRUST_PROXY   proxies trusted for X-Forwarded-For: a hop count or addresses/CIDRs (default: none)
   LOG_LEVEL                 fatal, error, warn, info (default), debug, trace or silent`;
 
 const HELP: Record<string, string> = {
@@ -40,6 +51,10 @@ Commands:
   keys create           make an API key and print its secret once
   keys list             list API keys (never their secrets)
   keys revoke ID        revoke an API key at once
+  import                import responses from a CSV file
+  backup PATH           copy the database to PATH while the service keeps running
+  restore BACKUP        replace the database by a backup (the service must be stopped)
+  check                 verify the database: integrity and the stored counts
 
 Run "splitballot <command> --help" for a command's options.
 
@@ -50,7 +65,12 @@ ${ENVIRONMENT_HELP}
 Start the HTTP service on HOST:PORT with the database SPLITBALLOT_DB. Pending migrations are applied first;
 an edited or missing applied migration stops start-up. If no admin key is configured and none exists, one is
 created and printed once. SIGTERM or SIGINT stop it gracefully: no new connections, in-flight requests finish
-(up to ${SHUTDOWN_GRACE_MS / 1000} s), the WAL is checkpointed and the database closed.
+(up to SPLITBALLOT_SHUTDOWN_TIMEOUT, default ${SHUTDOWN_GRACE_MS / 1000} s), the WAL is checkpointed and the
+database closed; exit code 0 (1 when requests had to be cut off; a second signal cuts them off at once).
+
+While it runs, serve holds an exclusive lock on SPLITBALLOT_DB.lock: a second serve on the same database and
+"splitballot restore" refuse to start. The operating system releases the lock when the process ends, however
+it ends, so a crash never leaves a stale lock.
 
 ${ENVIRONMENT_HELP}
 `,
@@ -66,6 +86,28 @@ and exit. Refuses, changing nothing, when an applied migration was edited or is 
   keys revoke ID
 
 Run "splitballot keys <subcommand> --help" for details. Works on SPLITBALLOT_DB while the service runs.
+`,
+  backup: `Usage: splitballot backup PATH
+
+Copy SPLITBALLOT_DB to PATH with SQLite's online backup API. The service may keep running and ingesting: the
+copy is one consistent state that holds every response acknowledged before the backup started. PATH must not
+exist; the copy is written next to it under a temporary name and renamed when complete (and fsync'ed), then
+checked (integrity and counts). Progress on stderr, one summary line on stdout. Exit 0 ok, 1 failure.
+`,
+  restore: `Usage: splitballot restore BACKUP
+
+Replace SPLITBALLOT_DB by the backup file BACKUP. Refuses, changing nothing, when a server is running on the
+database (it holds SPLITBALLOT_DB.lock) or when the backup fails its check (integrity and counts). The current
+database (with its -wal file) is kept as SPLITBALLOT_DB.pre-restore-<time>; nothing is deleted. Progress on
+stderr, one summary line on stdout. Exit 0 ok, 1 refused or failed.
+`,
+  check: `Usage: splitballot check [--db FILE]
+
+Verify a database (default SPLITBALLOT_DB; --db to check a backup): PRAGMA integrity_check and
+foreign_key_check, then the counts the service keeps at ingest against the stored values: per-value counts
+(value_counts), per-condition response and excluded counters, each value's condition, excluded flag and limits,
+and every experiment's data version. Read-only; safe while the service runs. Prints one summary line; with
+problems, one line per problem on stderr and exit code 1.
 `,
   'keys create': `Usage: splitballot keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
 
@@ -233,20 +275,33 @@ async function serveCommand(args: string[], io: CliIo): Promise<number> {
     return 0;
   }
   const config = loadConfig(io.env);
-  const store = openStore(config);
+  const lock = acquireServerLock(config.dbPath);
+  if (lock === null) {
+    io.stderr.write(`splitballot: another splitballot process (serve or restore) is using ${config.dbPath} (it holds ${lockPathOf(config.dbPath)})\n`);
+    return 1;
+  }
+  let store: SqliteStore;
+  try {
+    store = openStore(config);
+  } catch (err) {
+    lock.release();
+    throw err;
+  }
   let secret: string | null;
   try {
     secret = await ensureAdminKey(store, config.adminKeyHash);
   } catch (err) {
     await store.close();
+    lock.release();
     throw err;
   }
-  const app = buildApp(config, { store });
+  const app = buildApp(config, { store, processMetrics: true });
   try {
     await app.listen({ port: config.port, host: config.host });
   } catch (err) {
     await app.close().catch(() => undefined);
     await store.close();
+    lock.release();
     io.stderr.write(`splitballot: cannot listen on ${config.host}:${config.port}: ${(err as Error).message}\n`);
     return 1;
   }
@@ -260,19 +315,136 @@ async function serveCommand(args: string[], io: CliIo): Promise<number> {
     );
   }
   const signal = await (io.shutdownSignal ?? defaultShutdownSignal());
-  app.log.info({ signal }, 'shutting down: finishing in-flight requests');
-  const timer = setTimeout(() => {
-    io.stderr.write(`splitballot: in-flight requests did not finish within ${SHUTDOWN_GRACE_MS / 1000} s; exiting\n`);
-    process.exit(1);
-  }, SHUTDOWN_GRACE_MS);
-  timer.unref();
+  const graceMs = config.shutdownGraceMs ?? SHUTDOWN_GRACE_MS;
+  app.log.info({ signal, graceMs }, 'shutting down: no new connections; finishing in-flight requests');
+  // Stop accepting, let in-flight requests finish (bounded), then close the database with a WAL checkpoint.
+  let forced = false;
+  const forceClose = (why: string) => {
+    if (forced) return;
+    forced = true;
+    app.log.warn({ why }, 'shutting down: cutting off the requests still in flight');
+    io.stderr.write(`splitballot: ${why}; closing the remaining connections\n`);
+    app.server.closeAllConnections();
+  };
+  const timer = setTimeout(() => forceClose(`in-flight requests did not finish within ${graceMs / 1000} s`), graceMs);
+  const again = (sig: string) => forceClose(`second ${sig}`);
+  process.once('SIGTERM', again);
+  process.once('SIGINT', again);
   try {
     await app.close();
   } finally {
-    await store.close();
     clearTimeout(timer);
+    process.removeListener('SIGTERM', again);
+    process.removeListener('SIGINT', again);
+    try {
+      await store.close();
+    } finally {
+      lock.release();
+    }
   }
-  return 0;
+  app.log.info({ forced }, 'shut down: database checkpointed and closed');
+  return forced ? 1 : 0;
+}
+
+function progressWriter(io: CliIo, what: string): (p: BackupProgress) => void {
+  let lastShown = -1;
+  return (p) => {
+    if (p.totalPages === 0) return;
+    const done = Math.floor(((p.totalPages - p.remainingPages) / p.totalPages) * 10) * 10;
+    if (done !== lastShown) {
+      lastShown = done;
+      io.stderr.write(`${what}: ${done}% of ${p.totalPages.toLocaleString('en-US')} pages\n`);
+    }
+  };
+}
+
+async function backupCommand(args: string[], io: CliIo): Promise<number> {
+  const { values, positionals } = parseArgs({ args, options: { help: { type: 'boolean', short: 'h' } }, strict: true, allowPositionals: true });
+  if (values.help) {
+    io.stdout.write(HELP.backup);
+    return 0;
+  }
+  if (positionals.length !== 1) throw new UsageError('backup needs one PATH (the file to write; it must not exist)');
+  const config = loadConfig(io.env);
+  const destination = resolve(positionals[0]);
+  if (existsSync(destination)) {
+    io.stderr.write(`splitballot: ${destination} already exists; choose a new file name\n`);
+    return 1;
+  }
+  io.stderr.write(`backing up ${config.dbPath} to ${destination}\n`);
+  try {
+    const progress = progressWriter(io, 'backup');
+    const result = await backupFile(config.dbPath, destination, { onProgress: progress });
+    progress({ totalPages: result.pages, remainingPages: 0 });
+    io.stderr.write(`checking the copy\n`);
+    const report = checkFile(result.path, (stage) => io.stderr.write(`check: ${stage}\n`));
+    const mib = (result.bytes / 1048576).toFixed(1);
+    if (!report.ok) {
+      for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
+      io.stdout.write(`backup written but its ${checkSummary(report, result.path)}\n`);
+      return 1;
+    }
+    io.stdout.write(
+      `backup ok: ${result.path} (${mib} MiB, ${result.pages.toLocaleString('en-US')} pages, ${report.counts.responses.toLocaleString('en-US')} responses ` +
+        `in ${report.counts.experiments} experiment${report.counts.experiments === 1 ? '' : 's'}) in ${(result.durationMs / 1000).toFixed(1)} s; integrity and counts checked\n`,
+    );
+    return 0;
+  } catch (err) {
+    if (err instanceof BackupError) {
+      io.stderr.write(`splitballot: ${err.message}\n`);
+      return 1;
+    }
+    throw err;
+  }
+}
+
+async function restoreCommand(args: string[], io: CliIo): Promise<number> {
+  const { values, positionals } = parseArgs({ args, options: { help: { type: 'boolean', short: 'h' } }, strict: true, allowPositionals: true });
+  if (values.help) {
+    io.stdout.write(HELP.restore);
+    return 0;
+  }
+  if (positionals.length !== 1) throw new UsageError('restore needs one BACKUP file');
+  const config = loadConfig(io.env);
+  try {
+    const r = await restoreDatabase(positionals[0], config.dbPath, {
+      onStage: (stage) => io.stderr.write(`restore: ${stage}\n`),
+      onProgress: progressWriter(io, 'restore: copy'),
+    });
+    io.stdout.write(
+      `restore ok: ${r.target} now holds ${resolve(positionals[0])} (${r.report.counts.responses.toLocaleString('en-US')} responses in ` +
+        `${r.report.counts.experiments} experiment${r.report.counts.experiments === 1 ? '' : 's'}; integrity and counts checked)` +
+        `${r.previous ? `; the previous database was kept as ${r.previous}` : ''} in ${(r.durationMs / 1000).toFixed(1)} s\n`,
+    );
+    return 0;
+  } catch (err) {
+    if (err instanceof BackupError) {
+      io.stderr.write(`splitballot: restore refused: ${err.message}\n`);
+      return 1;
+    }
+    throw err;
+  }
+}
+
+async function checkCommand(args: string[], io: CliIo): Promise<number> {
+  const { values } = parseArgs({ args, options: { db: { type: 'string' }, help: { type: 'boolean', short: 'h' } }, strict: true });
+  if (values.help) {
+    io.stdout.write(HELP.check);
+    return 0;
+  }
+  const path = values.db ?? loadConfig(io.env).dbPath;
+  try {
+    const report = checkFile(path, (stage) => io.stderr.write(`check: ${stage}\n`));
+    for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
+    io.stdout.write(`${checkSummary(report, path)}\n`);
+    return report.ok ? 0 : 1;
+  } catch (err) {
+    if (err instanceof BackupError) {
+      io.stderr.write(`splitballot: ${err.message}\n`);
+      return 1;
+    }
+    throw err;
+  }
 }
 
 export async function runCli(argv: string[], io: CliIo): Promise<number> {
@@ -295,6 +467,12 @@ export async function runCli(argv: string[], io: CliIo): Promise<number> {
         return await keysCommand(rest, io);
       case 'import':
         return await importCommand(rest, io);
+      case 'backup':
+        return await backupCommand(rest, io);
+      case 'restore':
+        return await restoreCommand(rest, io);
+      case 'check':
+        return await checkCommand(rest, io);
       default:
         throw new UsageError(`unknown command "${command}"`);
     }

@@ -4,6 +4,7 @@
  * here and the secret itself is not kept in the returned object.
  */
 import { createHash } from 'node:crypto';
+import { dirname, join, resolve } from 'node:path';
 import { z } from 'zod';
 
 export const LOG_LEVELS = ['fatal', 'error', 'warn', 'info', 'debug', 'trace', 'silent'] as const;
@@ -19,6 +20,33 @@ export interface Config {
   /** Exact origins allowed to call the API from a browser; empty = no cross-origin access. */
   corsOrigins: string[];
   logLevel: LogLevel;
+  /**
+   * Ingest requests allowed per minute for one (API key, client address) pair; 0 = no limit. A batch counts as
+   * one request. Optional so that code building a Config by hand keeps compiling: loadConfig() always sets it
+   * (SPLITBALLOT_RATE_LIMIT_INGEST, default 600); absent means no limit.
+   */
+  rateLimitIngestPerMinute?: number;
+  /** Whole-request timeout (headers and body must arrive within it), ms. Default REQUEST_TIMEOUT_DEFAULT_MS. */
+  requestTimeoutMs?: number;
+  /** Folder where POST /v1/admin/backup writes (never a path from the network). Default: "backups" beside the database. */
+  backupDir?: string;
+  /** SHA-256 of SPLITBALLOT_METRICS_TOKEN: a bearer token that may read GET /metrics and nothing else. */
+  metricsTokenHash?: Uint8Array | null;
+  /** Proxies whose X-Forwarded-For is trusted for the client address (fastify trustProxy); false = none. */
+  trustProxy?: false | number | string[];
+  /** Graceful shutdown: how long in-flight requests may take after SIGTERM, ms. Default SHUTDOWN_GRACE_DEFAULT_MS. */
+  shutdownGraceMs?: number;
+}
+
+export const RATE_LIMIT_INGEST_DEFAULT = 600;
+export const REQUEST_TIMEOUT_DEFAULT_MS = 60_000;
+export const SHUTDOWN_GRACE_DEFAULT_MS = 10_000;
+/** Minimum length of SPLITBALLOT_METRICS_TOKEN. */
+export const MIN_METRICS_TOKEN_LENGTH = 32;
+
+/** The backup folder in effect for a configuration. */
+export function backupDirOf(config: Pick<Config, 'backupDir' | 'dbPath'>): string {
+  return config.backupDir ?? join(dirname(resolve(config.dbPath)), 'backups');
 }
 
 export class ConfigError extends Error {
@@ -42,6 +70,18 @@ function parseOrigin(raw: string): string {
     throw new Error(`"${raw}" must be an origin only (scheme, host and optional port), without a path or trailing slash`);
   }
   return url.origin;
+}
+
+function wholeNumber(message: string, max: number, fallback: number, min = 0) {
+  return z.preprocess(
+    emptyToUndefined,
+    z
+      .string()
+      .regex(/^\d{1,10}$/, message)
+      .transform(Number)
+      .refine((n) => n >= min && n <= max, message)
+      .default(fallback),
+  );
 }
 
 const EnvSchema = z.object({
@@ -83,6 +123,36 @@ const EnvSchema = z.object({
         return out;
       }),
   ),
+  SPLITBALLOT_RATE_LIMIT_INGEST: wholeNumber('must be a whole number of requests per minute (0 turns the limit off)', 10_000_000, RATE_LIMIT_INGEST_DEFAULT),
+  SPLITBALLOT_REQUEST_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, REQUEST_TIMEOUT_DEFAULT_MS / 1000, 1),
+  SPLITBALLOT_SHUTDOWN_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, SHUTDOWN_GRACE_DEFAULT_MS / 1000, 1),
+  SPLITBALLOT_BACKUP_DIR: z.preprocess(emptyToUndefined, z.string().optional()),
+  SPLITBALLOT_METRICS_TOKEN: z.preprocess(
+    emptyToUndefined,
+    z
+      .string()
+      .min(MIN_METRICS_TOKEN_LENGTH, `must be at least ${MIN_METRICS_TOKEN_LENGTH} characters (for example the output of \`openssl rand -hex 32\`)`)
+      .regex(/^[\x21-\x7e]+$/, 'must be printable ASCII without spaces')
+      .optional(),
+  ),
+  SPLITBALLOT_TRUST_PROXY: z.preprocess(
+    emptyToUndefined,
+    z
+      .string()
+      .optional()
+      .transform((v, ctx): false | number | string[] => {
+        if (v === undefined || v === 'false' || v === '0') return false;
+        if (/^\d{1,2}$/.test(v)) return Number(v);
+        const parts = v.split(',').map((s) => s.trim()).filter((s) => s !== '');
+        for (const p of parts) {
+          if (!/^[0-9a-fA-F:.]+(\/\d{1,3})?$/.test(p)) {
+            ctx.addIssue({ code: 'custom', message: `must be a number of proxy hops or a comma-separated list of addresses/CIDR ranges ("${p}" is neither)` });
+            return z.NEVER;
+          }
+        }
+        return parts;
+      }),
+  ),
   LOG_LEVEL: z.preprocess(
     (v) => (typeof v === 'string' ? emptyToUndefined(v.toLowerCase()) : v),
     z.enum(LOG_LEVELS, { error: `must be one of ${LOG_LEVELS.join(', ')}` }).default('info'),
@@ -96,7 +166,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     const issue = result.error.issues[0];
     const name = String(issue.path[0] ?? 'environment');
     const raw = env[name];
-    const shown = name === 'SPLITBALLOT_ADMIN_KEY' || raw === undefined ? '' : ` (got ${JSON.stringify(raw)})`;
+    const shown = name === 'SPLITBALLOT_ADMIN_KEY' || name === 'SPLITBALLOT_METRICS_TOKEN' || raw === undefined ? '' : ` (got ${JSON.stringify(raw)})`;
     throw new ConfigError(`Configuration error: ${name} ${issue.message}${shown}`);
   }
   const e = result.data;
@@ -107,6 +177,12 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     adminKeyHash: e.SPLITBALLOT_ADMIN_KEY === undefined ? null : sha256(e.SPLITBALLOT_ADMIN_KEY),
     corsOrigins: e.SPLITBALLOT_CORS_ORIGINS,
     logLevel: e.LOG_LEVEL,
+    rateLimitIngestPerMinute: e.SPLITBALLOT_RATE_LIMIT_INGEST,
+    requestTimeoutMs: e.SPLITBALLOT_REQUEST_TIMEOUT * 1000,
+    shutdownGraceMs: e.SPLITBALLOT_SHUTDOWN_TIMEOUT * 1000,
+    backupDir: e.SPLITBALLOT_BACKUP_DIR === undefined ? undefined : resolve(e.SPLITBALLOT_BACKUP_DIR),
+    metricsTokenHash: e.SPLITBALLOT_METRICS_TOKEN === undefined ? null : sha256(e.SPLITBALLOT_METRICS_TOKEN),
+    trustProxy: e.SPLITBALLOT_TRUST_PROXY,
   };
 }
 
