@@ -178,6 +178,9 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
       ...(deps.logStream ? { stream: deps.logStream } : {}),
     },
     bodyLimit: SINGLE_BODY_LIMIT,
+    // Path parameters carry responseIds (up to 128 characters) and respondent references (up to 256, URL-encoded):
+    // fastify's default of 100 would answer 414 for ids that ingest accepted.
+    maxParamLength: 1024,
     requestTimeout,
     keepAliveTimeout: KEEP_ALIVE_TIMEOUT_MS,
     // Node checks request and header timeouts on this interval (default 30 s, far too coarse for a 1–60 s limit).

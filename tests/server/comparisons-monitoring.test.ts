@@ -51,7 +51,7 @@ it('passes n, mean, variance = sd² of each group, Welch t/df and alpha; the rep
 // KNOWN GAP: fastify's default maxParamLength (100) answers 414 (and not as problem+json) for a responseId of up to
 // 128 characters or a respondent of up to 256, which ingest accepts. server/app.ts (the lead's file) needs
 // `maxParamLength: 300` in the Fastify options; then remove `.fails` here.
-it.fails('long ids: a responseId of 128 characters and a respondent of 256 reach their routes', async () => {
+it('long ids: a responseId of 128 characters and a respondent of 256 reach their routes', async () => {
   const responseId = `r${'x'.repeat(127)}`;
   const respondent = `p${'y'.repeat(255)}`;
   const post = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, payload: { responseId, respondent, condition: 'bill-first', values: { satisfaction: 1, trust: 1, fair_price: 1 } } });

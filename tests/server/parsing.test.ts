@@ -113,11 +113,25 @@ describe('Accept negotiation', () => {
 
 describe('configuration', () => {
   it('defaults', () => {
-    expect(loadConfig({})).toEqual({ port: 8080, host: '127.0.0.1', dbPath: './data/splitballot.db', adminKeyHash: null, corsOrigins: [], logLevel: 'info' });
+    expect(loadConfig({})).toEqual({
+      port: 8080,
+      host: '127.0.0.1',
+      dbPath: './data/splitballot.db',
+      adminKeyHash: null,
+      corsOrigins: [],
+      logLevel: 'info',
+      rateLimitIngestPerMinute: 600,
+      requestTimeoutMs: 60_000,
+      shutdownGraceMs: 10_000,
+      backupDir: undefined,
+      metricsTokenHash: null,
+      trustProxy: false,
+    });
   });
 
-  it('reads every variable; keeps only the hash of the admin key', () => {
+  it('reads every variable; keeps only the hashes of the admin key and the metrics token', () => {
     const secret = 'x'.repeat(40);
+    const metricsToken = 'm'.repeat(40);
     const c = loadConfig({
       PORT: '9090',
       HOST: '0.0.0.0',
@@ -125,6 +139,11 @@ describe('configuration', () => {
       SPLITBALLOT_ADMIN_KEY: secret,
       SPLITBALLOT_CORS_ORIGINS: 'https://survey.example.org, http://localhost:5173',
       LOG_LEVEL: 'WARN',
+      SPLITBALLOT_RATE_LIMIT_INGEST: '120',
+      SPLITBALLOT_REQUEST_TIMEOUT: '30',
+      SPLITBALLOT_SHUTDOWN_TIMEOUT: '5',
+      SPLITBALLOT_BACKUP_DIR: '/var/backups/splitballot',
+      SPLITBALLOT_METRICS_TOKEN: metricsToken,
     });
     expect(c).toEqual({
       port: 9090,
@@ -133,8 +152,15 @@ describe('configuration', () => {
       adminKeyHash: sha256(secret),
       corsOrigins: ['https://survey.example.org', 'http://localhost:5173'],
       logLevel: 'warn',
+      rateLimitIngestPerMinute: 120,
+      requestTimeoutMs: 30_000,
+      shutdownGraceMs: 5_000,
+      backupDir: '/var/backups/splitballot',
+      metricsTokenHash: sha256(metricsToken),
+      trustProxy: false,
     });
     expect(JSON.stringify(c)).not.toContain(secret);
+    expect(JSON.stringify(c)).not.toContain(metricsToken);
   });
 
   it('a bad value stops with one line naming the variable', () => {
