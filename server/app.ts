@@ -180,7 +180,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     bodyLimit: SINGLE_BODY_LIMIT,
     // Path parameters carry responseIds (up to 128 characters) and respondent references (up to 256, URL-encoded):
     // fastify's default of 100 would answer 414 for ids that ingest accepted.
-    maxParamLength: 1024,
+    routerOptions: { maxParamLength: 1024 },
     requestTimeout,
     keepAliveTimeout: KEEP_ALIVE_TIMEOUT_MS,
     // Node checks request and header timeouts on this interval (default 30 s, far too coarse for a 1–60 s limit).
@@ -191,7 +191,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     trustProxy: (config.trustProxy ?? false) as boolean | string[],
     clientErrorHandler,
     // Errors the router raises before any route or hook runs (bad percent-encoding, a parameter longer than
-    // maxParamLength = 100): problem+json too, not fastify's bare JSON.
+    // routerOptions.maxParamLength = 1024): problem+json too, not fastify's bare JSON.
     frameworkErrors: (err, request, reply) => {
       const tooLong = (err as { code?: string }).code === 'FST_ERR_MAX_PARAM_LENGTH';
       for (const [name, value] of Object.entries(SECURITY_HEADERS)) reply.header(name, value);

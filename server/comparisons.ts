@@ -33,16 +33,51 @@ import { computeFlags, type FlagContext, type FlagThresholds } from '../stats/fl
 import { adjustPValues, type AdjustMethod } from '../stats/adjust.js';
 import { compareSamples, fromCounts, fromSortedValues, type Alternative, type Comparison, type Sample } from '../stats/index.js';
 import type { ConditionRecord, ExperimentRecord, MeasureRecord, MeasureSnapshot, Store } from './db/types.js';
-import { MAX_DENSE_COUNTS } from './db/responses.js';
+import { MAX_DENSE_COUNTS, type RunsSnapshot } from './db/responses.js';
+import { compareSorted, sharedComparePool, type ComparePool, type CompareResult } from './compare-worker.js';
+import { toShared } from './sorted-values-cache.js';
 import { computeMonitoring } from './monitoring.js';
 import { distributionGroupFromSample, renderDistributionChart } from './pages/charts.js';
 import { ProblemError } from './problem.js';
-import type { ComparisonBody, FamilyBody, FamilyEntry } from './schemas/comparisons.js';
+import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from './schemas/comparisons.js';
 import type { FieldError } from './schemas/common.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 1;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
+/**
+ * Continuous comparisons with at least this many values in both groups together are computed in a worker thread,
+ * and a snapshot whose uncached runs hold at least this many values is read there (server/compare-worker.ts).
+ * Below it the work takes a few milliseconds in-thread (tests/bench/comparisons.ts measures the crossover).
+ * SPLITBALLOT_COMPARE_WORKER_MIN overrides it (0: always a worker; a huge value: never).
+ */
+export const WORKER_MIN_VALUES = envWhole('SPLITBALLOT_COMPARE_WORKER_MIN', 10_000);
+
+function envWhole(name: string, fallback: number): number {
+  const raw = process.env[name];
+  if (raw === undefined || raw === '') return fallback;
+  const n = Number(raw);
+  return Number.isInteger(n) && n >= 0 ? n : fallback;
+}
+
+/** The cache-aware reads a SqliteResponseRepository offers beyond the Store interface (duck-typed). */
+interface SortedRunsReader {
+  fullReadEstimate(measureKey: number, conditionKeys: number[], includeExcluded: boolean): number;
+  adoptRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, snap: RunsSnapshot): MeasureSnapshot;
+  readonly databasePath: string | null;
+}
+
+function sortedRunsReader(store: Store): SortedRunsReader | null {
+  const r = store.responses as unknown as Partial<SortedRunsReader>;
+  return typeof r.fullReadEstimate === 'function' && typeof r.adoptRunsSnapshot === 'function' ? (r as SortedRunsReader) : null;
+}
+
+export interface ComparisonServiceOptions {
+  /** See WORKER_MIN_VALUES. */
+  workerMinValues?: number;
+  /** The worker pool (default: the process-wide one). */
+  pool?: ComparePool;
+}
 
 export interface ComparisonOptions {
   alternative: Alternative;
@@ -251,11 +286,23 @@ export class ComparisonService {
   readonly cache: LruCache<CachedValue>;
   private readonly inflight = new Map<string, Promise<CachedValue>>();
 
+  private readonly workerMinValues: number;
+  private readonly pool: ComparePool | null;
+  /** Where the heavy steps ran (tests and benchmarks). */
+  readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0 };
+
   constructor(
     private readonly store: Store,
     limits: { maxEntries: number; maxBytes: number } = DEFAULT_CACHE_LIMITS,
+    options: ComparisonServiceOptions = {},
   ) {
     this.cache = new LruCache(limits.maxEntries, limits.maxBytes);
+    this.workerMinValues = options.workerMinValues ?? WORKER_MIN_VALUES;
+    this.pool = options.pool ?? null;
+  }
+
+  private workerPool(): ComparePool {
+    return this.pool ?? sharedComparePool();
   }
 
   /** One cheap query: what the cached entries of this experiment depend on besides the definition. */
@@ -392,15 +439,79 @@ export class ComparisonService {
       const snapshot = await this.store.responses.getCountsSnapshot(t.measure.key, keys, includeExcluded);
       return { snapshot, a: fromCounts(snapshot.groups[0], t.measure.min, 'a'), b: fromCounts(snapshot.groups[1], t.measure.min, 'b') };
     }
-    const snapshot = await this.store.responses.getSortedValuesSnapshot(t.measure.key, keys, includeExcluded);
+    const snapshot = await this.readSortedSnapshot(t, includeExcluded);
     return { snapshot, a: fromSortedValues(snapshot.groups[0], 'a'), b: fromSortedValues(snapshot.groups[1], 'b') };
+  }
+
+  /**
+   * The sorted snapshot of a continuous measure. getSortedValuesSnapshot serves it from the repository's
+   * sorted-values cache (merging the rows that arrived since); only when runs of at least workerMinValues values
+   * must be read whole (first read, or after an exclusion or erasure) are they read in a worker thread and adopted
+   * into the cache.
+   */
+  private async readSortedSnapshot(t: ComparisonTarget, includeExcluded: boolean): Promise<MeasureSnapshot> {
+    const keys = [t.a.key, t.b.key];
+    const reader = sortedRunsReader(this.store);
+    if (reader && reader.fullReadEstimate(t.measure.key, keys, includeExcluded) >= this.workerMinValues) {
+      const dbPath = reader.databasePath;
+      if (dbPath) {
+        const runs = await this.workerPool().runOr<RunsSnapshot | null>(
+          { kind: 'read', dbPath, measureKey: t.measure.key, conditionKeys: keys, includeExcluded },
+          () => null,
+        );
+        if (runs) {
+          this.paths.workerReads++;
+          return reader.adoptRunsSnapshot(t.measure.key, keys, includeExcluded, runs);
+        }
+      }
+    }
+    return this.store.responses.getSortedValuesSnapshot(t.measure.key, keys, includeExcluded);
+  }
+
+  /** Stats and flags of a comparison: in a worker for large continuous groups, else in-thread. */
+  private async compareAndFlag(
+    t: ComparisonTarget,
+    o: ComparisonOptions,
+    snapshot: MeasureSnapshot,
+  ): Promise<CompareResult & { a: Sample | null; b: Sample | null }> {
+    const ctx = flagContext(t, snapshot, o.includeExcluded);
+    if (useCounts(t.measure)) {
+      const a = fromCounts(snapshot.groups[0], t.measure.min, 'a');
+      const b = fromCounts(snapshot.groups[1], t.measure.min, 'b');
+      const cmp = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
+      this.paths.inThreadComputes++;
+      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), a, b };
+    }
+    const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : toShared(x));
+    const big = snapshot.groups[0].length + snapshot.groups[1].length >= this.workerMinValues;
+    const task = {
+      a: big ? shared(snapshot.groups[0]) : snapshot.groups[0],
+      b: big ? shared(snapshot.groups[1]) : snapshot.groups[1],
+      alternative: o.alternative,
+      confidenceLevel: o.confidenceLevel,
+      flagContext: ctx,
+    };
+    if (big) {
+      let inThread = false;
+      const r = await this.workerPool().runOr<CompareResult>({ kind: 'compare', ...task }, () => {
+        inThread = true;
+        return compareSorted(task);
+      });
+      if (inThread) this.paths.inThreadComputes++;
+      else this.paths.workerComputes++;
+      return { ...r, a: null, b: null };
+    }
+    this.paths.inThreadComputes++;
+    return { ...compareSorted(task), a: null, b: null };
   }
 
   private async computeComparison(t: ComparisonTarget, o: ComparisonOptions): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot }> {
     const { experiment: e, measure: m } = t;
-    const { snapshot, a, b } = await this.readSamples(t, o.includeExcluded);
-    const cmp: Comparison = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
-    const flags = computeFlags(cmp, { a, b }, flagContext(t, snapshot, o.includeExcluded), o.alternative);
+    const keys = [t.a.key, t.b.key];
+    const snapshot = useCounts(m)
+      ? await this.store.responses.getCountsSnapshot(m.key, keys, o.includeExcluded)
+      : await this.readSortedSnapshot(t, o.includeExcluded);
+    const { cmp, flags } = await this.compareAndFlag(t, o, snapshot);
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
     const monitoring = await computeMonitoring({
@@ -478,8 +589,63 @@ export function comparisonServiceFor(store: Store): ComparisonService {
   if (!s) {
     s = new ComparisonService(store);
     services.set(store, s);
+    if (!warmedUp && process.env.VITEST === undefined && process.env.NODE_ENV !== 'test') {
+      warmedUp = true;
+      setImmediate(warmUp);
+    }
   }
   return s;
+}
+
+let warmedUp = false;
+
+/**
+ * Once per served process: run the stats code on small invented samples, in-thread and in a worker (which starts
+ * it), so that the first real comparison after a restart does not also pay for V8's lazy compilation and the
+ * worker's start-up (~0.1–0.3 s measured by tests/bench/comparisons.ts "cold"). Failures are ignored.
+ */
+function warmUp(): void {
+  try {
+    // A 0–100 item with ~2,000 answers per group, through stats, the flags and the reply's schema (zod compiles
+    // its fast path on first use: ~50 ms measured on the first reply otherwise).
+    const counts = Array.from({ length: 101 }, (_, k) => Math.round(40 * Math.exp(-(((k - 50) / 18) ** 2) / 2)));
+    const a = fromCounts(counts, 0, 'a');
+    const b = fromCounts(counts.slice().reverse().map((c, k) => c + (k % 3)), 0, 'b');
+    const ctx: FlagContext = { alpha: 0.05, labels: { a: 'a', b: 'b' }, scale: { min: 0, max: 100, integer: true } };
+    const cmp = compareSamples(a, b);
+    const flags = computeFlags(cmp, { a, b }, ctx);
+    ComparisonSchema.safeParse({
+      experiment: 'warm-up',
+      measure: 'warm-up',
+      a: 'a',
+      b: 'b',
+      dataVersion: 0,
+      computedAt: new Date().toISOString(),
+      groups: cmp.groups,
+      welch: cmp.welch,
+      student: cmp.student,
+      mannWhitney: cmp.mannWhitney,
+      hodgesLehmann: cmp.hodgesLehmann,
+      effectSizes: cmp.effectSizes,
+      robust: cmp.robust,
+      flags,
+      monitoring: null,
+    });
+    const n = 2000;
+    const x = new Float64Array(new SharedArrayBuffer(n * 8));
+    const y = new Float64Array(new SharedArrayBuffer(n * 8));
+    for (let i = 0; i < n; i++) {
+      x[i] = i / n;
+      y[i] = (i + 0.5) / n;
+    }
+    const task = { a: x, b: y, alternative: 'two-sided' as const, confidenceLevel: 0.95, flagContext: { ...ctx, scale: { min: 0, max: 1, integer: false } } };
+    compareSorted(task);
+    void sharedComparePool()
+      .run({ kind: 'compare', ...task })
+      .catch(() => undefined);
+  } catch {
+    // a warm-up is an optimisation only
+  }
 }
 
 /**

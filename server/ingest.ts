@@ -21,7 +21,7 @@ import type { ExperimentRecord, MeasureRecord, RejectedIncrement, RejectionReaso
 import { OverlongNumber } from './json-body.js';
 import { FormNumberFailure, parseFormNumber } from './numbers.js';
 import { echoValue, formatPath, type FieldError } from './schemas/common.js';
-import { BatchEnvelopeSchema, ResponseInputSchema } from './schemas/responses.js';
+import { BatchEnvelopeSchema, RESPONSE_ID_PATTERN, ResponseInputSchema } from './schemas/responses.js';
 import { zodFieldErrors } from './schemas/validator.js';
 
 /** Name of the form field that may carry an ingest key (never an admin or read key). */
@@ -90,12 +90,52 @@ export function contentHash(condition: string, respondent: string | null, values
   return new Uint8Array(createHash('sha256').update(canonical, 'utf8').digest());
 }
 
+/** Conditions and measures of an experiment by id, made once per experiment record (records are not mutated). */
+const lookups = new WeakMap<ExperimentRecord, { conditions: Map<string, ExperimentRecord['conditions'][number]>; measures: Map<string, MeasureRecord> }>();
+
+function lookupOf(experiment: ExperimentRecord) {
+  let l = lookups.get(experiment);
+  if (!l) {
+    l = { conditions: new Map(experiment.conditions.map((c) => [c.id, c])), measures: new Map(experiment.measures.map((m) => [m.id, m])) };
+    lookups.set(experiment, l);
+  }
+  return l;
+}
+
+const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]+$/;
+
+/**
+ * The item itself when it is a plain object that ResponseInputSchema certainly accepts unchanged (known fields
+ * only; responseId matching RESPONSE_ID_PATTERN; condition a string of at most 200 characters; respondent absent,
+ * null or 1–256 characters without control characters; no submittedAt (its date-time rules stay with zod); values
+ * a plain object). null means "ask zod", never "invalid". Equivalence with the schema is tested in
+ * tests/server/performance-ingest.test.ts.
+ */
+export function plainlyValidShape(raw: unknown): z.infer<typeof ResponseInputSchema> | null {
+  if (raw === null || typeof raw !== 'object' || Array.isArray(raw) || Object.getPrototypeOf(raw) !== Object.prototype) return null;
+  const o = raw as Record<string, unknown>;
+  for (const k in o) {
+    if (k !== 'responseId' && k !== 'condition' && k !== 'respondent' && k !== 'values') return null;
+  }
+  const { responseId, condition, respondent, values } = o;
+  if (typeof condition !== 'string' || condition.length > 200) return null;
+  if (responseId !== undefined && (typeof responseId !== 'string' || !RESPONSE_ID_PATTERN.test(responseId))) return null;
+  if (respondent !== undefined && respondent !== null) {
+    if (typeof respondent !== 'string' || respondent.length < 1 || respondent.length > 256 || !NO_CONTROL_CHARS.test(respondent)) return null;
+  }
+  if (values === null || typeof values !== 'object' || Array.isArray(values) || Object.getPrototypeOf(values) !== Object.prototype) return null;
+  return o as z.infer<typeof ResponseInputSchema>;
+}
+
 /**
  * Check one raw item (already parsed JSON, or a form turned into the same shape by formToItem). Appends to
  * `out`; returns true when the item was valid.
  */
 export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: readonly PropertyKey[], receivedAt: string, out: CheckResult): boolean {
-  const shape = zodFieldErrors(ResponseInputSchema, raw, prefix);
+  // The common case (a plain object whose fields are all plainly valid) skips zod; anything else, including every
+  // invalid item, goes through the schema, which lists the problems.
+  const fast = plainlyValidShape(raw);
+  const shape = fast ? { ok: true as const, value: fast } : zodFieldErrors(ResponseInputSchema, raw, prefix);
   if (!shape.ok) {
     out.errors.push(...shape.errors);
     // Still check and count the values when they can be found (zod never looks inside them), so that every
@@ -108,7 +148,7 @@ export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: re
   }
   const item = shape.value as z.infer<typeof ResponseInputSchema>;
   let ok = true;
-  const condition = experiment.conditions.find((c) => c.id === item.condition);
+  const condition = lookupOf(experiment).conditions.get(item.condition);
   if (!condition) {
     ok = false;
     out.errors.push({
@@ -150,7 +190,7 @@ function checkValues(
 ): Map<number, number> | null {
   let ok = true;
   const result = new Map<number, number>();
-  const known = new Map(experiment.measures.map((m) => [m.id, m]));
+  const known = lookupOf(experiment).measures;
   for (const key of Object.keys(values)) {
     if (!known.has(key)) {
       ok = false;
@@ -162,19 +202,25 @@ function checkValues(
   }
   for (const m of experiment.measures) {
     const raw = Object.prototype.hasOwnProperty.call(values, m.id) ? values[m.id] : undefined;
-    const path = formatPath([...prefix, 'values', m.id]);
+    // The path is only built for an error (a batch of 10,000 valid items would build 30,000 strings for nothing).
+    const path = (): string => formatPath([...prefix, 'values', m.id]);
     if (raw === undefined || raw === null) {
       if (m.required) {
         ok = false;
-        out.errors.push({ path, message: 'is required' });
+        out.errors.push({ path: path(), message: 'is required' });
       }
+      continue;
+    }
+    if (typeof raw === 'number' && raw >= m.min && raw <= m.max && (!m.integer || Number.isInteger(raw))) {
+      // Fast path of checkValue for a plainly valid number (finite, because it lies within [min, max]).
+      result.set(m.key, raw === 0 ? 0 : raw);
       continue;
     }
     const c = checkValue(m, raw);
     if (c.ok) result.set(m.key, c.value);
     else {
       ok = false;
-      out.errors.push({ path, ...c.error });
+      out.errors.push({ path: path(), ...c.error });
       out.rejected.push({ measureKey: m.key, reason: c.reason, count: 1 });
     }
   }

@@ -212,8 +212,10 @@ function forwarding<T extends object>(target: T, overrides: Partial<T>): T {
     for (const key of Reflect.ownKeys(o)) {
       if (key === 'constructor' || seen.has(key) || Object.hasOwn(overrides, key)) continue;
       seen.add(key);
+      // configurable: tests replace single methods with spies (vi.spyOn) on the store the routes receive.
       Object.defineProperty(out, key, {
         enumerable: true,
+        configurable: true,
         get: () => {
           const v = (target as Record<PropertyKey, unknown>)[key];
           return isMethod && typeof v === 'function' ? (v as (...a: unknown[]) => unknown).bind(target) : v;
@@ -221,7 +223,7 @@ function forwarding<T extends object>(target: T, overrides: Partial<T>): T {
       });
     }
   }
-  for (const [key, value] of Object.entries(overrides)) Object.defineProperty(out, key, { value, enumerable: true });
+  for (const [key, value] of Object.entries(overrides)) Object.defineProperty(out, key, { value, enumerable: true, configurable: true, writable: true });
   return out as T;
 }
 

@@ -4,10 +4,16 @@
  * Ingest is ONE synchronous better-sqlite3 transaction (BEGIN IMMEDIATE): idempotency checks, response rows,
  * value rows, per-value counts of integer measures (aggregated in JS first: one upsert per distinct
  * (measure, condition, value)), per-condition counters and dataVersion + 1. Nothing async runs inside it.
+ * A batch looks its client ids up 100 per statement and writes rows with multi-row INSERTs (explicit ids:
+ * max(id) + 1, …, what SQLite would pick). Single responses arriving in the same event-loop turn share one
+ * transaction (group commit, one savepoint per request; see ingest()), acknowledged only after COMMIT.
  *
  * Reads for comparisons: getCounts / getValueCounts read value_counts (integer measures, O(distinct values));
  * getSortedValues walks the index (measure_id, condition_id, excluded, value) in order into a Float64Array
- * (O(n), no sort). With includeExcluded the two sorted runs (excluded = 0 and = 1) are merged in O(n). The
+ * (O(n), no sort). getSortedValuesSnapshot goes through the sorted-values cache (server/sorted-values-cache.ts):
+ * a held run is reused, newer rows (responses.id above the last one seen, same values epoch of migration 0004)
+ * are merged in, anything else is read again; readRunsSnapshot/adoptRunsSnapshot let a worker thread do a large
+ * full read on its own read-only connection (server/compare-worker.ts). With includeExcluded the two sorted runs (excluded = 0 and = 1) are merged in O(n). The
  * snapshots also read the per-condition counters and the rejected-value counts in the same read transaction, so
  * every data-dependent input of a comparison belongs to one dataVersion.
  *
@@ -16,6 +22,7 @@
  * (or decremented; rows reaching 0 are deleted, so value_counts always equals a GROUP BY over response_values),
  * conditions.response_count / excluded_count, dataVersion + 1 and an audit row (audit.ts).
  */
+import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-values-cache.js';
 import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
 import type {
@@ -33,6 +40,27 @@ import type {
   ValidResponse,
   WeightedValues,
 } from './types.js';
+
+/**
+ * A merge reads only rows with responses.id above the cached last id; when more responses than this share of the
+ * cached run arrived (or at least INCREMENTAL_MIN_ROWS), one ordered read of the whole run is cheaper.
+ */
+export const INCREMENTAL_MAX_SHARE = 0.25;
+export const INCREMENTAL_MIN_ROWS = 10_000;
+
+/** One run (measure, condition, excluded) of a snapshot read for the sorted-values cache. */
+export interface SnapshotRun {
+  conditionKey: number;
+  excluded: 0 | 1;
+  values: Float64Array;
+}
+
+/** What a full read of sorted runs returns (also from a worker thread's read-only connection). */
+export interface RunsSnapshot extends Omit<MeasureSnapshot, 'groups'> {
+  epoch: number;
+  lastRowId: number;
+  runs: SnapshotRun[];
+}
 
 /** Widest integer scale getCounts turns into a dense array (values min … max). */
 export const MAX_DENSE_COUNTS = 1_000_001;
@@ -54,7 +82,7 @@ function bytesEqual(a: Uint8Array, b: Uint8Array): boolean {
 export function mergeSorted(a: Float64Array, b: Float64Array): Float64Array {
   if (b.length === 0) return a;
   if (a.length === 0) return b;
-  const out = new Float64Array(a.length + b.length);
+  const out = sharedFloat64(a.length + b.length); // shared, so that a worker can take it without a copy
   let i = 0;
   let j = 0;
   let k = 0;
@@ -64,12 +92,66 @@ export function mergeSorted(a: Float64Array, b: Float64Array): Float64Array {
   return out;
 }
 
+/** Multi-row INSERT sizes of the batch path (rows per statement; 9 and 4 parameters a row). */
+export const RESPONSE_ROWS_PER_INSERT = 50;
+export const VALUE_ROWS_PER_INSERT = 100;
+const RESPONSE_COLUMNS = 9;
+const VALUE_COLUMNS = 4;
+/** Client ids looked up per statement in a batch. */
+export const ID_LOOKUP_CHUNK = 100;
+
+/**
+ * Values of one run added after a known response id. The unary + keeps SQLite off response_values_scan (equality on
+ * its first three columns would make it walk the whole run); only the primary-key range on response_id is then
+ * usable: O(new rows). Exported for the query-plan test.
+ */
+export const NEW_VALUES_OF_RUN_SQL = `SELECT value FROM response_values
+  WHERE response_id > ? AND response_id <= ? AND +measure_id = ? AND +condition_id = ? AND +excluded = ?`;
+
+/** Most single-response requests written in one group commit. */
+export const GROUP_COMMIT_MAX = 256;
+
+/** The next turn of the event loop (captured at load, so fake timers in tests cannot stall a commit). */
+const deferTurn: (fn: () => void) => void = globalThis.setImmediate.bind(globalThis);
+
+interface PendingIngest {
+  experimentKey: number;
+  items: ValidResponse[];
+  receivedAt: string;
+  apiKeyId: number | null;
+  resolve: (outcome: IngestOutcome) => void;
+  reject: (error: unknown) => void;
+}
+
+interface CacheView {
+  epoch: number;
+  lastRowId: number;
+}
+
+/** Can a cached run be brought up to `view` by merging the newer rows (same epoch, not too many new responses)? */
+function mergeable(run: SortedRun, view: CacheView): boolean {
+  if (run.epoch !== view.epoch || run.lastRowId > view.lastRowId) return false;
+  return view.lastRowId - run.lastRowId <= Math.max(INCREMENTAL_MIN_ROWS, run.values.length * INCREMENTAL_MAX_SHARE);
+}
+
+/** Prepare a pluck statement, or null when the schema lacks its table (a database without migration 0004). */
+function tryPrepare(db: SqliteDatabase, sql: string) {
+  try {
+    return db.prepare<[], number>(sql).pluck();
+  } catch {
+    return null;
+  }
+}
+
 export class SqliteResponseRepository implements ResponseRepository {
   private readonly experimentState;
   private readonly integerMeasures;
   private readonly existingHash;
-  private readonly insertResponse;
   private readonly insertValue;
+  private readonly insertResponseWithId;
+  private readonly insertResponsesMany;
+  private readonly insertValuesMany;
+  private readonly hashesOf;
   private readonly upsertCount;
   private readonly bumpCondition;
   private readonly bumpVersion;
@@ -104,8 +186,23 @@ export class SqliteResponseRepository implements ResponseRepository {
   private readonly audit: AuditWriter;
   private readonly exclusionTx;
   private readonly erasureTx;
+  private readonly epochStmt;
+  private readonly maxResponseId;
+  private readonly newValuesOfRun;
+  private readonly conditionCounter;
+  private readonly groupTx;
+  private group: PendingIngest[] = [];
+  private flushScheduled = false;
+  /** Group-commit figures (tests and benchmarks): committed groups, requests in them, the largest group. */
+  readonly groupStats = { groups: 0, requests: 0, largest: 0 };
+  /** Sorted runs of continuous measures kept between comparisons (see server/sorted-values-cache.ts). */
+  readonly sortedCache = new SortedValuesCache();
 
-  constructor(private readonly db: SqliteDatabase) {
+  constructor(
+    private readonly db: SqliteDatabase,
+    /** Gather single-response ingests into group commits (see ingest); off: one transaction per request. */
+    private readonly groupCommit = true,
+  ) {
     this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
       `SELECT status, data_version FROM experiments WHERE id = ?`,
     );
@@ -115,10 +212,23 @@ export class SqliteResponseRepository implements ResponseRepository {
     this.existingHash = db
       .prepare<[number, string], Buffer>(`SELECT content_hash FROM responses WHERE experiment_id = ? AND response_id = ?`)
       .pluck();
-    this.insertResponse = db.prepare<[number, string, number, string | null, string, string, Uint8Array, number | null]>(
-      `INSERT INTO responses (experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
+    this.insertResponseWithId = db.prepare<unknown[]>(
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
+       VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
     );
+    this.insertResponsesMany = db.prepare<unknown[]>(
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
+       VALUES ${Array.from({ length: RESPONSE_ROWS_PER_INSERT }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
+    );
+    this.insertValuesMany = db.prepare<unknown[]>(
+      `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value)
+       VALUES ${Array.from({ length: VALUE_ROWS_PER_INSERT }, () => '(?, ?, ?, 0, ?)').join(', ')}`,
+    );
+    this.hashesOf = db
+      .prepare<unknown[], [string, Buffer]>(
+        `SELECT response_id, content_hash FROM responses WHERE experiment_id = ? AND response_id IN (${Array.from({ length: ID_LOOKUP_CHUNK }, () => '?').join(', ')})`,
+      )
+      .raw();
     this.insertValue = db.prepare<[number | bigint, number, number, number]>(
       `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES (?, ?, ?, 0, ?)`,
     );
@@ -234,6 +344,16 @@ export class SqliteResponseRepository implements ResponseRepository {
       `UPDATE conditions SET response_count = response_count - ?, excluded_count = excluded_count - ? WHERE id = ?`,
     );
     this.audit = new AuditWriter(db);
+    this.epochStmt = tryPrepare(db, `SELECT epoch FROM values_epoch WHERE id = 1`);
+    this.maxResponseId = db.prepare<[], number>(`SELECT coalesce(max(id), 0) FROM responses`).pluck();
+    this.newValuesOfRun = db
+      .prepare<[number, number, number, number, number], number>(
+        NEW_VALUES_OF_RUN_SQL,
+      )
+      .pluck();
+    this.conditionCounter = db.prepare<[number], { response_count: number; excluded_count: number }>(
+      `SELECT response_count, excluded_count FROM conditions WHERE id = ?`,
+    );
 
     this.exclusionTx = db.transaction(
       (experimentKey: number, responseId: string, change: { excluded: boolean; reason: string | null }, apiKeyId: number | null, at: string): ExclusionOutcome => {
@@ -302,7 +422,9 @@ export class SqliteResponseRepository implements ResponseRepository {
         if (!state) return { kind: 'not-found' };
         if (state.status !== 'open') return { kind: 'closed' };
 
-        // 1. Idempotency: decide for every item before writing anything.
+        // 1. Idempotency: decide for every item before writing anything. A batch looks its client ids up
+        //    ID_LOOKUP_CHUNK at a time (one statement per chunk instead of one per item).
+        const storedHashes = items.length > 1 ? this.lookupHashes(experimentKey, items) : null;
         const isNew = new Array<boolean>(items.length);
         const conflicts: { index: number; responseId: string }[] = [];
         const seenInBatch = new Map<string, Uint8Array>();
@@ -313,7 +435,7 @@ export class SqliteResponseRepository implements ResponseRepository {
             continue;
           }
           const earlier = seenInBatch.get(item.responseId);
-          const stored = earlier ?? this.existingHash.get(experimentKey, item.responseId);
+          const stored = earlier ?? (storedHashes ? storedHashes.get(item.responseId) : this.existingHash.get(experimentKey, item.responseId));
           if (stored === undefined) {
             isNew[i] = true;
             seenInBatch.set(item.responseId, item.contentHash);
@@ -325,38 +447,60 @@ export class SqliteResponseRepository implements ResponseRepository {
         }
         if (conflicts.length > 0) return { kind: 'conflict', conflicts };
 
-        // 2. Writes.
+        // 2. Writes. Ids are given explicitly (max(id) + 1, + 2, …: exactly what SQLite would pick, since this
+        //    transaction is the only writer), so response rows and value rows go in as multi-row INSERTs of up to
+        //    RESPONSE_ROWS_PER_INSERT / VALUE_ROWS_PER_INSERT rows: one statement call per chunk, not per row.
         const integerMeasures = new Set<number>(this.integerMeasures.all(experimentKey));
-        const countIncrements = new Map<string, { measure: number; condition: number; value: number; count: number }>();
+        const countIncrements = new Map<number, Map<number, Map<number, number>>>();
         const perCondition = new Map<number, number>();
         let created = 0;
+        let nextId = (this.maxResponseId.get() as number) + 1;
+        const responseParams: unknown[] = [];
+        const valueParams: unknown[] = [];
+        const flushResponses = (): void => {
+          const rows = responseParams.length / RESPONSE_COLUMNS;
+          if (rows === 0) return;
+          if (rows === RESPONSE_ROWS_PER_INSERT) this.insertResponsesMany.run(responseParams);
+          else for (let r = 0; r < rows; r++) this.insertResponseWithId.run(responseParams.slice(r * RESPONSE_COLUMNS, (r + 1) * RESPONSE_COLUMNS));
+          responseParams.length = 0;
+        };
+        const flushValues = (): void => {
+          const rows = valueParams.length / VALUE_COLUMNS;
+          if (rows === 0) return;
+          if (rows === VALUE_ROWS_PER_INSERT) this.insertValuesMany.run(valueParams);
+          else for (let r = 0; r < rows; r++) this.insertValue.run(...(valueParams.slice(r * VALUE_COLUMNS, (r + 1) * VALUE_COLUMNS) as [number, number, number, number]));
+          valueParams.length = 0;
+        };
         for (let i = 0; i < items.length; i++) {
           if (!isNew[i]) continue;
           const item = items[i];
-          const info = this.insertResponse.run(
-            experimentKey,
-            item.responseId,
-            item.conditionKey,
-            item.respondent,
-            item.submittedAt,
-            receivedAt,
-            item.contentHash,
-            apiKeyId,
-          );
-          const rowId = info.lastInsertRowid;
+          const rowId = nextId++;
+          responseParams.push(rowId, experimentKey, item.responseId, item.conditionKey, item.respondent, item.submittedAt, receivedAt, item.contentHash, apiKeyId);
+          if (responseParams.length === RESPONSE_ROWS_PER_INSERT * RESPONSE_COLUMNS) {
+            flushResponses();
+          }
           for (const [measureKey, value] of item.values) {
-            this.insertValue.run(rowId, measureKey, item.conditionKey, value);
+            valueParams.push(rowId, measureKey, item.conditionKey, value);
+            if (valueParams.length === VALUE_ROWS_PER_INSERT * VALUE_COLUMNS) {
+              flushResponses(); // parents first: the foreign keys are checked per statement
+              flushValues();
+            }
             if (integerMeasures.has(measureKey)) {
-              const k = `${measureKey}|${item.conditionKey}|${value}`;
-              const entry = countIncrements.get(k);
-              if (entry) entry.count += 1;
-              else countIncrements.set(k, { measure: measureKey, condition: item.conditionKey, value, count: 1 });
+              let byCondition = countIncrements.get(measureKey);
+              if (!byCondition) countIncrements.set(measureKey, (byCondition = new Map()));
+              let byValue = byCondition.get(item.conditionKey);
+              if (!byValue) byCondition.set(item.conditionKey, (byValue = new Map()));
+              byValue.set(value, (byValue.get(value) ?? 0) + 1);
             }
           }
           perCondition.set(item.conditionKey, (perCondition.get(item.conditionKey) ?? 0) + 1);
           created++;
         }
-        for (const e of countIncrements.values()) this.upsertCount.run(e.measure, e.condition, e.value, e.count);
+        flushResponses();
+        flushValues();
+        for (const [measure, byCondition] of countIncrements) {
+          for (const [condition, byValue] of byCondition) for (const [value, count] of byValue) this.upsertCount.run(measure, condition, value, count);
+        }
         for (const [conditionKey, n] of perCondition) this.bumpCondition.run(n, conditionKey);
         const dataVersion = created > 0 ? (this.bumpVersion.get(experimentKey) as number) : state.data_version;
         return {
@@ -367,6 +511,17 @@ export class SqliteResponseRepository implements ResponseRepository {
           dataVersion,
         };
       },
+    );
+
+    this.groupTx = db.transaction((group: PendingIngest[]) =>
+      group.map((g) => {
+        try {
+          // Nested: a SAVEPOINT inside the group's transaction; an error rolls back this request only.
+          return { ok: true as const, outcome: this.ingestTx(g.experimentKey, g.items, g.receivedAt, g.apiKeyId) };
+        } catch (error) {
+          return { ok: false as const, error };
+        }
+      }),
     );
 
     this.rejectedTx = db.transaction((experimentKey: number, increments: RejectedIncrement[]) => {
@@ -381,8 +536,62 @@ export class SqliteResponseRepository implements ResponseRepository {
     });
   }
 
+  /**
+   * Group commit. A request with ONE response joins the group of single responses that arrive in the same turn of
+   * the event loop (while the previous commit waited for its fsync, the next requests piled up on their sockets;
+   * they are handled in one turn); the group is written as ONE transaction (BEGIN IMMEDIATE) in which every
+   * request is its own savepoint (better-sqlite3 nests db.transaction as SAVEPOINT): its own idempotency check,
+   * conflict or error, rolled back alone; the others go on. Every promise settles only after COMMIT returned,
+   * i.e. after the WAL was fsync'ed (synchronous = FULL): no response is acknowledged before it is durable. A
+   * failed COMMIT rejects every request of the group. At most GROUP_COMMIT_MAX requests per group. Batches
+   * (2 or more responses) are already one transaction each and run at once.
+   */
   async ingest(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): Promise<IngestOutcome> {
-    return this.ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
+    if (items.length !== 1 || !this.groupCommit) return this.ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
+    return new Promise<IngestOutcome>((resolve, reject) => {
+      this.group.push({ experimentKey, items, receivedAt, apiKeyId, resolve, reject });
+      if (this.group.length >= GROUP_COMMIT_MAX) this.flushGroup();
+      else if (!this.flushScheduled) {
+        this.flushScheduled = true;
+        deferTurn(() => this.flushGroup());
+      }
+    });
+  }
+
+  /** Stored content hashes of the batch's client ids (one statement per ID_LOOKUP_CHUNK distinct ids). */
+  private lookupHashes(experimentKey: number, items: ValidResponse[]): Map<string, Uint8Array> {
+    const ids = [...new Set(items.filter((x) => !x.generated).map((x) => x.responseId))];
+    const found = new Map<string, Uint8Array>();
+    for (let start = 0; start < ids.length; start += ID_LOOKUP_CHUNK) {
+      const chunk = ids.slice(start, start + ID_LOOKUP_CHUNK);
+      if (chunk.length === ID_LOOKUP_CHUNK) {
+        for (const [id, hash] of this.hashesOf.all(experimentKey, ...chunk)) found.set(id, hash);
+      } else {
+        for (const id of chunk) {
+          const hash = this.existingHash.get(experimentKey, id);
+          if (hash !== undefined) found.set(id, hash);
+        }
+      }
+    }
+    return found;
+  }
+
+  /** Write the pending group of single responses (see ingest). */
+  private flushGroup(): void {
+    this.flushScheduled = false;
+    const group = this.group.splice(0);
+    if (group.length === 0) return;
+    let results: ({ ok: true; outcome: IngestOutcome } | { ok: false; error: unknown })[];
+    try {
+      results = this.groupTx.immediate(group);
+    } catch (error) {
+      for (const g of group) g.reject(error);
+      return;
+    }
+    this.groupStats.groups++;
+    this.groupStats.requests += group.length;
+    if (group.length > this.groupStats.largest) this.groupStats.largest = group.length;
+    results.forEach((r, i) => (r.ok ? group[i].resolve(r.outcome) : group[i].reject(r.error)));
   }
 
   async recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void> {
@@ -435,9 +644,112 @@ export class SqliteResponseRepository implements ResponseRepository {
     return out;
   }
 
-  private readSorted(measureKey: number, conditionKey: number, includeExcluded: boolean): Float64Array {
-    const kept = this.readSortedRun(measureKey, conditionKey, 0);
-    return includeExcluded ? mergeSorted(kept, this.readSortedRun(measureKey, conditionKey, 1)) : kept;
+  private readSorted(measureKey: number, conditionKey: number, includeExcluded: boolean, view: CacheView | null = null): Float64Array {
+    const kept = this.readRunCached(measureKey, conditionKey, 0, view);
+    return includeExcluded ? mergeSorted(kept, this.readRunCached(measureKey, conditionKey, 1, view)) : kept;
+  }
+
+  /** The epoch and the last response id, read inside the caller's read transaction (null: no cache possible). */
+  private cacheView(): CacheView | null {
+    if (!this.epochStmt) return null;
+    return { epoch: this.epochStmt.get() as number, lastRowId: this.maxResponseId.get() as number };
+  }
+
+  /** What it would take to serve a run from the cache: 'ready' (held, or a small merge), else the size of a full read. */
+  private runPlan(measureKey: number, conditionKey: number, excluded: 0 | 1, view: CacheView): { ready: true } | { ready: false; estimate: number } {
+    const run = this.sortedCache.get(runKey(measureKey, conditionKey, excluded));
+    if (run && mergeable(run, view)) return { ready: true };
+    const c = this.conditionCounter.get(conditionKey);
+    const estimate = c ? (excluded === 0 ? c.response_count - c.excluded_count : c.excluded_count) : 0;
+    return { ready: false, estimate };
+  }
+
+  /**
+   * One run in value order, through the sorted-values cache when a view is given: held → as is; newer rows →
+   * merged; otherwise one ordered read of the whole run, kept for next time.
+   */
+  private readRunCached(measureKey: number, conditionKey: number, excluded: 0 | 1, view: CacheView | null): Float64Array {
+    if (!view) return this.readSortedRun(measureKey, conditionKey, excluded);
+    const key = runKey(measureKey, conditionKey, excluded);
+    const run = this.sortedCache.get(key);
+    if (run && run.epoch === view.epoch && run.lastRowId === view.lastRowId) {
+      this.sortedCache.stats.hits++;
+      return run.values;
+    }
+    if (run && mergeable(run, view)) {
+      const added = this.newValuesOfRun.all(run.lastRowId, view.lastRowId, measureKey, conditionKey, excluded);
+      const values = mergeNewValues(run.values, added);
+      this.sortedCache.stats.merges++;
+      this.sortedCache.stats.mergedRows += added.length;
+      this.sortedCache.set(key, { values, lastRowId: view.lastRowId, epoch: view.epoch });
+      return values;
+    }
+    if (run && run.epoch !== view.epoch) this.sortedCache.stats.invalidations++;
+    const values = toShared(this.sortedValues.all(measureKey, conditionKey, excluded));
+    this.sortedCache.stats.fullReads++;
+    this.sortedCache.set(key, { values, lastRowId: view.lastRowId, epoch: view.epoch });
+    return values;
+  }
+
+  /**
+   * Every run a snapshot needs (excluded = 0, and 1 with includeExcluded) read whole, with the dataVersion, the
+   * epoch, the last response id and the context, in ONE read transaction. No cache involved: this is what a worker
+   * thread runs on its own read-only connection (server/compare-worker.ts); the caller adopts the runs.
+   */
+  readRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): RunsSnapshot {
+    return this.db.transaction((): RunsSnapshot => {
+      const m = this.measureRow.get(measureKey);
+      if (!m) throw new RangeError(`measure key ${measureKey} does not exist`);
+      const dataVersion = this.dataVersionOfMeasure(measureKey);
+      const view = this.cacheView() ?? { epoch: -1, lastRowId: this.maxResponseId.get() as number };
+      const runs: SnapshotRun[] = [];
+      for (const c of conditionKeys) {
+        runs.push({ conditionKey: c, excluded: 0, values: toShared(this.sortedValues.all(measureKey, c, 0)) });
+        if (includeExcluded) runs.push({ conditionKey: c, excluded: 1, values: toShared(this.sortedValues.all(measureKey, c, 1)) });
+      }
+      return { dataVersion, epoch: view.epoch, lastRowId: view.lastRowId, runs, ...this.snapshotContext(measureKey) };
+    })();
+  }
+
+  /** Keep the runs of a snapshot read elsewhere (a worker) in the cache and assemble the snapshot's groups. */
+  adoptRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, snap: RunsSnapshot): MeasureSnapshot {
+    if (snap.epoch >= 0) {
+      for (const r of snap.runs) {
+        const run: SortedRun = { values: r.values, lastRowId: snap.lastRowId, epoch: snap.epoch };
+        this.sortedCache.set(runKey(measureKey, r.conditionKey, r.excluded), run);
+      }
+    }
+    const find = (c: number, ex: 0 | 1): Float64Array => snap.runs.find((r) => r.conditionKey === c && r.excluded === ex)?.values ?? new Float64Array(0);
+    const groups = conditionKeys.map((c) => (includeExcluded ? mergeSorted(find(c, 0), find(c, 1)) : find(c, 0)));
+    const { epoch: _e, lastRowId: _l, runs: _r, ...rest } = snap;
+    return { ...rest, groups };
+  }
+
+  /**
+   * How many values getSortedValuesSnapshot would read whole (runs neither cached at the current epoch nor close
+   * enough to merge), from the per-condition counters: an upper bound, O(1) per run. A caller sends a large full
+   * read to a worker (readRunsSnapshot on its own connection, then adoptRunsSnapshot) instead of blocking.
+   * Infinity when there is no cache (a database without migration 0004).
+   */
+  fullReadEstimate(measureKey: number, conditionKeys: number[], includeExcluded: boolean): number {
+    return this.db.transaction((): number => {
+      const view = this.cacheView();
+      if (!view) return Infinity;
+      let fullRead = 0;
+      for (const c of conditionKeys) {
+        for (const ex of includeExcluded ? ([0, 1] as const) : ([0] as const)) {
+          const plan = this.runPlan(measureKey, c, ex, view);
+          if (!plan.ready) fullRead += plan.estimate;
+        }
+      }
+      return fullRead;
+    })();
+  }
+
+  /** The database file (for a worker's own read-only connection); null for an in-memory database. */
+  get databasePath(): string | null {
+    const name = this.db.name;
+    return name === ':memory:' || name === '' || this.db.memory ? null : name;
   }
 
   /**
@@ -474,7 +786,8 @@ export class SqliteResponseRepository implements ResponseRepository {
       const m = this.measureRow.get(measureKey);
       if (!m) throw new RangeError(`measure key ${measureKey} does not exist`);
       const dataVersion = this.dataVersionOfMeasure(measureKey);
-      return { dataVersion, groups: conditionKeys.map((c) => this.readSorted(measureKey, c, includeExcluded)), ...this.snapshotContext(measureKey) };
+      const view = this.cacheView();
+      return { dataVersion, groups: conditionKeys.map((c) => this.readSorted(measureKey, c, includeExcluded, view)), ...this.snapshotContext(measureKey) };
     })();
   }
 

@@ -1,0 +1,167 @@
+/**
+ * Benchmark 1 (issue 8): single-response ingest over HTTP, next to the stack's ceiling measured in the same run.
+ *
+ *   npx tsx tests/bench/ingest-single.ts [--quick] [--duration 20] [--connections 32]
+ *
+ * autocannon (library) at 32 connections for 20 s (5 s with --quick) against
+ *   baseline  tests/bench/baseline-server.ts: bare fastify + ONE prepared INSERT per request, same pragmas
+ *             (WAL, synchronous = FULL) — every request is one fsync'ed commit;
+ *   service   the built server (node dist/server/main.js serve, temp DB file): POST /v1/experiments/{id}/responses
+ *             with API-key auth, full validation, idempotency (a distinct client responseId per request, checked
+ *             against the stored ones), per-value counts and counters — every request acknowledged only after its
+ *             commit.
+ * Both servers run as child processes on 127.0.0.1. Bodies are the water-utility demo's three items with varying
+ * invented values. Prints requests/s, p50/p99 latency, errors; target: service ≥ 0.7 × baseline requests/s.
+ */
+import autocannon from 'autocannon';
+import { api, argv, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, startBaseline, startService, table, writeResults } from './harness.js';
+
+const log = logger('ingest-single');
+const argNum = (name: string, fallback: number): number => {
+  const i = argv.indexOf(name);
+  return i >= 0 ? Number(argv[i + 1]) : fallback;
+};
+const DURATION = argNum('--duration', QUICK ? 5 : 20);
+const CONNECTIONS = argNum('--connections', 32);
+const TARGET_RATIO = 0.7;
+
+export const EXPERIMENT = {
+  id: 'water-bill-2027',
+  title: 'Water utility survey 2027: bill first or service first? (benchmark)',
+  conditions: [
+    { id: 'bill-first', label: 'The bill questions come first' },
+    { id: 'service-first', label: 'The service questions come first' },
+  ],
+  measures: [
+    { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
+    { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
+    { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
+  ],
+  alpha: 0.05,
+};
+
+interface Figures {
+  requestsPerSecond: number;
+  requestsPerSecondMedian: number;
+  latencyP50Ms: number;
+  latencyP99Ms: number;
+  latencyMaxMs: number;
+  total: number;
+  non2xx: number;
+  errors: number;
+  timeouts: number;
+}
+
+function bodyMaker(prefix: string): () => string {
+  let i = 0;
+  return () => {
+    i++;
+    const satisfaction = i % 11;
+    const trust = 1 + (i % 7);
+    const price = Math.round(((i * 7919) % 20000) / 100 * 100) / 100;
+    return JSON.stringify({
+      condition: i % 2 === 0 ? 'bill-first' : 'service-first',
+      responseId: `${prefix}-${i}`,
+      values: { satisfaction, trust, fair_price: price },
+    });
+  };
+}
+
+async function hammer(url: string, headers: Record<string, string>, makeBody: () => string): Promise<Figures> {
+  const result = await autocannon({
+    url,
+    method: 'POST',
+    connections: CONNECTIONS,
+    duration: DURATION,
+    headers: { 'content-type': 'application/json', ...headers },
+    requests: [
+      {
+        method: 'POST',
+        setupRequest: (req) => ({ ...req, body: makeBody() }),
+      },
+    ],
+  });
+  return {
+    requestsPerSecond: result.requests.average,
+    requestsPerSecondMedian: result.requests.p50,
+    latencyP50Ms: result.latency.p50,
+    latencyP99Ms: result.latency.p99,
+    latencyMaxMs: result.latency.max,
+    total: result.requests.total,
+    non2xx: result.non2xx,
+    errors: result.errors,
+    timeouts: result.timeouts,
+  };
+}
+
+async function main(): Promise<void> {
+  const started = new Date().toISOString();
+  const m0 = machine();
+  log(`${CONNECTIONS} connections × ${DURATION} s per contender`);
+
+  const baseEnv = newServiceEnv('baseline');
+  const svcEnv = newServiceEnv('single');
+  let baseline: Figures;
+  let service: Figures;
+  try {
+    log('baseline: bare fastify + one prepared INSERT (WAL, synchronous = FULL)');
+    const b = await startBaseline(baseEnv.dbPath);
+    try {
+      baseline = await hammer(`${b.url}/items`, {}, bodyMaker('base'));
+    } finally {
+      await b.stop();
+    }
+    log(`baseline ${fmt.int(baseline.requestsPerSecond)} req/s`);
+
+    log('service: node dist/server/main.js serve');
+    const s = await startService(svcEnv);
+    try {
+      expectStatus(await api(s.url, 'POST', '/v1/experiments', svcEnv.adminKey, EXPERIMENT), [201], 'create experiment');
+      service = await hammer(`${s.url}/v1/experiments/${EXPERIMENT.id}/responses`, { authorization: `Bearer ${svcEnv.adminKey}` }, bodyMaker('svc'));
+    } finally {
+      await s.stop();
+    }
+    log(`service ${fmt.int(service.requestsPerSecond)} req/s`);
+  } finally {
+    baseEnv.cleanup();
+    svcEnv.cleanup();
+  }
+
+  const ratio = service.requestsPerSecond / baseline.requestsPerSecond;
+  const row = (name: string, f: Figures): string[] => [
+    name,
+    fmt.int(f.requestsPerSecond),
+    fmt.int(f.requestsPerSecondMedian),
+    fmt.ms(f.latencyP50Ms),
+    fmt.ms(f.latencyP99Ms),
+    fmt.ms(f.latencyMaxMs),
+    fmt.int(f.total),
+    `${f.non2xx}/${f.errors}/${f.timeouts}`,
+  ];
+  process.stdout.write(`\nBenchmark 1 — single-response ingest, ${CONNECTIONS} connections × ${DURATION} s, 127.0.0.1\n\n`);
+  process.stdout.write(
+    table(
+      ['contender', 'req/s (mean)', 'req/s (median)', 'p50 ms', 'p99 ms', 'max ms', 'requests', 'non-2xx/errors/timeouts'],
+      [row('baseline: fastify + 1 INSERT', baseline), row('service: validated ingest', service)],
+    ) + '\n\n',
+  );
+  const met = ratio >= TARGET_RATIO && service.non2xx === 0 && service.errors === 0;
+  const summary = `ingest-single: service ${fmt.int(service.requestsPerSecond)} req/s = ${ratio.toFixed(2)} × baseline ${fmt.int(baseline.requestsPerSecond)} req/s (target ≥ ${TARGET_RATIO}) — ${met ? 'MET' : 'MISSED'}`;
+  const file = writeResults('ingest-single', {
+    startedAt: started,
+    finishedAt: new Date().toISOString(),
+    machine: { ...m0, loadAverageEnd: machine().loadAverage },
+    connections: CONNECTIONS,
+    durationSeconds: DURATION,
+    baseline,
+    service,
+    ratio,
+    target: TARGET_RATIO,
+    met,
+    summary,
+  });
+  log(`wrote ${file}`);
+  process.stdout.write(`${summary}\n`);
+}
+
+await main();
