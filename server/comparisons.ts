@@ -36,6 +36,7 @@ import type { ConditionRecord, ExperimentRecord, MeasureRecord, MeasureSnapshot,
 import { MAX_DENSE_COUNTS, type RunsSnapshot } from './db/responses.js';
 import { compareSorted, sharedComparePool, type ComparePool, type CompareResult } from './compare-worker.js';
 import { toShared } from './sorted-values-cache.js';
+import { recordComparison } from './metrics.js';
 import { computeMonitoring } from './monitoring.js';
 import { distributionGroupFromSample, renderDistributionChart } from './pages/charts.js';
 import { ProblemError } from './problem.js';
@@ -416,12 +417,17 @@ export class ComparisonService {
   /** Look up `key`; on a miss compute once (concurrent identical misses share the computation) and cache. */
   private async cached(key: string, compute: () => Promise<CachedValue>): Promise<CachedValue> {
     const hit = this.cache.get(key);
-    if (hit) return hit;
+    if (hit) {
+      recordComparison({ cacheHit: true });
+      return hit;
+    }
     const running = this.inflight.get(key);
     if (running) return running;
     const promise = (async () => {
       try {
+        const started = performance.now();
         const value = await compute();
+        recordComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
         const bytes = value.kind === 'chart' ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;

@@ -119,6 +119,20 @@ describe('content', () => {
     expect(sample(after, 'splitballot_comparison_duration_seconds_bucket{le="0.005"}')).toBeGreaterThanOrEqual(1);
   });
 
+  it('the comparison route counts a computed comparison, then a cache hit for the same request', async () => {
+    const posted = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, payload: waterResponse() });
+    expect(posted.statusCode).toBe(201);
+    const before = await scrape();
+    const hits = sample(before, 'splitballot_comparisons_total{cache="hit"}');
+    const misses = sample(before, 'splitballot_comparisons_total{cache="miss"}');
+    const url = `/v1/experiments/${WATER_ID}/comparisons/satisfaction`;
+    expect((await t.request({ method: 'GET', url })).statusCode).toBe(200);
+    expect((await t.request({ method: 'GET', url })).statusCode).toBe(200);
+    const after = await scrape();
+    expect(sample(after, 'splitballot_comparisons_total{cache="miss"}')).toBe(misses + 1);
+    expect(sample(after, 'splitballot_comparisons_total{cache="hit"}')).toBe(hits + 1);
+  });
+
   it('reports the database and WAL size, and backups', async () => {
     const res = await t.request({ method: 'POST', url: '/v1/admin/backup', payload: {} });
     expect(res.statusCode).toBe(201);
