@@ -22,7 +22,7 @@
  * are not reliable on some network file systems (NFS without lock support); keep the database on a local disk.
  */
 import { randomBytes } from 'node:crypto';
-import { chmodSync, closeSync, existsSync, fsyncSync, openSync, renameSync, rmSync, statSync } from 'node:fs';
+import { chmodSync, closeSync, existsSync, fsyncSync, mkdirSync, openSync, renameSync, rmSync, statSync } from 'node:fs';
 import { basename, dirname, join, resolve } from 'node:path';
 import Database from 'better-sqlite3';
 import { openDatabase, type SqliteDatabase } from './db/open.js';
@@ -341,6 +341,8 @@ export function lockPathOf(dbPath: string): string {
  */
 export function acquireServerLock(dbPath: string, holder = 'serve'): ServerLock | null {
   const path = lockPathOf(dbPath);
+  // On a first start the database folder (./data by default) does not exist yet: create it, as opening the store would.
+  mkdirSync(dirname(resolve(path)), { recursive: true });
   const db = new Database(path);
   try {
     db.pragma('busy_timeout = 0');

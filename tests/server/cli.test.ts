@@ -132,7 +132,9 @@ function startServer(env: Record<string, string>) {
 
 describe('serve (child process)', () => {
   it('first start prints an admin key once with a curl example; SIGTERM shuts down with exit code 0', async () => {
-    const db = join(tempDir(), 'serve.db');
+    // The database folder does not exist yet, as ./data on a fresh clone (regression: the server lock was
+    // opened before the folder was created, and `npm start` failed on a fresh clone).
+    const db = join(tempDir(), 'data-not-yet-created', 'serve.db');
     const first = startServer({ SPLITBALLOT_DB: db });
     const port = await first.listening;
     await new Promise((r) => setTimeout(r, 100));
