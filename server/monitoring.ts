@@ -163,6 +163,26 @@ function lookView(l: LookRecord): LookView {
   };
 }
 
+/**
+ * Combine the stored running aggregate with this comparison's point, not yet written (see computeMonitoring).
+ * A point with fewer than MIN_RUNNING_PER_CONDITION answers in a condition is ignored, as the stored query does;
+ * a point whose dataVersion is already stored is not counted twice.
+ */
+function withPendingPoint(
+  stored: { p: number; lower: number; upper: number; points: number; lastDataVersion: number } | null,
+  point: { dataVersion: number; nA: number; nB: number; p: number; lower: number; upper: number } | null,
+): { p: number; lower: number; upper: number; points: number } | null {
+  if (!point || point.nA < MIN_RUNNING_PER_CONDITION || point.nB < MIN_RUNNING_PER_CONDITION) return stored;
+  if (stored === null) return { p: point.p, lower: point.lower, upper: point.upper, points: 1 };
+  if (stored.lastDataVersion >= point.dataVersion) return stored;
+  return {
+    p: Math.min(stored.p, point.p),
+    lower: Math.max(stored.lower, point.lower),
+    upper: Math.min(stored.upper, point.upper),
+    points: stored.points + 1,
+  };
+}
+
 export const CAVEAT =
   'While the study runs, read the running always-valid p-value and its confidence sequence: they may be checked ' +
   'after every answer without inflating false positives, and they never move back. The ordinary Welch and rank-sum ' +
@@ -191,17 +211,20 @@ export async function computeMonitoring(input: MonitoringInput): Promise<Monitor
   );
   const historyKey = { experimentKey: experiment.key, measureKey, conditionKeys, alpha, targetPerCondition: av.targetPerCondition };
   const dataVersion = input.dataVersion ?? experiment.dataVersion;
-  let recordProblem: string | null = null;
-  if (input.recordHistory !== false && input.includeExcluded !== true && av.p !== null && av.ci.lower !== null && av.ci.upper !== null) {
-    try {
-      await store.looks.recordAnytime(
-        historyKey,
-        { dataVersion, nA: input.a.n, nB: input.b.n, p: av.p, lower: av.ci.lower, upper: av.ci.upper },
-        new Date().toISOString(),
-      );
-    } catch {
-      recordProblem = 'This point could not be added to the stored history (the database was busy); the running values cover the earlier points.';
-    }
+  // The history point of this dataVersion is written after the reply (its commit waits for an fsync, which the
+  // person polling should not wait for): the running values below combine the stored points with this one in
+  // memory. A point lost in a crash before it is written only makes later running values more conservative.
+  const point =
+    input.recordHistory !== false && input.includeExcluded !== true && av.p !== null && av.ci.lower !== null && av.ci.upper !== null
+      ? { dataVersion, nA: input.a.n, nB: input.b.n, p: av.p, lower: av.ci.lower, upper: av.ci.upper }
+      : null;
+  if (point) {
+    const recordedAt = new Date().toISOString();
+    setImmediate(() => {
+      store.looks.recordAnytime(historyKey, point, recordedAt).catch(() => {
+        /* the database was busy: this point is simply not in the history (conservative) */
+      });
+    });
   }
   const level = 1 - alpha;
   let running: AnytimeValidBlock['running'];
@@ -214,7 +237,8 @@ export async function computeMonitoring(input: MonitoringInput): Promise<Monitor
       reason: 'The history is kept for the analysis without excluded responses only.',
     };
   } else {
-    const r = await store.looks.runningAnytime(historyKey, MIN_RUNNING_PER_CONDITION);
+    const stored = await store.looks.runningAnytime(historyKey, MIN_RUNNING_PER_CONDITION);
+    const r = withPendingPoint(stored, point);
     if (r === null) {
       const reason = `No recorded point has at least ${MIN_RUNNING_PER_CONDITION} answers in each condition yet.`;
       running = { p: null, ci: { level, lower: null, upper: null, reason }, points: 0, minPerCondition: MIN_RUNNING_PER_CONDITION, reason };
@@ -234,7 +258,6 @@ export async function computeMonitoring(input: MonitoringInput): Promise<Monitor
     } else {
       running = { p: r.p, ci: { level, lower: r.lower, upper: r.upper }, points: r.points, minPerCondition: MIN_RUNNING_PER_CONDITION };
     }
-    if (recordProblem) running.reason = recordProblem;
   }
   const anytime: AnytimeValidBlock = {
     method: av.method,

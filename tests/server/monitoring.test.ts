@@ -182,6 +182,8 @@ describe('monitoring block', () => {
       expect(rev.lower).toBe(-(fwd.upper as number));
       expect(rev.upper).toBe(-fwd.lower);
     }
+    // History points are written just after the reply (server/monitoring.ts): let that turn of the event loop run.
+    await new Promise((resolve) => setImmediate(resolve));
     const rows = t.store.db.prepare(`SELECT count(*) FROM anytime_history`).pluck().get();
     expect(rows).toBe(1 + shifts.length); // the early point is stored too (ignored by the running values)
   });
