@@ -610,6 +610,29 @@ const T = { width: 420, left: 52, right: 24, top1: 62, h1: 170, top2: 282, h2: 1
 const BLUE = PALETTE[0];
 const RUST = PALETTE[1];
 
+/** Maximal runs of consecutive items for which `pick` gives a value (a null ends the run), in order. */
+function contiguousRuns<T, U>(items: readonly T[], pick: (item: T) => U | null): U[][] {
+  const runs: U[][] = [];
+  let current: U[] = [];
+  for (const item of items) {
+    const v = pick(item);
+    if (v !== null) current.push(v);
+    else if (current.length > 0) {
+      runs.push(current);
+      current = [];
+    }
+  }
+  if (current.length > 0) runs.push(current);
+  return runs;
+}
+
+/** A polyline through a run of "x,y" points, or a dot when the run has a single point. */
+function lineOrDot(cls: string, run: string[], color: string): string {
+  if (run.length > 1) return `<polyline class="${cls}" points="${run.join(' ')}" fill="none" stroke="${color}" stroke-width="2"/>`;
+  const [cx, cy] = run[0].split(',');
+  return `<circle class="${cls}" cx="${cx}" cy="${cy}" r="3" fill="${color}"/>`;
+}
+
 function pLabel(exp: number): string {
   if (exp === 0) return '1';
   if (exp >= -3) return (10 ** exp).toFixed(-exp);
@@ -710,16 +733,7 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
   }
   out.push(`<rect x="${left}" y="${top1}" width="${plotRight - left}" height="${h1}" fill="none" stroke="${AXIS}" stroke-width="1"/>`);
   // Band, in contiguous runs of defined bounds.
-  const runs: TrajectoryPoint[][] = [];
-  let current: TrajectoryPoint[] = [];
-  for (const p of pts) {
-    if (p.lower !== null && p.upper !== null) current.push(p);
-    else if (current.length > 0) {
-      runs.push(current);
-      current = [];
-    }
-  }
-  if (current.length > 0) runs.push(current);
+  const runs = contiguousRuns(pts, (p) => (p.lower !== null && p.upper !== null ? p : null));
   for (const run of runs) {
     if (run.length === 1) {
       const p = run[0];
@@ -733,23 +747,10 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
   out.push(`<line class="zero-line" x1="${left}" x2="${plotRight}" y1="${c(yD(0))}" y2="${c(yD(0))}" stroke="${INK}" stroke-width="1.25" stroke-dasharray="5 4"/>`);
   out.push(text(plotRight - 4, yD(0) - 5, 'no difference', { 'text-anchor': 'end', 'font-size': 12, fill: INK, class: 'zero-label' }));
   // Estimate line, if given.
-  const estRuns: string[][] = [];
-  let est: string[] = [];
-  for (const p of pts) {
-    if (p.estimate !== undefined && p.estimate !== null) est.push(`${c(x(p.n))},${c(yD(p.estimate))}`);
-    else if (est.length > 0) {
-      estRuns.push(est);
-      est = [];
-    }
-  }
-  if (est.length > 0) estRuns.push(est);
-  for (const r of estRuns) {
-    out.push(
-      r.length > 1
-        ? `<polyline class="estimate" points="${r.join(' ')}" fill="none" stroke="${BLUE}" stroke-width="2"/>`
-        : `<circle class="estimate" cx="${r[0].split(',')[0]}" cy="${r[0].split(',')[1]}" r="3" fill="${BLUE}"/>`,
-    );
-  }
+  const estRuns = contiguousRuns(pts, (p) =>
+    p.estimate !== undefined && p.estimate !== null ? `${c(x(p.n))},${c(yD(p.estimate))}` : null,
+  );
+  for (const r of estRuns) out.push(lineOrDot('estimate', r, BLUE));
   if (runs.length === 0) out.push(text((left + plotRight) / 2, top1 + h1 / 2, 'not enough answers yet', { 'text-anchor': 'middle', 'font-size': 13, fill: MUTED, class: 'empty-note' }));
   out.push('</g>');
 
@@ -770,23 +771,8 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
   }
   out.push(`<rect x="${left}" y="${top2}" width="${plotRight - left}" height="${h2}" fill="none" stroke="${AXIS}" stroke-width="1"/>`);
   out.push(`<line class="alpha-line" x1="${left}" x2="${plotRight}" y1="${c(yP(alpha))}" y2="${c(yP(alpha))}" stroke="${INK}" stroke-width="1.25" stroke-dasharray="5 4"/>`);
-  const pRuns: string[][] = [];
-  let pr: string[] = [];
-  for (const p of pts) {
-    if (p.p !== null) pr.push(`${c(x(p.n))},${c(yP(p.p))}`);
-    else if (pr.length > 0) {
-      pRuns.push(pr);
-      pr = [];
-    }
-  }
-  if (pr.length > 0) pRuns.push(pr);
-  for (const r of pRuns) {
-    out.push(
-      r.length > 1
-        ? `<polyline class="p-line" points="${r.join(' ')}" fill="none" stroke="${RUST}" stroke-width="2"/>`
-        : `<circle class="p-line" cx="${r[0].split(',')[0]}" cy="${r[0].split(',')[1]}" r="3" fill="${RUST}"/>`,
-    );
-  }
+  const pRuns = contiguousRuns(pts, (p) => (p.p !== null ? `${c(x(p.n))},${c(yP(p.p))}` : null));
+  for (const r of pRuns) out.push(lineOrDot('p-line', r, RUST));
   if (firstBelow) {
     const fx = x(firstBelow.n);
     const fy = yP(firstBelow.p as number);
