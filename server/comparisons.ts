@@ -12,9 +12,10 @@
  * Caching and polling. A result depends on: the experiment (key and definition time `updatedAt`, which moves
  * with every PATCH: alpha, thresholds, planned size, labels), the measure, the pair, the options (alternative,
  * confidenceLevel, includeExcluded), the dataVersion and the rejected-value total of the experiment (values refused
- * at ingest are counted without moving the dataVersion, yet they feed the out_of_range flag). The cache key and the
+ * at ingest are counted without moving the dataVersion, yet they feed the out_of_range flag) and the number of
+ * recorded interim looks (a look changes the monitoring block without moving the dataVersion). The cache key and the
  * strong ETag are built from exactly these, plus CACHE_FORMAT (bumped when the reply's numbers or shape change).
- * `getComparisonStamp` reads the dataVersion and rejected total with one cheap query, so If-None-Match is answered
+ * `getComparisonStamp` reads the dataVersion, rejected total and look count with one cheap query, so If-None-Match is answered
  * (304) without reading values or computing anything. After new data arrive the dataVersion moves: every key of
  * the older version simply misses and ages out of the LRU; a poll recomputes only the entry it asks for (other
  * measures are recomputed when they are asked for, not before). Two replies with the same ETag carry the same
@@ -23,16 +24,13 @@
  * The LRU cache is bounded by entries and by an estimate of bytes (twice the JSON length, UTF-16), one per Store
  * (`comparisonServiceFor(store)`), shared by the routes and by `computeFamily` (used by the CSV export). Identical
  * requests that miss at the same time share one computation.
- *
- * Known limit: interim looks recorded with POST …/looks feed `monitoring` but do not (by this service's knowledge)
- * move the dataVersion; a look must move it for cached entries to pick the new look up.
  */
 import { createHash } from 'node:crypto';
 import { describe } from '../stats/descriptives.js';
 import { computeFlags, type FlagContext, type FlagThresholds } from '../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../stats/adjust.js';
 import { compareSamples, fromCounts, fromSortedValues, type Alternative, type Comparison, type Sample } from '../stats/index.js';
-import type { ConditionRecord, ExperimentRecord, MeasureRecord, MeasureSnapshot, Store } from './db/types.js';
+import type { ComparisonStamp, ConditionRecord, ExperimentRecord, MeasureRecord, MeasureSnapshot, Store } from './db/types.js';
 import { MAX_DENSE_COUNTS, type RunsSnapshot } from './db/responses.js';
 import { compareSorted, sharedComparePool, type ComparePool, type CompareResult } from './compare-worker.js';
 import { toShared } from './sorted-values-cache.js';
@@ -105,12 +103,7 @@ export interface ComparisonTarget {
   b: ConditionRecord;
 }
 
-interface Stamp {
-  dataVersion: number;
-  rejectedTotal: number;
-  /** Recorded interim looks of the experiment: a new look changes the monitoring block without moving dataVersion. */
-  looks?: number;
-}
+type Stamp = ComparisonStamp;
 
 // ---------------------------------------------------------------------------------------------------------
 // Resolution (404 / 422 with problem+json)
@@ -310,7 +303,7 @@ export class ComparisonService {
   async stamp(experiment: ExperimentRecord): Promise<Stamp> {
     const s = await this.store.responses.getComparisonStamp(experiment.key);
     if (!s) throw new ProblemError('not-found', `There is no experiment ${quote(experiment.id)}.`);
-    return { ...s, looks: await this.store.looks.count(experiment.key) };
+    return s;
   }
 
   comparisonKey(t: ComparisonTarget, o: ComparisonOptions, s: Stamp): string {
@@ -329,7 +322,7 @@ export class ComparisonService {
       o.includeExcluded ? 1 : 0,
       s.dataVersion,
       s.rejectedTotal,
-      s.looks ?? 0,
+      s.looks,
     ].join('|');
   }
 

@@ -305,8 +305,9 @@ export class SqliteResponseRepository implements ResponseRepository {
         `SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r JOIN measures m ON m.experiment_id = r.experiment_id WHERE m.id = ?`,
       )
       .pluck();
-    this.stampOf = db.prepare<[number], { data_version: number; rejected: number }>(
-      `SELECT e.data_version, (SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r WHERE r.experiment_id = e.id) AS rejected
+    this.stampOf = db.prepare<[number], { data_version: number; rejected: number; looks: number }>(
+      `SELECT e.data_version, (SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r WHERE r.experiment_id = e.id) AS rejected,
+              (SELECT count(*) FROM interim_looks l WHERE l.experiment_id = e.id) AS looks
        FROM experiments e WHERE e.id = ?`,
     );
     this.responseForExclusion = db.prepare<
@@ -806,7 +807,7 @@ export class SqliteResponseRepository implements ResponseRepository {
 
   async getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null> {
     const row = this.stampOf.get(experimentKey);
-    return row ? { dataVersion: row.data_version, rejectedTotal: row.rejected } : null;
+    return row ? { dataVersion: row.data_version, rejectedTotal: row.rejected, looks: row.looks } : null;
   }
 
   /**

@@ -195,12 +195,14 @@ export interface MeasureSnapshot {
 }
 
 /**
- * What a cached comparison depends on besides the definition: the dataVersion, and the rejected-value total
- * (refused values are counted without moving the dataVersion, yet they feed the out_of_range flag).
+ * What a cached comparison depends on besides the definition: the dataVersion, the rejected-value total
+ * (refused values are counted without moving the dataVersion, yet they feed the out_of_range flag) and the number
+ * of recorded interim looks (a new look changes the monitoring block without moving the dataVersion).
  */
 export interface ComparisonStamp {
   dataVersion: number;
   rejectedTotal: number;
+  looks: number;
 }
 
 export type ExclusionOutcome =
