@@ -103,6 +103,11 @@ const ComparisonsCsvQuery = FamilyQuery.extend({
 const READ = { scopes: ['read', 'admin'] as const, experimentParam: 'id' };
 const EXPORT_PROBLEMS = problems(400, 401, 403, 404, 500);
 
+/** The responses of a download route: 200 with a text file of `contentType` (documented by `example`), or a problem. */
+function fileResponse(description: string, contentType: string, example: string) {
+  return { 200: { description, content: { [contentType]: { schema: z.string().meta({ example }) } } }, ...EXPORT_PROBLEMS };
+}
+
 export async function exportRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
@@ -120,21 +125,12 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
           'containing commas, quotes or line breaks are quoted, quotes doubled. Responses stored after the export began are not ' +
           'included. The file can be imported into another service with `splitballot import` (the last three columns are ignored there).',
         params: ExperimentParams,
-        response: {
-          200: {
-            description: 'CSV file',
-            content: {
-              'text/csv': {
-                schema: z.string().meta({
-                  example:
-                    'responseId,condition,respondent,satisfaction,trust,fair_price,submittedAt,receivedAt,excluded,excludedReason\r\n' +
-                    'r-0001,bill-first,,7,5,42.5,2027-03-01T12:00:00.000Z,2027-03-01T12:00:01.204Z,false,\r\n',
-                }),
-              },
-            },
-          },
-          ...EXPORT_PROBLEMS,
-        },
+        response: fileResponse(
+          'CSV file',
+          'text/csv',
+          'responseId,condition,respondent,satisfaction,trust,fair_price,submittedAt,receivedAt,excluded,excludedReason\r\n' +
+            'r-0001,bill-first,,7,5,42.5,2027-03-01T12:00:00.000Z,2027-03-01T12:00:01.204Z,false,\r\n',
+        ),
       },
     },
     async (request, reply) => {
@@ -156,21 +152,12 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
           '{responseId, condition, respondent, values: {measure: number}, submittedAt, receivedAt, excluded, excludedReason}. ' +
           'Unanswered measures are absent from values.',
         params: ExperimentParams,
-        response: {
-          200: {
-            description: 'NDJSON file',
-            content: {
-              'application/x-ndjson': {
-                schema: z.string().meta({
-                  example:
-                    '{"responseId":"r-0001","condition":"bill-first","respondent":null,"values":{"satisfaction":7,"trust":5,"fair_price":42.5},' +
-                    '"submittedAt":"2027-03-01T12:00:00.000Z","receivedAt":"2027-03-01T12:00:01.204Z","excluded":false,"excludedReason":null}\n',
-                }),
-              },
-            },
-          },
-          ...EXPORT_PROBLEMS,
-        },
+        response: fileResponse(
+          'NDJSON file',
+          'application/x-ndjson',
+          '{"responseId":"r-0001","condition":"bill-first","respondent":null,"values":{"satisfaction":7,"trust":5,"fair_price":42.5},' +
+            '"submittedAt":"2027-03-01T12:00:00.000Z","receivedAt":"2027-03-01T12:00:01.204Z","excluded":false,"excludedReason":null}\n',
+        ),
       },
     },
     async (request, reply) => {
@@ -193,22 +180,13 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
           'means the quantity is not defined for these data (see the JSON comparison for the reason).',
         params: ExperimentParams,
         querystring: ComparisonsCsvQuery,
-        response: {
-          200: {
-            description: 'CSV file',
-            content: {
-              'text/csv': {
-                schema: z.string().meta({
-                  example:
-                    `${COMPARISON_CSV_COLUMNS.join(',')}\r\n` +
-                    'satisfaction,bill-first,service-first,212,205,6.61,2.02,7.12,1.94,7,3,7,2,-0.51,-0.895,-0.125,-2.6,414.8,0.0097,0.029,' +
-                    '19188,0.011,0.033,-1,-1,0,-0.257,-0.117,0.95,holm,heavy_ties,431\r\n',
-                }),
-              },
-            },
-          },
-          ...EXPORT_PROBLEMS,
-        },
+        response: fileResponse(
+          'CSV file',
+          'text/csv',
+          `${COMPARISON_CSV_COLUMNS.join(',')}\r\n` +
+            'satisfaction,bill-first,service-first,212,205,6.61,2.02,7.12,1.94,7,3,7,2,-0.51,-0.895,-0.125,-2.6,414.8,0.0097,0.029,' +
+            '19188,0.011,0.033,-1,-1,0,-0.257,-0.117,0.95,holm,heavy_ties,431\r\n',
+        ),
       },
     },
     async (request, reply) => {
