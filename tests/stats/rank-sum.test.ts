@@ -1,4 +1,3 @@
-import { readFileSync } from 'node:fs';
 import kruskalTest from '@stdlib/stats-kruskal-test';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
@@ -6,17 +5,15 @@ import { normalUpperTail } from '../../stats/distributions.js';
 import {
   analyseRankSum,
   exactCdf,
-  exactCost,
   exactDistribution,
   exactSf,
-  MAX_EXACT_CELLS,
-  MAX_EXACT_WORK,
   rankSum,
   rankSumFromAnalysis,
   type RankSumAnalysis,
 } from '../../stats/rank-sum.js';
 import { fromCounts, fromValues, type Sample } from '../../stats/sample.js';
 import type { Alternative, ExactMode } from '../../stats/types.js';
+import { exactAnalysis, expectRel, loadFixture, samples } from './fixtures.js';
 
 // ---------------------------------------------------------------------------------------------------
 // Fixture: tests/fixtures/r-reference.json, written by tests/reference/make-fixtures.R
@@ -38,10 +35,10 @@ interface Dataset {
   ties: boolean;
   cases: Case[];
 }
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-reference.json', import.meta.url), 'utf8')) as {
+const fixture = loadFixture<{
   tools: { R: string; coin: string };
   datasets: Dataset[];
-};
+}>('r-reference.json');
 
 /**
  * Tolerances (relative) against R:
@@ -53,28 +50,6 @@ const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-reference.json', 
  */
 const P_NORMAL_TOL = 1e-9;
 const P_EXACT_TOL = 1e-10;
-
-function relErr(actual: number, expected: number): number {
-  if (actual === expected) return 0;
-  return Math.abs(actual - expected) / Math.abs(expected);
-}
-
-function expectRel(actual: number | null, expected: number, tol: number, what: string): void {
-  expect(actual, `${what}: expected ${expected}, got null`).not.toBeNull();
-  const err = relErr(actual as number, expected);
-  expect(err, `${what}: expected ${expected}, actual ${actual}, relative error ${err}, tolerance ${tol}`).toBeLessThanOrEqual(tol);
-}
-
-function samples(d: Dataset): { a: Sample; b: Sample } {
-  return { a: fromValues(Object.freeze([...d.a])), b: fromValues(Object.freeze([...d.b])) };
-}
-
-/** The exact analysis of a data set when it fits the "always" limits (one per data set, shared by its cases). */
-function exactAnalysis(a: Sample, b: Sample, ties: boolean): RankSumAnalysis | null {
-  const cost = exactCost(a.n, b.n, ties ? 2 : 1);
-  if (cost.work > MAX_EXACT_WORK || cost.cells > MAX_EXACT_CELLS) return null;
-  return analyseRankSum(a, b, 'always');
-}
 
 describe('rankSum against R wilcox.test and coin::wilcox_test (tests/fixtures/r-reference.json)', () => {
   it('the fixture comes from R 4.2.2 and coin 1.4.2 and has ≥ 30 data sets, tied and tie-free', () => {

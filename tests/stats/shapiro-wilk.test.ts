@@ -1,8 +1,8 @@
-import { readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { fromCounts, fromValues } from '../../stats/sample.js';
 import { shapiroWilk } from '../../stats/shapiro-wilk.js';
+import { loadFixture, relErr } from './fixtures.js';
 
 interface ShapiroFixture {
   name: string;
@@ -15,10 +15,10 @@ interface ShapiroFixture {
   error?: string;
 }
 
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-shapiro.json', import.meta.url), 'utf8')) as {
+const fixture = loadFixture<{
   tools: { R: string };
   datasets: ShapiroFixture[];
-};
+}>('r-shapiro.json');
 
 /**
  * Tolerances against R 4.2.2's shapiro.test (swilk.c, all double precision since R 3.x; mirrored step
@@ -29,11 +29,6 @@ const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-shapiro.json', im
  */
 const W_TOL = 1e-12;
 const P_TOL = 1e-9;
-
-function relErr(actual: number, expected: number): number {
-  if (actual === expected) return 0;
-  return Math.abs(actual - expected) / Math.abs(expected);
-}
 
 function expectClose(actual: number, expected: number, tol: number, what: string): void {
   const err = relErr(actual, expected);
@@ -84,9 +79,9 @@ describe('shapiroWilk against R shapiro.test (tests/fixtures/r-shapiro.json, R 4
 });
 
 describe('shapiroWilk against the per-group shapiro.test values in tests/fixtures/r-reference.json (R 4.2.2)', () => {
-  const rReference = JSON.parse(readFileSync(new URL('../fixtures/r-reference.json', import.meta.url), 'utf8')) as {
+  const rReference = loadFixture<{
     datasets: { name: string; a: number[]; b: number[]; summaries: Record<'a' | 'b', { shapiro: { w: number; p: number } | null }> }[];
-  };
+  }>('r-reference.json');
   for (const d of rReference.datasets) {
     for (const g of ['a', 'b'] as const) {
       it(`${d.name}, group ${g} (n = ${d[g].length})`, () => {
