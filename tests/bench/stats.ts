@@ -27,15 +27,13 @@
 import { spawnSync } from 'node:child_process';
 import { mkdirSync, writeFileSync } from 'node:fs';
 import os from 'node:os';
-import { dirname, join, relative } from 'node:path';
+import { join, relative } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { compare, compareCounts, compareSamples, fromSortedValues, type Comparison } from '../../stats/index.js';
 import { ensureData, MAX_N, readStream, tally, ITEM_MIN } from './data.js';
+import { DATA_DIR, fitExponent, logger, median, RESULTS_DIR, ROOT } from './harness.js';
 
 const THIS_FILE = fileURLToPath(import.meta.url);
-const ROOT = join(dirname(THIS_FILE), '..', '..');
-const RESULTS_DIR = join(ROOT, 'bench-results');
-const DATA_DIR = join(RESULTS_DIR, 'data');
 /** Debian's interpreter with python3-scipy (the `python3` on PATH may be another one); override with BENCH_PYTHON. */
 const PYTHON = process.env.BENCH_PYTHON ?? '/usr/bin/python3';
 const RSCRIPT = process.env.BENCH_RSCRIPT ?? 'Rscript';
@@ -76,32 +74,7 @@ function referenceRepsFor(n: number): number {
   return 3;
 }
 
-const log = (msg: string): void => {
-  process.stderr.write(`[bench:stats] ${msg}\n`);
-};
-
-function median(xs: readonly number[]): number {
-  const s = [...xs].sort((x, y) => x - y);
-  const m = s.length >> 1;
-  return s.length % 2 === 1 ? s[m] : (s[m - 1] + s[m]) / 2;
-}
-
-/** Least-squares slope of log(y) on log(x). */
-function fitExponent(points: readonly { n: number; seconds: number }[]): number | null {
-  const ps = points.filter((p) => p.seconds > 0);
-  if (ps.length < 2) return null;
-  const xs = ps.map((p) => Math.log(p.n));
-  const ys = ps.map((p) => Math.log(p.seconds));
-  const mx = xs.reduce((s, x) => s + x, 0) / xs.length;
-  const my = ys.reduce((s, y) => s + y, 0) / ys.length;
-  let sxy = 0;
-  let sxx = 0;
-  for (let i = 0; i < xs.length; i++) {
-    sxy += (xs[i] - mx) * (ys[i] - my);
-    sxx += (xs[i] - mx) ** 2;
-  }
-  return sxx > 0 ? sxy / sxx : null;
-}
+const log = logger('stats');
 
 // ───────────────────────────── child: one path, one size ─────────────────────────────
 
