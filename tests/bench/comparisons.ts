@@ -29,11 +29,13 @@ import { ComparePool, compareSorted } from '../../server/compare-worker.js';
 import type { FlagContext } from '../../stats/flags.js';
 import { ensureData, readStream, type StreamName } from './data.js';
 import {
+  abExperiment,
   api,
   argv,
   batchJson,
   DATA_DIR,
   expectStatus,
+  finish,
   fitExponent,
   fmt,
   logger,
@@ -48,7 +50,6 @@ import {
   sendBatches,
   startService,
   table,
-  writeResults,
   type RunningServer,
 } from './harness.js';
 
@@ -74,19 +75,7 @@ const TARGETS = {
   peakRssMb: 500,
 };
 
-const EXPERIMENT = {
-  id: 'bench-compare',
-  title: 'Comparison benchmark (invented data)',
-  conditions: [
-    { id: 'a', label: 'Condition A' },
-    { id: 'b', label: 'Condition B' },
-  ],
-  measures: [
-    { id: 'score', label: 'Score 0–100', min: 0, max: 100, integer: true, required: true },
-    { id: 'amount', label: 'Amount (continuous)', min: -50, max: 50, integer: false, required: true },
-  ],
-  alpha: 0.05,
-};
+const EXPERIMENT = abExperiment('bench-compare', 'Comparison benchmark (invented data)');
 const PROBE = {
   id: 'bench-probe',
   title: 'Ingest probe (invented data)',
@@ -477,7 +466,7 @@ async function main(): Promise<void> {
   for (const v of verdicts) out.write(`${v}\n`);
 
   const summary = `comparisons: ${verdicts.filter((v) => v.startsWith('MET')).length} of ${verdicts.length} targets met${verdicts.some((v) => v.startsWith('MISSED')) ? ` (missed: ${verdicts.filter((v) => v.startsWith('MISSED')).map((v) => v.slice(7).split(':')[0]).join('; ')})` : ''}`;
-  const file = writeResults('comparisons', {
+  finish('comparisons', log, {
     startedAt: started,
     finishedAt: new Date().toISOString(),
     machine: { ...m0, loadAverageEnd: machine().loadAverage },
@@ -493,8 +482,6 @@ async function main(): Promise<void> {
     verdicts,
     summary,
   });
-  log(`wrote ${file}`);
-  out.write(`${summary}\n`);
 }
 
 await main();

@@ -19,6 +19,12 @@ export const MAIN_JS = join(ROOT, 'dist', 'server', 'main.js');
 export const argv = process.argv.slice(2);
 export const QUICK = argv.includes('--quick');
 
+/** The number after `name` on the command line, or `fallback` when the flag is absent. */
+export function argNum(name: string, fallback: number): number {
+  const i = argv.indexOf(name);
+  return i >= 0 ? Number(argv[i + 1]) : fallback;
+}
+
 export function logger(name: string): (msg: string) => void {
   return (msg) => process.stderr.write(`[bench:${name}] ${msg}\n`);
 }
@@ -81,6 +87,52 @@ export function writeResults(name: string, data: Record<string, unknown>): strin
   const file = join(RESULTS_DIR, `${name}${QUICK ? '-quick' : ''}.json`);
   writeFileSync(file, JSON.stringify({ note: `Written by tests/bench/${name}.ts on invented data.`, quick: QUICK, ...data }, null, 2) + '\n');
   return file;
+}
+
+/** Write bench-results/<name>.json (see writeResults), log where, and print the one-line summary last on stdout. */
+export function finish(name: string, log: (msg: string) => void, data: Record<string, unknown> & { summary: string }): void {
+  log(`wrote ${writeResults(name, data)}`);
+  process.stdout.write(`${data.summary}\n`);
+}
+
+// ───────────────────────────── experiment definitions ─────────────────────────────
+
+type Measure = { id: string; label: string; min: number; max: number; integer: boolean; required: boolean };
+
+/** The water-utility demo's three items (ingest-single.ts, load.ts), under a title naming the benchmark. */
+export function waterExperiment(title: string) {
+  return {
+    id: 'water-bill-2027',
+    title,
+    conditions: [
+      { id: 'bill-first', label: 'The bill questions come first' },
+      { id: 'service-first', label: 'The service questions come first' },
+    ],
+    measures: [
+      { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
+      { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
+      { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
+    ],
+    alpha: 0.05,
+  };
+}
+
+/** Conditions a and b with a 0–100 integer score and a continuous amount, then `extra` (ingest-batch.ts, comparisons.ts). */
+export function abExperiment(id: string, title: string, extra: Measure[] = []) {
+  return {
+    id,
+    title,
+    conditions: [
+      { id: 'a', label: 'Condition A' },
+      { id: 'b', label: 'Condition B' },
+    ],
+    measures: [
+      { id: 'score', label: 'Score 0–100', min: 0, max: 100, integer: true, required: true },
+      { id: 'amount', label: 'Amount (continuous)', min: -50, max: 50, integer: false, required: true },
+      ...extra,
+    ],
+    alpha: 0.05,
+  };
 }
 
 export async function freePort(): Promise<number> {

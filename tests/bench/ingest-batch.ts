@@ -21,11 +21,13 @@ import { checkBatch } from '../../server/ingest.js';
 import { parseJsonBody } from '../../server/json-body.js';
 import { ensureData, readStream } from './data.js';
 import {
+  abExperiment,
   api,
-  argv,
+  argNum,
   batchJson,
   DATA_DIR,
   expectStatus,
+  finish,
   fmt,
   logger,
   machine,
@@ -37,32 +39,16 @@ import {
   sendBatches,
   startService,
   table,
-  writeResults,
 } from './harness.js';
 
 const log = logger('ingest-batch');
-const argNum = (name: string, fallback: number): number => {
-  const i = argv.indexOf(name);
-  return i >= 0 ? Number(argv[i + 1]) : fallback;
-};
 const TOTAL = argNum('--responses', QUICK ? 200_000 : 1_000_000);
 const BATCH = 10_000;
 const TARGET = 100_000;
 
-const EXPERIMENT = {
-  id: 'bench-batch',
-  title: 'Batch ingest benchmark (invented data)',
-  conditions: [
-    { id: 'a', label: 'Condition A' },
-    { id: 'b', label: 'Condition B' },
-  ],
-  measures: [
-    { id: 'score', label: 'Score 0–100', min: 0, max: 100, integer: true, required: true },
-    { id: 'amount', label: 'Amount (continuous)', min: -50, max: 50, integer: false, required: true },
-    { id: 'agree', label: 'Agreement 1–7', min: 1, max: 7, integer: true, required: true },
-  ],
-  alpha: 0.05,
-};
+const EXPERIMENT = abExperiment('bench-batch', 'Batch ingest benchmark (invented data)', [
+  { id: 'agree', label: 'Agreement 1–7', min: 1, max: 7, integer: true, required: true },
+]);
 
 function makeBodies(total: number): string[] {
   const half = Math.ceil(total / 2);
@@ -163,7 +149,7 @@ async function main(): Promise<void> {
   );
   const met = perSecond >= TARGET && rows === TOTAL;
   const summary = `ingest-batch: ${fmt.int(perSecond)} responses/s over HTTP (target ≥ ${fmt.int(TARGET)}) — ${met ? 'MET' : 'MISSED'}`;
-  const file = writeResults('ingest-batch', {
+  finish('ingest-batch', log, {
     startedAt: started,
     finishedAt: new Date().toISOString(),
     machine: { ...m0, loadAverageEnd: machine().loadAverage },
@@ -180,8 +166,6 @@ async function main(): Promise<void> {
     met,
     summary,
   });
-  log(`wrote ${file}`);
-  process.stdout.write(`${summary}\n`);
 }
 
 await main();

@@ -14,31 +14,14 @@
  * invented values. Prints requests/s, p50/p99 latency, errors; target: service ≥ 0.7 × baseline requests/s.
  */
 import autocannon from 'autocannon';
-import { api, argv, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, startBaseline, startService, table, writeResults } from './harness.js';
+import { api, argNum, expectStatus, finish, fmt, logger, machine, newServiceEnv, QUICK, startBaseline, startService, table, waterExperiment } from './harness.js';
 
 const log = logger('ingest-single');
-const argNum = (name: string, fallback: number): number => {
-  const i = argv.indexOf(name);
-  return i >= 0 ? Number(argv[i + 1]) : fallback;
-};
 const DURATION = argNum('--duration', QUICK ? 5 : 20);
 const CONNECTIONS = argNum('--connections', 32);
 const TARGET_RATIO = 0.7;
 
-export const EXPERIMENT = {
-  id: 'water-bill-2027',
-  title: 'Water utility survey 2027: bill first or service first? (benchmark)',
-  conditions: [
-    { id: 'bill-first', label: 'The bill questions come first' },
-    { id: 'service-first', label: 'The service questions come first' },
-  ],
-  measures: [
-    { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-    { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
-    { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
-  ],
-  alpha: 0.05,
-};
+const EXPERIMENT = waterExperiment('Water utility survey 2027: bill first or service first? (benchmark)');
 
 interface Figures {
   requestsPerSecond: number;
@@ -147,7 +130,7 @@ async function main(): Promise<void> {
   );
   const met = ratio >= TARGET_RATIO && service.non2xx === 0 && service.errors === 0;
   const summary = `ingest-single: service ${fmt.int(service.requestsPerSecond)} req/s = ${ratio.toFixed(2)} × baseline ${fmt.int(baseline.requestsPerSecond)} req/s (target ≥ ${TARGET_RATIO}) — ${met ? 'MET' : 'MISSED'}`;
-  const file = writeResults('ingest-single', {
+  finish('ingest-single', log, {
     startedAt: started,
     finishedAt: new Date().toISOString(),
     machine: { ...m0, loadAverageEnd: machine().loadAverage },
@@ -160,8 +143,6 @@ async function main(): Promise<void> {
     met,
     summary,
   });
-  log(`wrote ${file}`);
-  process.stdout.write(`${summary}\n`);
 }
 
 await main();

@@ -14,29 +14,16 @@
  * machine sustains.
  */
 import autocannon from 'autocannon';
-import { api, argv, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, rssOf, startService, table, writeResults } from './harness.js';
+import { api, argNum, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, rssOf, startService, table, waterExperiment, writeResults } from './harness.js';
 
 const log = logger('load');
-const argNum = (name: string, fallback: number): number => {
-  const i = argv.indexOf(name);
-  return i >= 0 ? Number(argv[i + 1]) : fallback;
-};
 const DURATION = argNum('--duration', QUICK ? 5 : 30);
 const CONNECTIONS = argNum('--connections', 10);
 const POLL_SHARE = argNum('--poll-share', 0.2);
 const TARGET_P99_MS = 50;
 const EXP = 'water-bill-2027';
 
-const EXPERIMENT = {
-  id: EXP,
-  title: 'Water utility survey 2027: bill first or service first? (load test)',
-  conditions: [{ id: 'bill-first' }, { id: 'service-first' }],
-  measures: [
-    { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-    { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
-    { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
-  ],
-};
+const EXPERIMENT = waterExperiment('Water utility survey 2027: bill first or service first? (load test)');
 
 function answer(i: number): string {
   const condition = i % 2 === 0 ? 'bill-first' : 'service-first';
