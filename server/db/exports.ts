@@ -128,10 +128,6 @@ export interface BulkImport {
   readonly open: boolean;
 }
 
-type SyncIngest = ((experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null) => IngestOutcome) & {
-  immediate: (experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null) => IngestOutcome;
-};
-
 /**
  * Begin one write transaction for a bulk import. While it is open every statement on this connection belongs to
  * it: the HTTP route therefore calls add() for all chunks without awaiting anything in between, and the CLI owns
@@ -139,18 +135,14 @@ type SyncIngest = ((experimentKey: number, items: ValidResponse[], receivedAt: s
  */
 export function beginBulkImport(store: Store, experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport {
   const s = sqlite(store);
-  // The repository's synchronous ingest transaction. It is private to SqliteResponseRepository; reaching it here
-  // (inside server/db/) keeps the one implementation of ingest bookkeeping. Nested in our transaction it runs
-  // as a SAVEPOINT.
-  const ingestTx = (s.responses as unknown as { ingestTx?: SyncIngest }).ingestTx;
-  if (typeof ingestTx !== 'function') throw new TypeError('the response repository has no synchronous ingest transaction');
   if (s.db.inTransaction) throw new Error('a bulk import cannot start inside another transaction');
   s.db.prepare('BEGIN IMMEDIATE').run();
   let open = true;
   return {
     add(items) {
       if (!open) throw new Error('the import transaction is closed');
-      return ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
+      // The repository's one implementation of ingest bookkeeping, as a SAVEPOINT inside our transaction.
+      return s.responses.ingestWithinTransaction(experimentKey, items, receivedAt, apiKeyId);
     },
     commit() {
       if (!open) throw new Error('the import transaction is closed');

@@ -559,6 +559,16 @@ export class SqliteResponseRepository implements ResponseRepository {
     });
   }
 
+  /**
+   * Store one chunk synchronously inside a write transaction the caller already holds (the bulk import of
+   * server/db/exports.ts): the same bookkeeping as ingest() (idempotency, counts, dataVersion), run as a SAVEPOINT
+   * of the caller's transaction. SQLite only, so not part of ResponseRepository.
+   */
+  ingestWithinTransaction(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): IngestOutcome {
+    if (!this.db.inTransaction) throw new Error('ingestWithinTransaction needs an open transaction');
+    return this.ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
+  }
+
   /** Stored content hashes of the batch's client ids (one statement per ID_LOOKUP_CHUNK distinct ids). */
   private lookupHashes(experimentKey: number, items: ValidResponse[]): Map<string, Uint8Array> {
     const ids = [...new Set(items.filter((x) => !x.generated).map((x) => x.responseId))];
