@@ -6,9 +6,10 @@ import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
-import { afterAll } from 'vitest';
+import { afterAll, afterEach, beforeEach, expect } from 'vitest';
 import { buildApp } from '../../server/app.js';
 import { generateSecret, hashSecret } from '../../server/auth.js';
+import { runCli } from '../../server/cli.js';
 import type { Config } from '../../server/config.js';
 import { openSqliteStore, type SqliteStore } from '../../server/db/store.js';
 import type { Scope } from '../../server/db/types.js';
@@ -141,6 +142,35 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
     },
   } as TestApp;
   return t;
+}
+
+/**
+ * A fresh app for every test of the file (closed after it), with the water experiment created unless
+ * `water: false`. `use` receives each new app: `let t: TestApp; eachTestApp((app) => (t = app));`.
+ */
+export function eachTestApp(use: (t: TestApp) => void, options: { water?: boolean; config?: Partial<Config> } = {}): void {
+  let current: TestApp | undefined;
+  beforeEach(async () => {
+    current = await startTestApp({ config: options.config });
+    use(current);
+    if (options.water !== false) expect((await current.createWater()).statusCode).toBe(201);
+  });
+  afterEach(async () => {
+    await current?.close();
+    current = undefined;
+  });
+}
+
+/** Run the splitballot command line in this process with LOG_LEVEL=silent (plus env), capturing its output. */
+export async function cli(args: string[], env: Record<string, string> = {}): Promise<{ code: number; stdout: string; stderr: string }> {
+  let stdout = '';
+  let stderr = '';
+  const code = await runCli(args, {
+    stdout: { write: (s: string) => (stdout += s) },
+    stderr: { write: (s: string) => (stderr += s) },
+    env: { LOG_LEVEL: 'silent', ...env },
+  });
+  return { code, stdout, stderr };
 }
 
 /** Every row of every application table, for "the database is unchanged" comparisons. */

@@ -8,10 +8,9 @@
  */
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { runCli } from '../../server/cli.js';
 import { checkFile } from '../../server/backup.js';
 import { openDatabase } from '../../server/db/open.js';
-import { startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { cli, startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
 let base = '';
@@ -75,13 +74,7 @@ describe('backup while ingest runs', () => {
     // (b) with the CLI, from another connection.
     const beforeCli = acked.slice();
     const cliPath = join(tempDir(), 'cli-under-load.db');
-    let out = '';
-    let err = '';
-    const code = await runCli(['backup', cliPath], {
-      stdout: { write: (s: string) => (out += s) },
-      stderr: { write: (s: string) => (err += s) },
-      env: { SPLITBALLOT_DB: t.dbPath, LOG_LEVEL: 'silent' },
-    });
+    const { code, stdout: out, stderr: err } = await cli(['backup', cliPath], { SPLITBALLOT_DB: t.dbPath });
     await new Promise((r) => setTimeout(r, 200));
     running = false;
     await clients;

@@ -2,20 +2,16 @@
  * API keys: each scope against each route, experiment-limited keys, revoked/unknown/missing/malformed keys,
  * the environment admin key, the first-start admin key, and the rule that every route declares its access.
  */
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { beforeEach, describe, expect, it } from 'vitest';
 import { buildApp } from '../../server/app.js';
 import { ensureAdminKey, generateSecret, hashSecret } from '../../server/auth.js';
-import { startTestApp, testConfig, waterResponse, WATER_ID, tempDir, type TestApp } from '../helpers/app.js';
+import { eachTestApp, testConfig, waterResponse, WATER_ID, tempDir, type TestApp } from '../helpers/app.js';
 import { join } from 'node:path';
 
 let t: TestApp;
+eachTestApp((app) => (t = app));
 beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
   expect((await t.createWater({ id: 'other-study' })).statusCode).toBe(201);
-});
-afterEach(async () => {
-  await t.close();
 });
 
 let counter = 0;

@@ -11,20 +11,8 @@ import { copyFileSync, existsSync, readdirSync, statSync, writeFileSync } from '
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { acquireServerLock } from '../../server/backup.js';
-import { runCli } from '../../server/cli.js';
 import { openDatabase } from '../../server/db/open.js';
-import { dumpTables, startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
-
-async function cli(args: string[], env: Record<string, string> = {}) {
-  let stdout = '';
-  let stderr = '';
-  const code = await runCli(args, {
-    stdout: { write: (s: string) => (stdout += s) },
-    stderr: { write: (s: string) => (stderr += s) },
-    env: { LOG_LEVEL: 'silent', ...env },
-  });
-  return { code, stdout, stderr };
-}
+import { cli, dumpTables, startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
 let backupDir: string;

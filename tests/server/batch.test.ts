@@ -2,19 +2,13 @@
  * POST /v1/experiments/{id}/responses/batch: all or nothing, every problem listed by index, repeats and
  * conflicts, counts aggregated correctly, limits.
  */
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { dumpTables, startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { describe, expect, it } from 'vitest';
+import { dumpTables, eachTestApp, WATER_ID, waterResponse, type TestApp } from '../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses/batch`;
 
 let t: TestApp;
-beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
-});
-afterEach(async () => {
-  await t.close();
-});
+eachTestApp((app) => (t = app));
 
 /** Deterministic invented answers: item i of a batch. */
 function item(i: number, prefix = 'b'): Record<string, unknown> {

@@ -7,22 +7,10 @@ import { spawn } from 'node:child_process';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { describe, expect, it } from 'vitest';
-import { runCli } from '../../server/cli.js';
 import { openDatabase } from '../../server/db/open.js';
-import { tempDir } from '../helpers/app.js';
+import { cli, tempDir } from '../helpers/app.js';
 
 const ROOT = fileURLToPath(new URL('../../', import.meta.url));
-
-async function cli(args: string[], env: Record<string, string> = {}) {
-  let stdout = '';
-  let stderr = '';
-  const code = await runCli(args, {
-    stdout: { write: (s: string) => (stdout += s) },
-    stderr: { write: (s: string) => (stderr += s) },
-    env: { LOG_LEVEL: 'silent', ...env },
-  });
-  return { code, stdout, stderr };
-}
 
 describe('help', () => {
   it('--help on the program and on each command', async () => {

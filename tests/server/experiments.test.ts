@@ -1,14 +1,9 @@
 /** Experiments: create, list, read with counts, change; every validation rule with its problem body. */
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { startTestApp, waterBillDefinition, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { describe, expect, it } from 'vitest';
+import { eachTestApp, WATER_ID, waterBillDefinition, waterResponse, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
-beforeEach(async () => {
-  t = await startTestApp();
-});
-afterEach(async () => {
-  await t.close();
-});
+eachTestApp((app) => (t = app), { water: false });
 
 const ISO = expect.stringMatching(/^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{3}Z$/);
 

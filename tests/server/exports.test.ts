@@ -3,21 +3,15 @@
  * state), responses.ndjson, comparisons.csv, and access. All data are invented.
  */
 import { parse } from 'csv-parse/sync';
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { describe, expect, it } from 'vitest';
 import { exportResponsePages } from '../../server/db/exports.js';
 import { COMPARISON_CSV_COLUMNS, csvStream } from '../../server/routes/exports.js';
-import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { eachTestApp, WATER_ID, waterResponse, type TestApp } from '../helpers/app.js';
 
 const BASE = `/v1/experiments/${WATER_ID}`;
 
 let t: TestApp;
-beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
-});
-afterEach(async () => {
-  await t.close();
-});
+eachTestApp((app) => (t = app));
 
 async function post(body: Record<string, unknown>) {
   const res = await t.request({ method: 'POST', url: `${BASE}/responses`, payload: body });

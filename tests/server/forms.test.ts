@@ -2,8 +2,8 @@
  * HTML form posts (application/x-www-form-urlencoded): strict number parsing, the ingest key in a form field,
  * 303 to the thank-you page for browsers, a readable HTML error page, JSON answers for scripts.
  */
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
+import { beforeEach, describe, expect, it } from 'vitest';
+import { eachTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses`;
 const FORM = { 'content-type': 'application/x-www-form-urlencoded' };
@@ -12,13 +12,9 @@ const BROWSER_ACCEPT = 'text/html,application/xhtml+xml,application/xml;q=0.9,im
 
 let t: TestApp;
 let ingest: string;
+eachTestApp((app) => (t = app));
 beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
   ingest = await t.key('ingest', WATER_ID, 'web form');
-});
-afterEach(async () => {
-  await t.close();
 });
 
 function form(fields: Record<string, string>): string {

@@ -6,22 +6,15 @@
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { parse } from 'csv-parse/sync';
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { runCli } from '../../server/cli.js';
+import { describe, expect, it } from 'vitest';
 import { IMPORT_BODY_LIMIT, importCsvBuffer } from '../../server/csv-import.js';
-import { dumpTables, startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
+import { cli as runCliCaptured, dumpTables, eachTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses/import`;
 const HEADER = 'responseId,condition,respondent,satisfaction,trust,fair_price';
 
 let t: TestApp;
-beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
-});
-afterEach(async () => {
-  await t.close();
-});
+eachTestApp((app) => (t = app));
 
 function dataTables() {
   const d = dumpTables(t.store);
@@ -39,15 +32,8 @@ function post(body: string, query = '', key?: string) {
   return t.request({ method: 'POST', url: `${URL}${query}`, headers: { 'content-type': 'text/csv' }, payload: body, key });
 }
 
-async function cli(args: string[]) {
-  let stdout = '';
-  let stderr = '';
-  const code = await runCli(args, {
-    stdout: { write: (s: string) => (stdout += s) },
-    stderr: { write: (s: string) => (stderr += s) },
-    env: { LOG_LEVEL: 'silent', SPLITBALLOT_DB: t.dbPath },
-  });
-  return { code, stdout, stderr };
+function cli(args: string[]) {
+  return runCliCaptured(args, { SPLITBALLOT_DB: t.dbPath });
 }
 
 describe('POST …/responses/import', () => {

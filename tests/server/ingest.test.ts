@@ -2,20 +2,14 @@
  * POST /v1/experiments/{id}/responses with JSON: every validation rule with its exact problem+json body,
  * nothing stored on a 422, rejected-value counters, idempotent and conflicting retries, closed experiments.
  */
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import { dumpTables, startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { describe, expect, it } from 'vitest';
+import { dumpTables, eachTestApp, WATER_ID, waterResponse, type TestApp } from '../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses`;
 const VALIDATION = { type: 'urn:splitballot:problem:validation-failed', title: 'Validation failed', status: 422 };
 
 let t: TestApp;
-beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
-});
-afterEach(async () => {
-  await t.close();
-});
+eachTestApp((app) => (t = app));
 
 function rejectedCounts(): { measure: string; reason: string; count: number }[] {
   return t.store.db
