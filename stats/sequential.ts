@@ -199,28 +199,25 @@ class Recursion {
   /** P(exit above b at the look at fraction t, not having stopped before). */
   upperExit(t: number, b: number): number {
     if (b === Infinity) return 0;
-    if (this.prev === null) return normalUpperTail(b - this.drift * Math.sqrt(t));
-    const { z, f } = this.prev;
-    const sd = Math.sqrt(t - this.tPrev);
-    const sqt = Math.sqrt(t);
-    const sq0 = Math.sqrt(this.tPrev);
-    const shift = this.drift * (t - this.tPrev);
-    let s = 0;
-    for (let j = 0; j < z.length; j++) s += f[j] * normalUpperTail((b * sqt - z[j] * sq0 - shift) / sd);
-    return s;
+    return this.exit(t, b, normalUpperTail);
   }
 
   /** P(exit below a at the look at fraction t, not having stopped before). */
   lowerExit(t: number, a: number): number {
     if (a === -Infinity) return 0;
-    if (this.prev === null) return normalCdf(a - this.drift * Math.sqrt(t));
+    return this.exit(t, a, normalCdf);
+  }
+
+  /** The exit probability across `bound` at fraction t, with `tail` the normal tail on the exit side. */
+  private exit(t: number, bound: number, tail: (z: number) => number): number {
+    if (this.prev === null) return tail(bound - this.drift * Math.sqrt(t));
     const { z, f } = this.prev;
     const sd = Math.sqrt(t - this.tPrev);
     const sqt = Math.sqrt(t);
     const sq0 = Math.sqrt(this.tPrev);
     const shift = this.drift * (t - this.tPrev);
     let s = 0;
-    for (let j = 0; j < z.length; j++) s += f[j] * normalCdf((a * sqt - z[j] * sq0 - shift) / sd);
+    for (let j = 0; j < z.length; j++) s += f[j] * tail((bound * sqt - z[j] * sq0 - shift) / sd);
     return s;
   }
 
