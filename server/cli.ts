@@ -372,30 +372,22 @@ async function backupCommand(args: string[], io: CliIo): Promise<number> {
     return 1;
   }
   io.stderr.write(`backing up ${config.dbPath} to ${destination}\n`);
-  try {
-    const progress = progressWriter(io, 'backup');
-    const result = await backupFile(config.dbPath, destination, { onProgress: progress });
-    progress({ totalPages: result.pages, remainingPages: 0 });
-    io.stderr.write(`checking the copy\n`);
-    const report = checkFile(result.path, (stage) => io.stderr.write(`check: ${stage}\n`));
-    const mib = (result.bytes / 1048576).toFixed(1);
-    if (!report.ok) {
-      for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
-      io.stdout.write(`backup written but its ${checkSummary(report, result.path)}\n`);
-      return 1;
-    }
-    io.stdout.write(
-      `backup ok: ${result.path} (${mib} MiB, ${result.pages.toLocaleString('en-US')} pages, ${report.counts.responses.toLocaleString('en-US')} responses ` +
-        `in ${report.counts.experiments} experiment${report.counts.experiments === 1 ? '' : 's'}) in ${(result.durationMs / 1000).toFixed(1)} s; integrity and counts checked\n`,
-    );
-    return 0;
-  } catch (err) {
-    if (err instanceof BackupError) {
-      io.stderr.write(`splitballot: ${err.message}\n`);
-      return 1;
-    }
-    throw err;
+  const progress = progressWriter(io, 'backup');
+  const result = await backupFile(config.dbPath, destination, { onProgress: progress });
+  progress({ totalPages: result.pages, remainingPages: 0 });
+  io.stderr.write(`checking the copy\n`);
+  const report = checkFile(result.path, (stage) => io.stderr.write(`check: ${stage}\n`));
+  const mib = (result.bytes / 1048576).toFixed(1);
+  if (!report.ok) {
+    for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
+    io.stdout.write(`backup written but its ${checkSummary(report, result.path)}\n`);
+    return 1;
   }
+  io.stdout.write(
+    `backup ok: ${result.path} (${mib} MiB, ${result.pages.toLocaleString('en-US')} pages, ${report.counts.responses.toLocaleString('en-US')} responses ` +
+      `in ${report.counts.experiments} experiment${report.counts.experiments === 1 ? '' : 's'}) in ${(result.durationMs / 1000).toFixed(1)} s; integrity and counts checked\n`,
+  );
+  return 0;
 }
 
 async function restoreCommand(args: string[], io: CliIo): Promise<number> {
@@ -433,18 +425,10 @@ async function checkCommand(args: string[], io: CliIo): Promise<number> {
     return 0;
   }
   const path = values.db ?? loadConfig(io.env).dbPath;
-  try {
-    const report = checkFile(path, (stage) => io.stderr.write(`check: ${stage}\n`));
-    for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
-    io.stdout.write(`${checkSummary(report, path)}\n`);
-    return report.ok ? 0 : 1;
-  } catch (err) {
-    if (err instanceof BackupError) {
-      io.stderr.write(`splitballot: ${err.message}\n`);
-      return 1;
-    }
-    throw err;
-  }
+  const report = checkFile(path, (stage) => io.stderr.write(`check: ${stage}\n`));
+  for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
+  io.stdout.write(`${checkSummary(report, path)}\n`);
+  return report.ok ? 0 : 1;
 }
 
 export async function runCli(argv: string[], io: CliIo): Promise<number> {
@@ -477,7 +461,8 @@ export async function runCli(argv: string[], io: CliIo): Promise<number> {
         throw new UsageError(`unknown command "${command}"`);
     }
   } catch (err) {
-    if (err instanceof ConfigError || err instanceof MigrationError) {
+    // BackupError: backup and check report it this way; restore words its own ("restore refused: …").
+    if (err instanceof ConfigError || err instanceof MigrationError || err instanceof BackupError) {
       io.stderr.write(`splitballot: ${err.message}\n`);
       return 1;
     }
