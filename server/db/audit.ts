@@ -36,16 +36,7 @@ export class AuditWriter {
     );
   }
 
-  record(entry: {
-    experimentKey: number;
-    action: AuditAction;
-    responseId: string | null;
-    reason: string | null;
-    count: number;
-    apiKeyId: number | null;
-    at: string;
-    dataVersion: number;
-  }): void {
+  record(entry: Omit<AuditEntry, 'id' | 'redacted'> & { experimentKey: number }): void {
     this.insert.run(entry.experimentKey, entry.action, entry.responseId, entry.reason, entry.count, entry.apiKeyId, entry.at, entry.dataVersion);
   }
 
