@@ -3,7 +3,7 @@
  * and compared.
  */
 import type { SqliteDatabase } from './open.js';
-import type { ApiKeyRecord, ApiKeyRepository, Scope } from './types.js';
+import type { ApiKeyRecord, ApiKeyRepository, NewApiKey, Scope } from './types.js';
 
 interface KeyRow {
   id: number;
@@ -77,14 +77,7 @@ export class SqliteApiKeyRepository implements ApiKeyRepository {
     });
   }
 
-  async create(key: {
-    hash: Uint8Array;
-    scope: Scope;
-    experimentKey: number | null;
-    label: string;
-    origin: ApiKeyRecord['origin'];
-    createdAt: string;
-  }): Promise<ApiKeyRecord> {
+  async create(key: NewApiKey): Promise<ApiKeyRecord> {
     const info = this.insert.run(key.hash, key.scope, key.experimentKey, key.label, key.origin, key.createdAt);
     const row = this.byId.get(Number(info.lastInsertRowid));
     if (!row) throw new Error('API key vanished after insert');

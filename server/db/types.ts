@@ -312,15 +312,18 @@ export interface ApiKeyRecord {
   lastUsedAt: string | null;
 }
 
+/** What ApiKeyRepository.create stores: the hash of the secret, never the secret itself. */
+export interface NewApiKey {
+  hash: Uint8Array;
+  scope: Scope;
+  experimentKey: number | null;
+  label: string;
+  origin: ApiKeyRecord['origin'];
+  createdAt: string;
+}
+
 export interface ApiKeyRepository {
-  create(key: {
-    hash: Uint8Array;
-    scope: Scope;
-    experimentKey: number | null;
-    label: string;
-    origin: ApiKeyRecord['origin'];
-    createdAt: string;
-  }): Promise<ApiKeyRecord>;
+  create(key: NewApiKey): Promise<ApiKeyRecord>;
   /** The key whose hash this is, revoked or not, or null. */
   findByHash(hash: Uint8Array): Promise<(ApiKeyRecord & { hash: Uint8Array }) | null>;
   list(): Promise<ApiKeyRecord[]>;
