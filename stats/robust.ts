@@ -200,6 +200,11 @@ function trimmedMoments(s: Sample, trim: number): TrimmedMoments | null {
   return { n, g, h, shift, trimmedOffset, winsorizedVariance: ss / (h - 1) };
 }
 
+/** Yuen's test with no statistic (t, df and p null), and why. */
+function yuenNull(trim: number, difference: number | null, reason: string): YuenWelchResult {
+  return freezeDeep({ trim, t: null, df: null, p: null, difference, reason });
+}
+
 /**
  * Yuen's two-sample trimmed t test with Welch–Satterthwaite df (as scipy's
  * ttest_ind(a, b, equal_var=False, trim)). `trim` in [0, 0.5), default 0.2. O(K_a + K_b).
@@ -213,42 +218,20 @@ export function yuenWelch(a: Sample, b: Sample, opts: { alternative: Alternative
   const ma = trimmedMoments(a, trim);
   const mb = trimmedMoments(b, trim);
   if (ma === null || mb === null) {
-    return freezeDeep({
-      trim,
-      t: null,
-      df: null,
-      p: null,
-      difference: null,
-      reason: `Yuen's test needs observations in both groups (a has ${a.n}, b has ${b.n}).`,
-    });
+    return yuenNull(trim, null, `Yuen's test needs observations in both groups (a has ${a.n}, b has ${b.n}).`);
   }
   // (shift_a − shift_b) is exact for nearby values (Sterbenz) and the offsets are small, so the
   // difference keeps its digits even when both trimmed means sit near 1e12, where each mean on its own
   // cannot be represented closer than ulp(1e12) ≈ 1.2e-4.
   const difference = ma.shift - mb.shift + (ma.trimmedOffset - mb.trimmedOffset);
   if (ma.winsorizedVariance === null || mb.winsorizedVariance === null) {
-    return freezeDeep({
-      trim,
-      t: null,
-      df: null,
-      p: null,
-      difference,
-      reason: `Yuen's test needs at least 2 observations left after trimming ${trim} from each end in each group (a keeps ${ma.h} of ${ma.n}, b keeps ${mb.h} of ${mb.n}).`,
-    });
+    return yuenNull(trim, difference, `Yuen's test needs at least 2 observations left after trimming ${trim} from each end in each group (a keeps ${ma.h} of ${ma.n}, b keeps ${mb.h} of ${mb.n}).`);
   }
   const da = ma.winsorizedVariance / ma.h;
   const db = mb.winsorizedVariance / mb.h;
   const total = da + db;
   if (!(total > 0)) {
-    return freezeDeep({
-      trim,
-      t: null,
-      df: null,
-      p: null,
-      difference,
-      reason:
-        'both winsorized variances are 0 (after winsorizing, each group is constant), so the standard error is 0 and t is undefined (scipy returns ±inf or nan).',
-    });
+    return yuenNull(trim, difference, 'both winsorized variances are 0 (after winsorizing, each group is constant), so the standard error is 0 and t is undefined (scipy returns ±inf or nan).');
   }
   const t = difference / Math.sqrt(total);
   const df = (total * total) / ((da * da) / (ma.h - 1) + (db * db) / (mb.h - 1));
