@@ -3,6 +3,7 @@
  * server (dist/server/main.js serve) as a child process on a temporary database file, talk to it over HTTP on
  * 127.0.0.1, read its peak memory, and print/write results. A script helper, not a test.
  */
+import type autocannon from 'autocannon';
 import { spawn, type ChildProcess } from 'node:child_process';
 import { randomBytes } from 'node:crypto';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync, writeFileSync } from 'node:fs';
@@ -93,6 +94,21 @@ export function writeResults(name: string, data: Record<string, unknown>): strin
 export function finish(name: string, log: (msg: string) => void, data: Record<string, unknown> & { summary: string }): void {
   log(`wrote ${writeResults(name, data)}`);
   process.stdout.write(`${data.summary}\n`);
+}
+
+/** The figures every autocannon run reports (ingest-single.ts, load.ts). */
+export function autocannonFigures(result: autocannon.Result) {
+  return {
+    requestsPerSecond: result.requests.average,
+    requestsPerSecondMedian: result.requests.p50,
+    latencyP50Ms: result.latency.p50,
+    latencyP99Ms: result.latency.p99,
+    latencyMaxMs: result.latency.max,
+    total: result.requests.total,
+    non2xx: result.non2xx,
+    errors: result.errors,
+    timeouts: result.timeouts,
+  };
 }
 
 // ───────────────────────────── experiment definitions ─────────────────────────────

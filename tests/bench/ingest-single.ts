@@ -14,7 +14,7 @@
  * invented values. Prints requests/s, p50/p99 latency, errors; target: service ≥ 0.7 × baseline requests/s.
  */
 import autocannon from 'autocannon';
-import { api, argNum, expectStatus, finish, fmt, logger, machine, newServiceEnv, QUICK, startBaseline, startService, table, waterExperiment } from './harness.js';
+import { api, argNum, autocannonFigures, expectStatus, finish, fmt, logger, machine, newServiceEnv, QUICK, startBaseline, startService, table, waterExperiment } from './harness.js';
 
 const log = logger('ingest-single');
 const DURATION = argNum('--duration', QUICK ? 5 : 20);
@@ -23,17 +23,7 @@ const TARGET_RATIO = 0.7;
 
 const EXPERIMENT = waterExperiment('Water utility survey 2027: bill first or service first? (benchmark)');
 
-interface Figures {
-  requestsPerSecond: number;
-  requestsPerSecondMedian: number;
-  latencyP50Ms: number;
-  latencyP99Ms: number;
-  latencyMaxMs: number;
-  total: number;
-  non2xx: number;
-  errors: number;
-  timeouts: number;
-}
+type Figures = ReturnType<typeof autocannonFigures>;
 
 function bodyMaker(prefix: string): () => string {
   let i = 0;
@@ -64,17 +54,7 @@ async function hammer(url: string, headers: Record<string, string>, makeBody: ()
       },
     ],
   });
-  return {
-    requestsPerSecond: result.requests.average,
-    requestsPerSecondMedian: result.requests.p50,
-    latencyP50Ms: result.latency.p50,
-    latencyP99Ms: result.latency.p99,
-    latencyMaxMs: result.latency.max,
-    total: result.requests.total,
-    non2xx: result.non2xx,
-    errors: result.errors,
-    timeouts: result.timeouts,
-  };
+  return autocannonFigures(result);
 }
 
 async function main(): Promise<void> {

@@ -14,7 +14,7 @@
  * machine sustains.
  */
 import autocannon from 'autocannon';
-import { api, argNum, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, rssOf, startService, table, waterExperiment, writeResults } from './harness.js';
+import { api, argNum, autocannonFigures, expectStatus, fmt, logger, machine, newServiceEnv, QUICK, rssOf, startService, table, waterExperiment, writeResults } from './harness.js';
 
 const log = logger('load');
 const DURATION = argNum('--duration', QUICK ? 5 : 30);
@@ -82,15 +82,7 @@ async function main(): Promise<void> {
       durationSeconds: DURATION,
       connections: CONNECTIONS,
       pollShare: 2 / requests.length,
-      requestsPerSecond: result.requests.average,
-      requestsPerSecondMedian: result.requests.p50,
-      latencyP50Ms: result.latency.p50,
-      latencyP99Ms: result.latency.p99,
-      latencyMaxMs: result.latency.max,
-      total: result.requests.total,
-      errors: result.errors,
-      timeouts: result.timeouts,
-      non2xx: result.non2xx,
+      ...autocannonFigures(result),
       statusCodes: Object.fromEntries(Object.entries(statusCodes).map(([k, v]) => [k, v.count])),
       storedResponses: check.body.counts.responses,
       serverPeakRssMb: memory?.peakMb ?? null,
