@@ -152,7 +152,9 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
         expect(s!.text, `${m}: ${field}`).not.toBe('—');
       }
       const entry = family.comparisons.find((c: { measure: string }) => c.measure === m);
-      for (const s of shown.filter((x) => x.source === 'family')) {
+      const fromFamily = shown.filter((x) => x.source === 'family');
+      expect(fromFamily.map((s) => s.field), `${m}: adjusted p-values shown`).toEqual(['adjusted.welchP', 'adjusted.mannWhitneyP']);
+      for (const s of fromFamily) {
         expect(s.text, `${m} family ${s.field}`).toBe(formatByKind(s.format, readPath(entry, s.field)));
         checked++;
       }
