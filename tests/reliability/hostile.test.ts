@@ -56,6 +56,8 @@ beforeAll(async () => {
     waterResponse({ responseId: `base-${i}`, respondent: `p-${i}`, condition: i % 2 ? 'bill-first' : 'service-first' }, { satisfaction: i % 11, trust: 1 + (i % 7) }),
   );
   expect((await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, payload: { responses } })).statusCode).toBe(201);
+  // One refused value, so that the baseline has a rejected-value counter whose "may only grow" rule is checked.
+  expect((await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, payload: waterResponse({}, { satisfaction: 11 }) })).statusCode).toBe(422);
   writeRoutes = t.app.routeTable.filter((r) => ['POST', 'PUT', 'PATCH', 'DELETE'].includes(r.method)).map((r) => ({ method: r.method, url: r.url }));
   baseline = dumpAll();
   baselineVersion = (t.store.db.prepare(`SELECT data_version FROM experiments WHERE slug = ?`).pluck().get(WATER_ID) as number) ?? 0;
@@ -307,6 +309,7 @@ describe('hostile input', () => {
         // Counters of refused values may only grow; no row disappears.
         const key = (r: Record<string, unknown>) => `${r.experiment_id}|${r.measure_id}|${r.reason}`;
         const nowByKey = new Map(now.map((r) => [key(r), r.count as number]));
+        expect(before.length).toBeGreaterThan(0);
         for (const r of before) expect(nowByKey.get(key(r)) ?? -1, key(r)).toBeGreaterThanOrEqual(r.count as number);
         continue;
       }
