@@ -84,26 +84,23 @@ function wholeNumber(message: string, max: number, fallback: number, min = 0) {
   );
 }
 
-const EnvSchema = z.object({
-  PORT: z.preprocess(
+/** An optional secret (admin key, metrics token): printable ASCII without spaces, at least `minLength` characters. */
+function secret(minLength: number) {
+  return z.preprocess(
     emptyToUndefined,
     z
       .string()
-      .regex(/^\d{1,5}$/, 'must be a whole number from 0 to 65535')
-      .transform(Number)
-      .refine((n) => n <= 65535, 'must be a whole number from 0 to 65535')
-      .default(8080),
-  ),
-  HOST: z.preprocess(emptyToUndefined, z.string().regex(/^[^\s/]+$/, 'must be a host name or address').default('127.0.0.1')),
-  SPLITBALLOT_DB: z.preprocess(emptyToUndefined, z.string().default('./data/splitballot.db')),
-  SPLITBALLOT_ADMIN_KEY: z.preprocess(
-    emptyToUndefined,
-    z
-      .string()
-      .min(MIN_ADMIN_KEY_LENGTH, `must be at least ${MIN_ADMIN_KEY_LENGTH} characters (for example the output of \`openssl rand -hex 32\`)`)
+      .min(minLength, `must be at least ${minLength} characters (for example the output of \`openssl rand -hex 32\`)`)
       .regex(/^[\x21-\x7e]+$/, 'must be printable ASCII without spaces')
       .optional(),
-  ),
+  );
+}
+
+const EnvSchema = z.object({
+  PORT: wholeNumber('must be a whole number from 0 to 65535', 65535, 8080),
+  HOST: z.preprocess(emptyToUndefined, z.string().regex(/^[^\s/]+$/, 'must be a host name or address').default('127.0.0.1')),
+  SPLITBALLOT_DB: z.preprocess(emptyToUndefined, z.string().default('./data/splitballot.db')),
+  SPLITBALLOT_ADMIN_KEY: secret(MIN_ADMIN_KEY_LENGTH),
   SPLITBALLOT_CORS_ORIGINS: z.preprocess(
     emptyToUndefined,
     z
@@ -127,14 +124,7 @@ const EnvSchema = z.object({
   SPLITBALLOT_REQUEST_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, REQUEST_TIMEOUT_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_SHUTDOWN_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, SHUTDOWN_GRACE_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_BACKUP_DIR: z.preprocess(emptyToUndefined, z.string().optional()),
-  SPLITBALLOT_METRICS_TOKEN: z.preprocess(
-    emptyToUndefined,
-    z
-      .string()
-      .min(MIN_METRICS_TOKEN_LENGTH, `must be at least ${MIN_METRICS_TOKEN_LENGTH} characters (for example the output of \`openssl rand -hex 32\`)`)
-      .regex(/^[\x21-\x7e]+$/, 'must be printable ASCII without spaces')
-      .optional(),
-  ),
+  SPLITBALLOT_METRICS_TOKEN: secret(MIN_METRICS_TOKEN_LENGTH),
   SPLITBALLOT_TRUST_PROXY: z.preprocess(
     emptyToUndefined,
     z
