@@ -525,25 +525,35 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body: ComparisonBody = {
-      experiment: e.id,
-      measure: m.id,
-      a: t.a.id,
-      b: t.b.id,
-      dataVersion: snapshot.dataVersion,
-      computedAt: new Date().toISOString(),
-      groups: cmp.groups,
-      welch: cmp.welch,
-      student: cmp.student,
-      mannWhitney: cmp.mannWhitney,
-      hodgesLehmann: cmp.hodgesLehmann,
-      effectSizes: cmp.effectSizes,
-      robust: cmp.robust,
-      flags: flags as ComparisonBody['flags'],
-      monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
-    };
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
     return { body, snapshot };
   }
+}
+
+/** The reply of one comparison: the ids, the dataVersion, the statistics and flags, and the monitoring block. */
+function comparisonBody(
+  ids: { experiment: string; measure: string; a: string; b: string },
+  dataVersion: number,
+  { cmp, flags }: CompareResult,
+  monitoring: Awaited<ReturnType<typeof computeMonitoring>> | null,
+): ComparisonBody {
+  return {
+    experiment: ids.experiment,
+    measure: ids.measure,
+    a: ids.a,
+    b: ids.b,
+    dataVersion,
+    computedAt: new Date().toISOString(),
+    groups: cmp.groups,
+    welch: cmp.welch,
+    student: cmp.student,
+    mannWhitney: cmp.mannWhitney,
+    hodgesLehmann: cmp.hodgesLehmann,
+    effectSizes: cmp.effectSizes,
+    robust: cmp.robust,
+    flags: flags as ComparisonBody['flags'],
+    monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
+  };
 }
 
 /** The flags' context from the experiment and the snapshot (all data-dependent parts from the snapshot). */
@@ -613,23 +623,7 @@ function warmUp(): void {
     const ctx: FlagContext = { alpha: 0.05, labels: { a: 'a', b: 'b' }, scale: { min: 0, max: 100, integer: true } };
     const cmp = compareSamples(a, b);
     const flags = computeFlags(cmp, { a, b }, ctx);
-    ComparisonSchema.safeParse({
-      experiment: 'warm-up',
-      measure: 'warm-up',
-      a: 'a',
-      b: 'b',
-      dataVersion: 0,
-      computedAt: new Date().toISOString(),
-      groups: cmp.groups,
-      welch: cmp.welch,
-      student: cmp.student,
-      mannWhitney: cmp.mannWhitney,
-      hodgesLehmann: cmp.hodgesLehmann,
-      effectSizes: cmp.effectSizes,
-      robust: cmp.robust,
-      flags,
-      monitoring: null,
-    });
+    ComparisonSchema.safeParse(comparisonBody({ experiment: 'warm-up', measure: 'warm-up', a: 'a', b: 'b' }, 0, { cmp, flags }, null));
     const n = 2000;
     const x = new Float64Array(new SharedArrayBuffer(n * 8));
     const y = new Float64Array(new SharedArrayBuffer(n * 8));
