@@ -6,23 +6,19 @@
 import { request as httpRequest, type IncomingMessage } from 'node:http';
 import Fastify from 'fastify';
 import { serializerCompiler } from 'fastify-type-provider-zod';
-import { afterEach, beforeEach, describe, expect, it } from 'vitest';
+import { beforeEach, describe, expect, it } from 'vitest';
 import { registerProblemHandlers } from '../../server/problem.js';
 import { DataVersionWatcher, eventRoutes } from '../../server/routes/events.js';
 import { zodValidatorCompiler } from '../../server/schemas/validator.js';
-import { openStore, startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { eachTestApp, openStore, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
 let base: string;
+eachTestApp((app) => (t = app));
 beforeEach(async () => {
-  t = await startTestApp();
-  expect((await t.createWater()).statusCode).toBe(201);
   await t.app.listen({ port: 0, host: '127.0.0.1' });
   const addr = t.app.server.address();
   base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
-});
-afterEach(async () => {
-  await t.close();
 });
 
 /** Open an event stream and collect its text. */
@@ -98,7 +94,7 @@ describe('event stream', () => {
     expect(none.res.headers['content-type']).toContain('application/problem+json');
     const ingest = await open(`${base}/v1/experiments/${WATER_ID}/events`, await t.key('ingest'));
     expect(ingest.res.statusCode).toBe(403);
-    await t.createWater({ id: 'water-copy' });
+    expect((await t.createWater({ id: 'water-copy' })).statusCode).toBe(201);
     const other = await open(`${base}/v1/experiments/${WATER_ID}/events`, await t.key('read', 'water-copy'));
     expect(other.res.statusCode).toBe(403);
     const missing = await open(`${base}/v1/experiments/nope/events`, t.adminKey);
