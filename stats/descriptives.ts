@@ -31,7 +31,7 @@
  *
  * Scale: when the largest |value| lies outside [2^-200, 2^200] (values near 1e-300 or 1e300), the moment
  * statistics and the MAD are computed on a copy multiplied by an exact power of two and scaled back
- * (rescaleExponent, scaleSample, timesPowerOfTwo are exported for the t tests and effect sizes); order
+ * (rescaleExponent, scaleSample; timesPowerOfTwo is exported for the t tests to restore units); order
  * statistics always come from the original values. A result that does not fit in a double (the sd of
  * values near ±1e308) is null with a reason.
  *
@@ -154,7 +154,7 @@ export function moments(s: Sample): Moments {
  * [2^-200, 2^200], else 0. Multiplying by 2^k is exact, so statistics that are scale-free (t, df, p, d) come
  * out bit-for-bit as for the unscaled data, while squares no longer underflow (1e-300²) or overflow (1e300²).
  */
-export function rescaleExponent(...samples: Sample[]): number {
+function rescaleExponent(...samples: Sample[]): number {
   let largest = 0;
   for (const s of samples) {
     if (s.values.length === 0) continue;
@@ -189,7 +189,7 @@ export function scaledMoments(a: Sample, b: Sample): ScaledMoments {
 }
 
 /** The Sample with every value multiplied by 2^k (exact unless subnormal). O(K). */
-export function scaleSample(s: Sample, k: number): Sample {
+function scaleSample(s: Sample, k: number): Sample {
   if (k === 0) return s;
   const values = new Float64Array(s.values.length);
   for (let i = 0; i < values.length; i++) values[i] = timesPowerOfTwo(s.values[i], k);

@@ -135,7 +135,7 @@ export function logGamma(x: number): number {
 }
 
 /** Stirling correction δ(x) = lnΓ(x) − [(x − ½) ln x − x + ½ ln 2π], x > 0. */
-export function stirlingCorrection(x: number): number {
+function stirlingCorrection(x: number): number {
   if (x >= 10) return stirlingSeries(x);
   return logGamma(x) - ((x - 0.5) * Math.log(x) - x + LN_SQRT_2PI);
 }
@@ -366,7 +366,7 @@ export function normalDensity(z: number): number {
 }
 
 /** ln P(Z > z), finite for every finite z (asymptotic series beyond z = 37 where the tail underflows). */
-export function logNormalUpperTail(z: number): number {
+function logNormalUpperTail(z: number): number {
   if (z < 37) return Math.log(normalUpperTail(z));
   const r = 1 / (z * z);
   // Φ̄(z) = φ(z)/z · (1 − 1/z² + 3/z⁴ − 15/z⁶ + 105/z⁸ − 945/z¹⁰ + 10395/z¹²)

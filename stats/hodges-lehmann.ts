@@ -942,7 +942,7 @@ function midpoint(x: number, y: number): number {
 // ---------------------------------------------------------------------------------------------------
 
 /** R's qwilcox(x, m, n) on an exact tie-free distribution (with R's 10·DBL_EPSILON fuzz). */
-export function qwilcoxLike(dist: ExactRankSumDistribution, x: number): number {
+function qwilcoxLike(dist: ExactRankSumDistribution, x: number): number {
   const p = dist.probabilities;
   const mn = p.length - 1; // unitsPerU is 1 without ties
   if (x <= 0) return 0;
@@ -966,7 +966,7 @@ export function qwilcoxLike(dist: ExactRankSumDistribution, x: number): number {
 }
 
 /** coin's qperm on an exact distribution, as a value of U: first support point with cumulative ≥ p − √ε. */
-export function coinQuantile(dist: ExactRankSumDistribution, prob: number): number {
+function coinQuantile(dist: ExactRankSumDistribution, prob: number): number {
   const p = dist.probabilities;
   let cum = 0;
   let lastSupport = 0;
