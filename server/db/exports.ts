@@ -14,6 +14,7 @@
  *    dataVersion) stays in the one place that keeps it, SqliteResponseRepository. dataVersion moves by one per
  *    chunk, all committed together.
  */
+import { STORED_RESPONSE_COLUMNS, type StoredResponseRow } from './responses.js';
 import type { SqliteStore } from './store.js';
 import type { IngestOutcome, Store, ValidResponse } from './types.js';
 
@@ -29,17 +30,6 @@ export interface ExportRow {
   values: (number | null)[];
 }
 
-interface ResponsePageRow {
-  id: number;
-  response_id: string;
-  condition: string;
-  respondent: string | null;
-  submitted_at: string;
-  received_at: string;
-  excluded: number;
-  excluded_reason: string | null;
-}
-
 function sqlite(store: Store): SqliteStore {
   const s = store as SqliteStore;
   if (!s.db || typeof s.db.prepare !== 'function') throw new TypeError('bulk export and import need the SQLite store');
@@ -52,8 +42,8 @@ function prepareExport(store: SqliteStore) {
   const { db } = store;
   return {
     maxId: db.prepare<[number], number | null>(`SELECT max(id) FROM responses WHERE experiment_id = ?`).pluck(),
-    page: db.prepare<[number, number, number, number], ResponsePageRow>(
-      `SELECT r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason
+    page: db.prepare<[number, number, number, number], StoredResponseRow>(
+      `SELECT ${STORED_RESPONSE_COLUMNS}
        FROM responses r JOIN conditions c ON c.id = r.condition_id
        WHERE r.experiment_id = ? AND r.id > ? AND r.id <= ?
        ORDER BY r.id LIMIT ?`,

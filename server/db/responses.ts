@@ -108,6 +108,22 @@ export const ID_LOOKUP_CHUNK = 100;
 export const NEW_VALUES_OF_RUN_SQL = `SELECT value FROM response_values
   WHERE response_id > ? AND response_id <= ? AND +measure_id = ? AND +condition_id = ? AND +excluded = ?`;
 
+/** One stored response with its condition's slug (values apart), as read by getStored and by the CSV export. */
+export interface StoredResponseRow {
+  id: number;
+  response_id: string;
+  condition: string;
+  respondent: string | null;
+  submitted_at: string;
+  received_at: string;
+  excluded: number;
+  excluded_reason: string | null;
+}
+
+/** The columns of a StoredResponseRow, from `responses r JOIN conditions c ON c.id = r.condition_id`. */
+export const STORED_RESPONSE_COLUMNS =
+  'r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason';
+
 /** Most single-response requests written in one group commit. */
 export const GROUP_COMMIT_MAX = 256;
 
@@ -249,20 +265,8 @@ export class SqliteResponseRepository implements ResponseRepository {
        FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id
        WHERE r.experiment_id = ? ORDER BY m.position, r.reason`,
     );
-    this.storedResponse = db.prepare<
-      [number, string],
-      {
-        id: number;
-        response_id: string;
-        condition: string;
-        respondent: string | null;
-        submitted_at: string;
-        received_at: string;
-        excluded: number;
-        excluded_reason: string | null;
-      }
-    >(
-      `SELECT r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason
+    this.storedResponse = db.prepare<[number, string], StoredResponseRow>(
+      `SELECT ${STORED_RESPONSE_COLUMNS}
        FROM responses r JOIN conditions c ON c.id = r.condition_id
        WHERE r.experiment_id = ? AND r.response_id = ?`,
     );
