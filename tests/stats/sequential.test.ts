@@ -13,45 +13,21 @@ import {
   spendingFunction,
   welchToZ,
 } from '../../stats/sequential.js';
+import { Rng as Xoshiro128 } from '../bench/data.js';
 
 // ------------------------------------------------------------------------------------------------
-// A small seeded PRNG written for these tests: xoshiro128** (Blackman & Vigna 2018) seeded by
-// splitmix32, uniforms with 32 random bits in (0, 1), standard normals by Box–Muller.
+// Seeded draws for these tests: the xoshiro128** stream (seeded by splitmix32) of the benchmark data,
+// uniforms with 32 random bits in (0, 1), standard normals by Box–Muller.
 // ------------------------------------------------------------------------------------------------
 class Rng {
-  private s0: number;
-  private s1: number;
-  private s2: number;
-  private s3: number;
+  private readonly bits: Xoshiro128;
   private spare: number | null = null;
   constructor(seed: number) {
-    let x = seed >>> 0;
-    const next = (): number => {
-      x = (x + 0x9e3779b9) >>> 0;
-      let z = x;
-      z = Math.imul(z ^ (z >>> 16), 0x85ebca6b) >>> 0;
-      z = Math.imul(z ^ (z >>> 13), 0xc2b2ae35) >>> 0;
-      return (z ^ (z >>> 16)) >>> 0;
-    };
-    this.s0 = next();
-    this.s1 = next();
-    this.s2 = next();
-    this.s3 = next();
-  }
-  private nextU32(): number {
-    const result = Math.imul(((Math.imul(this.s1, 5) << 7) | (Math.imul(this.s1, 5) >>> 25)) >>> 0, 9) >>> 0;
-    const t = (this.s1 << 9) >>> 0;
-    this.s2 = (this.s2 ^ this.s0) >>> 0;
-    this.s3 = (this.s3 ^ this.s1) >>> 0;
-    this.s1 = (this.s1 ^ this.s2) >>> 0;
-    this.s0 = (this.s0 ^ this.s3) >>> 0;
-    this.s2 = (this.s2 ^ t) >>> 0;
-    this.s3 = ((this.s3 << 11) | (this.s3 >>> 21)) >>> 0;
-    return result;
+    this.bits = new Xoshiro128(seed);
   }
   /** Uniform in (0, 1). */
   uniform(): number {
-    return (this.nextU32() + 0.5) / 4294967296;
+    return (this.bits.nextUint32() + 0.5) / 4294967296;
   }
   normal(): number {
     if (this.spare !== null) {
