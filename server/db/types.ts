@@ -20,13 +20,6 @@ export type ExperimentStatus = 'open' | 'closed';
 
 /** Why a value was refused at ingest. Counted per (experiment, measure, reason). */
 export type RejectionReason = 'out_of_range' | 'not_integer' | 'not_a_number' | 'not_finite' | 'too_many_digits';
-export const REJECTION_REASONS: readonly RejectionReason[] = Object.freeze([
-  'out_of_range',
-  'not_integer',
-  'not_a_number',
-  'not_finite',
-  'too_many_digits',
-]);
 
 export interface ConditionRecord {
   key: number;
