@@ -48,9 +48,8 @@ it('passes n, mean, variance = sd² of each group, Welch t/df and alpha; the rep
   expect(calls).toHaveLength(1);
 });
 
-// KNOWN GAP: fastify's default maxParamLength (100) answers 414 (and not as problem+json) for a responseId of up to
-// 128 characters or a respondent of up to 256, which ingest accepts. server/app.ts (the lead's file) needs
-// `maxParamLength: 300` in the Fastify options; then remove `.fails` here.
+// fastify's default maxParamLength (100) would answer 414 for a responseId of up to 128 characters or a respondent
+// of up to 256, which ingest accepts; server/app.ts raises it.
 it('long ids: a responseId of 128 characters and a respondent of 256 reach their routes', async () => {
   const responseId = `r${'x'.repeat(127)}`;
   const respondent = `p${'y'.repeat(255)}`;
