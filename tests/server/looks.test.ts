@@ -185,6 +185,21 @@ describe('POST /v1/experiments/{id}/looks', () => {
     expect((await t.request({ method: 'GET', url: `${LOOKS}?measure=happiness` })).statusCode).toBe(400);
   });
 
+  it('a recorded look reaches a cached comparison: the dataVersion stays, the ETag moves and monitoring lists the look', async () => {
+    expect((await t.createWater({ monitoring: { spending: 'pocock' }, plannedPerCondition: 400 })).statusCode).toBe(201);
+    await add(100, 0, 21);
+    const url = `/v1/experiments/${WATER_ID}/comparisons/satisfaction`;
+    const before = await t.request({ method: 'GET', url });
+    expect(before.statusCode).toBe(200);
+    expect(before.json().monitoring.groupSequential.looks).toEqual([]);
+    expect((await look({ measure: 'satisfaction' })).statusCode).toBe(201);
+    const after = await t.request({ method: 'GET', url, headers: { 'if-none-match': before.headers.etag as string } });
+    expect(after.statusCode).toBe(200);
+    expect(after.headers.etag).not.toBe(before.headers.etag);
+    expect(after.json().dataVersion).toBe(before.json().dataVersion);
+    expect(after.json().monitoring.groupSequential.looks.map((l: { number: number }) => l.number)).toEqual([1]);
+  });
+
   it('a look needs a defined Welch test', async () => {
     expect((await t.createWater({ monitoring: { spending: 'obrien-fleming' } })).statusCode).toBe(201);
     await add(1, 0, 5);
