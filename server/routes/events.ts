@@ -23,7 +23,7 @@ import type { Store } from '../db/types.js';
 import { ProblemError } from '../problem.js';
 import { problems } from '../schemas/common.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
+import { loadExperiment } from './experiments.js';
 
 export const POLL_INTERVAL_MS = 1000;
 export const HEARTBEAT_INTERVAL_MS = 15_000;
@@ -164,8 +164,7 @@ export async function eventRoutes(base: FastifyInstance, opts: { store: Store; t
       },
     },
     async (request, reply) => {
-      const e = await store.experiments.getBySlug(request.params.id);
-      if (!e) throw notFound(request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       if (closing) throw new ProblemError('unavailable', 'The service is shutting down.');
       if (open.size >= MAX_EVENT_STREAMS) {
         throw new ProblemError('unavailable', `Too many open event streams (${MAX_EVENT_STREAMS}); try again later.`, { headers: { 'retry-after': '30' } });

@@ -44,6 +44,13 @@ export function notFound(id: string): ProblemError {
   return new ProblemError('not-found', `There is no experiment ${JSON.stringify(id.length > 80 ? `${id.slice(0, 80)}…` : id)}.`);
 }
 
+/** The experiment with this id, or a 404 problem. */
+export async function loadExperiment(store: Store, id: string): Promise<ExperimentRecord> {
+  const e = await store.experiments.getBySlug(id);
+  if (!e) throw notFound(id);
+  return e;
+}
+
 export async function experimentRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
@@ -109,8 +116,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
       },
     },
     async (request) => {
-      const e = await store.experiments.getBySlug(request.params.id);
-      if (!e) throw notFound(request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       return experimentView(e);
     },
   );
@@ -128,8 +134,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
       },
     },
     async (request) => {
-      const e = await store.experiments.getBySlug(request.params.id);
-      if (!e) throw notFound(request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       const patch = request.body;
       const unknown = (patch.measures ?? [])
         .map((m, i) => ({ m, i }))

@@ -22,7 +22,7 @@ import { computeFamily, type FamilyOptions } from '../comparisons.js';
 import { FamilyQuery } from '../schemas/comparisons.js';
 import { problems } from '../schemas/common.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
+import { loadExperiment } from './experiments.js';
 
 export const EXPORT_PAGE_ROWS = 1000;
 
@@ -90,12 +90,6 @@ function download(reply: FastifyReply, type: string, filename: string): FastifyR
     .header('cache-control', 'no-store');
 }
 
-async function load(store: Store, id: string): Promise<ExperimentRecord> {
-  const e = await store.experiments.getBySlug(id);
-  if (!e) throw notFound(id);
-  return e;
-}
-
 const ComparisonsCsvQuery = FamilyQuery.extend({
   pairs: z.enum(['first', 'all']).default('all').describe('all (default): every pair of conditions; first: the first two conditions'),
 });
@@ -134,7 +128,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
       },
     },
     async (request, reply) => {
-      const e = await load(store, request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       download(reply, 'text/csv; charset=utf-8', `${e.id}-responses.csv`);
       return reply.send(csvStream(responseCsvColumns(e), csvRows(store, e)) as unknown as string);
     },
@@ -161,7 +155,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
       },
     },
     async (request, reply) => {
-      const e = await load(store, request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       download(reply, 'application/x-ndjson; charset=utf-8', `${e.id}-responses.ndjson`);
       return reply.send(Readable.from(ndjsonChunks(store, e)) as unknown as string);
     },
@@ -190,7 +184,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
       },
     },
     async (request, reply) => {
-      const e = await load(store, request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       const q = request.query;
       const rows = await comparisonRows(store, e, {
         pairs: q.pairs,

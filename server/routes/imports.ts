@@ -17,7 +17,7 @@ import { ProblemError } from '../problem.js';
 import { problems } from '../schemas/common.js';
 import { ExperimentParams } from '../schemas/responses.js';
 import { bodyPassThroughCompiler } from '../schemas/validator.js';
-import { notFound } from './experiments.js';
+import { loadExperiment, notFound } from './experiments.js';
 
 export const ImportRejectSchema = z
   .object({
@@ -103,8 +103,7 @@ export async function importRoutes(base: FastifyInstance, opts: { store: Store }
         throw new ProblemError('unsupported-media-type', 'Send the file as text/csv.');
       }
       const id = request.params.id;
-      const experiment = await store.experiments.getBySlug(id);
-      if (!experiment) throw notFound(id);
+      const experiment = await loadExperiment(store, id);
       if (experiment.status !== 'open') throw new ProblemError('experiment-closed', `Experiment ${id} is closed and accepts no new responses.`);
       const body = request.body as unknown;
       const csv = Buffer.isBuffer(body) ? body : Buffer.from(typeof body === 'string' ? body : '');

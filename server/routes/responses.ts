@@ -22,7 +22,7 @@ import {
   StoredResponseSchema,
 } from '../schemas/responses.js';
 import { bodyPassThroughCompiler } from '../schemas/validator.js';
-import { notFound } from './experiments.js';
+import { loadExperiment, notFound } from './experiments.js';
 import { THANK_YOU_PATH } from './pages.js';
 
 function closed(id: string): ProblemError {
@@ -46,8 +46,7 @@ function storedView(e: ExperimentRecord, item: ValidResponse, receivedAt: string
 }
 
 async function loadOpenExperiment(store: Store, id: string): Promise<ExperimentRecord> {
-  const e = await store.experiments.getBySlug(id);
-  if (!e) throw notFound(id);
+  const e = await loadExperiment(store, id);
   if (e.status !== 'open') throw closed(id);
   return e;
 }
