@@ -60,6 +60,15 @@ function checkMoments(m: Moments, name: string): void {
   }
 }
 
+/** Check the options and both groups' moments; the level and the mean difference a − b (null if a group is empty). */
+function checkInputs(ma: Moments, mb: Moments, opts: TTestOptions): { level: number; difference: number | null } {
+  checkOptions(opts);
+  checkMoments(ma, 'a');
+  checkMoments(mb, 'b');
+  const difference = ma.n >= 1 && mb.n >= 1 ? (ma.mean as number) - (mb.mean as number) : null;
+  return { level: opts.confidenceLevel, difference };
+}
+
 const OVERFLOW = 'The variances exceed the double-precision range, so the test is not computed from these moments.';
 
 function undefinedResult(level: number, meanDifference: number | null, reason: string): TTestResult {
@@ -101,11 +110,7 @@ function tTestResult(difference: number, se: number, df: number, opts: TTestOpti
  * For leave-one-out recomputation by the quality flags.
  */
 export function welchFromMoments(ma: Moments, mb: Moments, opts: TTestOptions): TTestResult {
-  checkOptions(opts);
-  checkMoments(ma, 'a');
-  checkMoments(mb, 'b');
-  const level = opts.confidenceLevel;
-  const difference = ma.n >= 1 && mb.n >= 1 ? (ma.mean as number) - (mb.mean as number) : null;
+  const { level, difference } = checkInputs(ma, mb, opts);
   if (ma.n < 2 || mb.n < 2) {
     return undefinedResult(level, difference, "Welch's test needs at least two observations in each group (a sample variance for each).");
   }
@@ -133,11 +138,7 @@ export function welchFromMoments(ma: Moments, mb: Moments, opts: TTestOptions): 
  * A group with n = 1 contributes no variance term (as R's t.test(var.equal = TRUE)).
  */
 export function studentFromMoments(ma: Moments, mb: Moments, opts: TTestOptions): TTestResult {
-  checkOptions(opts);
-  checkMoments(ma, 'a');
-  checkMoments(mb, 'b');
-  const level = opts.confidenceLevel;
-  const difference = ma.n >= 1 && mb.n >= 1 ? (ma.mean as number) - (mb.mean as number) : null;
+  const { level, difference } = checkInputs(ma, mb, opts);
   if (ma.n < 1 || mb.n < 1 || ma.n + mb.n < 3) {
     return undefinedResult(level, difference, "Student's pooled t test needs at least one observation in each group and three in all.");
   }
