@@ -30,6 +30,7 @@ import { fromCounts, fromSortedValues } from '../stats/sample.js';
 import { anytimeValid, DEFAULT_TARGET_PER_CONDITION, spendingBoundaries, welchToZ } from '../stats/sequential.js';
 import { welchFromMoments } from '../stats/welch.js';
 import type { LookRecord, SpendingName } from './db/monitoring-types.js';
+import { MAX_DENSE_COUNTS } from './db/responses.js';
 import type { ExperimentRecord, MeasureRecord, Store } from './db/types.js';
 
 export interface MonitoringInput {
@@ -305,16 +306,13 @@ export async function monitoringCacheKey(store: Store, experimentKey: number): P
 // Current moments from the store
 // ---------------------------------------------------------------------------------------------------------
 
-/** Widest integer scale read as dense counts (matches the store's limit). */
-const MAX_DENSE = 1_000_001;
-
 /** n, mean, variance of one measure in two conditions (excluded responses left out), from one snapshot. */
 export async function currentMoments(
   store: Store,
   measure: MeasureRecord,
   conditionKeys: [number, number],
 ): Promise<{ dataVersion: number; a: Moments; b: Moments }> {
-  if (measure.integer && measure.max - measure.min + 1 <= MAX_DENSE) {
+  if (measure.integer && measure.max - measure.min + 1 <= MAX_DENSE_COUNTS) {
     const snap = await store.responses.getCountsSnapshot(measure.key, conditionKeys, false);
     return {
       dataVersion: snap.dataVersion,
