@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
-import { readFileSync } from 'node:fs';
 import { adjustPValues } from '../../stats/adjust.js';
+import { loadFixture } from './fixtures.js';
 
 interface Family {
   name: string;
@@ -10,10 +10,10 @@ interface Family {
   bh: (number | null)[];
   none: (number | null)[];
 }
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-adjust.json', import.meta.url), 'utf8')) as {
+const fixture = loadFixture<{
   tools: Record<string, string>;
   families: Family[];
-};
+}>('r-adjust.json');
 
 // Tolerance: the adjustment is one multiplication (and a division for BH) per value, in the same order as R,
 // so agreement is to a few ulps: relative 4·Number.EPSILON.

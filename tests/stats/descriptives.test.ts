@@ -1,17 +1,14 @@
-import { existsSync, readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe as suite, expect, it } from 'vitest';
 import { describe, moments, quantileType7 } from '../../stats/descriptives.js';
 import { expand, fromCounts, fromValues, fromWeighted } from '../../stats/sample.js';
+import { loadFixture, relErrOrAbs } from './fixtures.js';
 
 const freeze = <T>(x: T[]): readonly T[] => Object.freeze(x.slice());
 
-function relErr(actual: number, expected: number): number {
-  return expected === 0 ? Math.abs(actual) : Math.abs(actual - expected) / Math.abs(expected);
-}
 function expectRel(actual: number | null, expected: number, tol: number, what: string): void {
   expect(actual, `${what}: expected ${expected}, got null`).not.toBeNull();
-  const r = relErr(actual as number, expected);
+  const r = relErrOrAbs(actual as number, expected);
   expect(r, `${what}: expected ${expected}, actual ${actual}, relative error ${r} > tolerance ${tol}`).toBeLessThanOrEqual(tol);
 }
 
@@ -151,7 +148,7 @@ suite('numerical care', () => {
       const naive = ex.values.reduce((acc, v) => acc + v, 0) / n;
       const naiveVar = (ex.values.reduce((acc, v) => acc + v * v, 0) - n * naive * naive) / (n - 1);
       // the textbook one-pass formula is useless here, which is why the two-pass form is used
-      if (n >= 999) expect(relErr(Math.sqrt(Math.max(naiveVar, 0)), ex.sd)).toBeGreaterThan(1e-3);
+      if (n >= 999) expect(relErrOrAbs(Math.sqrt(Math.max(naiveVar, 0)), ex.sd)).toBeGreaterThan(1e-3);
     }
   });
 
@@ -248,12 +245,10 @@ suite('weighted computation equals expansion (no expansion inside)', () => {
 // ---------------------------------------------------------------------------------------------------
 interface RSummary { n: number; mean: number | null; sd: number | null; median: number | null; q1: number | null; q3: number | null; min: number | null; max: number | null; mad: number | null }
 interface RDataset { name: string; a: number[]; b: number[]; summaries: { a: RSummary; b: RSummary } }
-const R_URL = new URL('../fixtures/r-reference.json', import.meta.url);
-const SCIPY_URL = new URL('../fixtures/scipy-reference.json', import.meta.url);
-const rFixture: { datasets: RDataset[] } | null = existsSync(R_URL) ? JSON.parse(readFileSync(R_URL, 'utf8')) : null;
-const scipyFixture: {
+const rFixture = loadFixture<{ datasets: RDataset[] }>('r-reference.json');
+const scipyFixture = loadFixture<{
   datasets: Array<{ name: string; a?: number[]; b?: number[]; skewness: Record<string, number | null>; excessKurtosis: Record<string, number | null> }>;
-} | null = existsSync(SCIPY_URL) ? JSON.parse(readFileSync(SCIPY_URL, 'utf8')) : null;
+}>('scipy-reference.json');
 
 /** Exact skewness and excess kurtosis of doubles by BigInt arithmetic (every double is an integer times 2^-k). */
 function exactShape(values: readonly number[]): { skewness: number; excessKurtosis: number } {
@@ -277,10 +272,10 @@ function exactShape(values: readonly number[]): { skewness: number; excessKurtos
   return { skewness: Number(N3) / (n2 * Math.sqrt(n2)), excessKurtosis: Number(N4) / (n2 * n2) - 3 };
 }
 
-suite.skipIf(rFixture === null)('summaries of every dataset of r-reference.json (R 4.2.2: mean, sd, quantile type 7, mad)', () => {
+suite('summaries of every dataset of r-reference.json (R 4.2.2: mean, sd, quantile type 7, mad)', () => {
   // tolerance: relative 1e-9 (R's var() itself is off by 1.5e-11 on the 1e12 dataset: checked against exact
   // rational arithmetic with Python's fractions), absolute 1e-300 where R gives 0
-  for (const ds of rFixture?.datasets ?? []) {
+  for (const ds of rFixture.datasets) {
     it(`${ds.name} (n_a = ${ds.a.length}, n_b = ${ds.b.length})`, () => {
       for (const g of ['a', 'b'] as const) {
         const actual = describe(fromValues(freeze(ds[g])));
@@ -302,12 +297,12 @@ suite.skipIf(rFixture === null)('summaries of every dataset of r-reference.json 
   }
 });
 
-suite.skipIf(scipyFixture === null || rFixture === null)('skewness and excess kurtosis of every dataset of scipy-reference.json', () => {
+suite('skewness and excess kurtosis of every dataset of scipy-reference.json', () => {
   // scipy.stats.skew / kurtosis (bias=True), scipy 1.10.1. Tolerance relative 1e-9 (absolute 1e-12 at 0).
   // Where |mean|/sd > 1e6 (values near 1e12 with unit spread) scipy centres on a rounded float64 mean without
   // correction and loses up to 1e-3 relative; there the reference is exact BigInt arithmetic instead.
-  const rByName = new Map((rFixture?.datasets ?? []).map((d) => [d.name, d]));
-  for (const ds of scipyFixture?.datasets ?? []) {
+  const rByName = new Map((rFixture.datasets).map((d) => [d.name, d]));
+  for (const ds of scipyFixture.datasets) {
     it(ds.name, () => {
       const source = ds.a ? ds : rByName.get(ds.name);
       expect(source, `${ds.name}: data not found`).toBeTruthy();

@@ -1,4 +1,3 @@
-import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import {
   chiSquareCdf,
@@ -20,6 +19,7 @@ import {
   studentQuantile,
   studentUpperTail,
 } from '../../stats/distributions.js';
+import { loadFixture, relErrOrAbs } from './fixtures.js';
 
 // Reference values: tests/fixtures/r-distributions.json, written by tests/reference/make-distribution-fixtures.R
 // (R 4.2.2 on this machine; versions recorded in the file). Each section names the R call.
@@ -27,7 +27,7 @@ interface Section<C> {
   method: string;
   cases: C[];
 }
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-distributions.json', import.meta.url), 'utf8')) as {
+const fixture = loadFixture<{
   note: string;
   tools: { R: string };
   generated: string;
@@ -42,13 +42,10 @@ const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-distributions.jso
   noncentralTIntegral: Section<{ t: number; df: number; ncp: number; lowerTail: boolean; p: number }>;
   logGamma: Section<{ x: number; value: number }>;
   incompleteBeta: Section<{ x: number; a: number; b: number; lower: number; upper: number }>;
-};
+}>('r-distributions.json');
 
-function rel(actual: number, expected: number): number {
-  return expected === 0 ? Math.abs(actual) : Math.abs(actual - expected) / Math.abs(expected);
-}
 function check(actual: number, expected: number, tol: number, what: string): void {
-  const r = rel(actual, expected);
+  const r = relErrOrAbs(actual, expected);
   expect(r, `${what}: expected ${expected}, actual ${actual}, relative error ${r.toExponential(2)} > tolerance ${tol}`).toBeLessThanOrEqual(tol);
 }
 
@@ -156,7 +153,7 @@ describe('noncentral t', () => {
   it('against R pt(t, df, ncp) (AS 243): |error| ≤ 5e-11 or relative ≤ 1e-9 (AS 243 is accurate to ~1e-11 absolute)', () => {
     for (const c of fixture.noncentralT.cases) {
       const actual = noncentralTCdf(c.t, c.df, c.ncp);
-      const ok = Math.abs(actual - c.p) <= 5e-11 || rel(actual, c.p) <= 1e-9;
+      const ok = Math.abs(actual - c.p) <= 5e-11 || relErrOrAbs(actual, c.p) <= 1e-9;
       expect(ok, `noncentralTCdf(${c.t}, ${c.df}, ${c.ncp}): expected ${c.p} (R pt), actual ${actual}, tolerance 5e-11 abs / 1e-9 rel`).toBe(true);
     }
   });

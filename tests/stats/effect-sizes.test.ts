@@ -1,17 +1,13 @@
-import { readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { hedgesCorrection, noncentralTCdf, noncentralTUpperTail } from '../../stats/distributions.js';
 import { effectSizes, noncentralityInterval } from '../../stats/effect-sizes.js';
 import { fromCounts, fromValues } from '../../stats/sample.js';
+import { loadFixture, relErrOrAbs } from './fixtures.js';
 
 const freeze = (x: number[]): readonly number[] => Object.freeze(x.slice());
 const SLEEP_1 = freeze([0.7, -1.6, -0.2, -1.2, -0.1, 3.4, 3.7, 0.8, 0.0, 2.0]);
 const SLEEP_2 = freeze([1.9, 0.8, 1.1, 0.1, -0.1, 4.4, 5.5, 1.6, 4.6, 3.4]);
-
-function rel(actual: number, expected: number): number {
-  return expected === 0 ? Math.abs(actual) : Math.abs(actual - expected) / Math.abs(expected);
-}
 
 // Reference: tests/fixtures/r-effect-sizes.json from tests/reference/make-effect-size-fixtures.R (plain R 4.2.2:
 // pooled-SD d; J through lbeta; the g interval by uniroot on pt(t, df, ncp), or on integrate() of the
@@ -21,9 +17,9 @@ interface EffectCase {
   W: number; rankBiserial: number; probabilityOfSuperiority: number;
 }
 interface EffectDataset { name: string; a?: number[]; b?: number[]; min?: number; aCounts?: number[]; bCounts?: number[]; cases: EffectCase[] }
-const fixture = JSON.parse(readFileSync(new URL('../fixtures/r-effect-sizes.json', import.meta.url), 'utf8')) as {
+const fixture = loadFixture<{
   note: string; tools: { R: string }; generated: string; datasets: EffectDataset[];
-};
+}>('r-effect-sizes.json');
 
 describe('effect sizes against R (r-effect-sizes.json)', () => {
   it('fixture header', () => {
@@ -40,7 +36,7 @@ describe('effect sizes against R (r-effect-sizes.json)', () => {
         const where = `${ds.name} (n_a=${a.n}, n_b=${b.n}) level ${c.confidenceLevel}`;
         const near = (what: string, actual: number | null, expected: number, tol: number) => {
           expect(actual, `${where} ${what}: expected ${expected}, actual null`).not.toBeNull();
-          const r = rel(actual as number, expected);
+          const r = relErrOrAbs(actual as number, expected);
           expect(r, `${where} ${what}: expected ${expected}, actual ${actual}, relative error ${r} > tolerance ${tol}`).toBeLessThanOrEqual(tol);
         };
         // d, J, g: relative 1e-12 (R's var() on the expanded million-answer data agrees to 3e-14)
@@ -78,8 +74,8 @@ describe("published and closed-form values", () => {
       const ci = noncentralityInterval(t, df, level);
       expect(ci).not.toBeNull();
       const half = (1 - level) / 2;
-      expect(rel(noncentralTUpperTail(t, df, ci!.lower), half), `lower t=${t} df=${df}`).toBeLessThan(1e-10);
-      expect(rel(noncentralTCdf(t, df, ci!.upper), half), `upper t=${t} df=${df}`).toBeLessThan(1e-10);
+      expect(relErrOrAbs(noncentralTUpperTail(t, df, ci!.lower), half), `lower t=${t} df=${df}`).toBeLessThan(1e-10);
+      expect(relErrOrAbs(noncentralTCdf(t, df, ci!.upper), half), `upper t=${t} df=${df}`).toBeLessThan(1e-10);
       expect(ci!.lower).toBeLessThan(t);
       expect(ci!.upper).toBeGreaterThan(t);
     }

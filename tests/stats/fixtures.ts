@@ -18,6 +18,11 @@ export function relErr(actual: number, expected: number): number {
   return Math.abs(actual - expected) / Math.abs(expected);
 }
 
+/** |actual − expected| / |expected|, or |actual| when the expected value is 0. */
+export function relErrOrAbs(actual: number, expected: number): number {
+  return expected === 0 ? Math.abs(actual) : Math.abs(actual - expected) / Math.abs(expected);
+}
+
 /** Expect a number within relative `tol` of `expected` (relErr above); null fails. */
 export function expectRel(actual: number | null, expected: number, tol: number, what: string): void {
   expect(actual, `${what}: expected ${expected}, got null`).not.toBeNull();

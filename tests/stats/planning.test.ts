@@ -1,7 +1,7 @@
 import { describe, expect, it } from 'vitest';
-import { readFileSync } from 'node:fs';
 import { power, sampleSize } from '../../stats/planning.js';
 import type { Alternative } from '../../stats/types.js';
+import { loadFixture } from './fixtures.js';
 
 type N = number;
 interface Fixture {
@@ -14,7 +14,7 @@ interface Fixture {
     alternative: Alternative; n1: N; n2: N; powerAtN: N; totalNoetherFormula: N;
   }[];
 }
-const fx = JSON.parse(readFileSync(new URL('../fixtures/r-planning.json', import.meta.url), 'utf8')) as Fixture;
+const fx = loadFixture<Fixture>('r-planning.json');
 
 // Power passes through the noncentral t (AS 243 series, R stops at an error bound of 1e-12) and the t quantile:
 // relative tolerance 1e-9. Noether's formula is closed form through Φ and Φ⁻¹: relative 1e-12.

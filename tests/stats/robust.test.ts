@@ -1,9 +1,9 @@
-import { readFileSync } from 'node:fs';
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
 import { brunnerMunzel, yuenWelch } from '../../stats/robust.js';
 import { expand, fromCounts, fromValues, type Sample } from '../../stats/sample.js';
 import type { Alternative, BrunnerMunzelResult, YuenWelchResult } from '../../stats/types.js';
+import { loadFixture } from './fixtures.js';
 
 // ── fixtures ─────────────────────────────────────────────────────────────────────────────────────────
 interface ScipyCase {
@@ -21,14 +21,14 @@ interface ScipyDataset {
   sum: { a: number; b: number };
   cases: ScipyCase[];
 }
-const scipy = JSON.parse(readFileSync(new URL('../fixtures/scipy-reference.json', import.meta.url), 'utf8')) as {
+const scipy = loadFixture<{
   tools: { scipy: string; numpy: string; python: string };
   datasetsFrom: string;
   datasets: ScipyDataset[];
-};
-const rReference = JSON.parse(readFileSync(new URL('../fixtures/r-reference.json', import.meta.url), 'utf8')) as {
+}>('scipy-reference.json');
+const rReference = loadFixture<{
   datasets: { name: string; a: number[]; b: number[] }[];
-};
+}>('r-reference.json');
 
 function dataOf(ds: ScipyDataset): { a: readonly number[]; b: readonly number[] } {
   if (ds.source === 'script') return { a: Object.freeze([...ds.a!]), b: Object.freeze([...ds.b!]) };
