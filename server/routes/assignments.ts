@@ -13,8 +13,8 @@ import { ProblemError } from '../problem.js';
 import { problems } from '../schemas/common.js';
 import { AssignmentInputSchema, AssignmentSchema, AssignmentSummarySchema } from '../schemas/monitoring.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
-import { loadExperiment, StateProblem } from './looks.js';
+import { loadExperiment, notFound } from './experiments.js';
+import { StateProblem } from './looks.js';
 
 function closed(id: string): ProblemError {
   return new ProblemError('experiment-closed', `Experiment ${id} is closed and assigns no more respondents.`);

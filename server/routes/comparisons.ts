@@ -19,17 +19,11 @@ import type { ExperimentRecord, Store } from '../db/types.js';
 import { problems } from '../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../schemas/comparisons.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
+import { loadExperiment } from './experiments.js';
 
 export const CACHE_CONTROL = 'private, no-cache';
 const ACCESS = { access: { scopes: ['read', 'admin'] as const, experimentParam: 'id' } };
 const NOT_MODIFIED = z.null().describe('Not modified: the If-None-Match tag is current (no body)');
-
-async function loadExperiment(store: Store, id: string): Promise<ExperimentRecord> {
-  const e = await store.experiments.getBySlug(id);
-  if (!e) throw notFound(id);
-  return e;
-}
 
 /** 304 when the request's If-None-Match matches; sets the validators either way. Returns true when answered. */
 function notModified(request: FastifyRequest, reply: FastifyReply, etag: string): boolean {

@@ -19,7 +19,7 @@ import { ProblemError } from '../problem.js';
 import { problems } from '../schemas/common.js';
 import { AuditListSchema, ErasureSchema, ExclusionInputSchema, ExclusionSchema, RespondentParams, ResponseParams } from '../schemas/exclusions.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
+import { loadExperiment, notFound } from './experiments.js';
 
 const ADMIN = { access: { scopes: ['admin'] as const, experimentParam: 'id' } };
 
@@ -43,8 +43,7 @@ export async function exclusionRoutes(base: FastifyInstance, opts: { store: Stor
   const { store } = opts;
 
   async function change(id: string, responseId: string, excluded: boolean, reason: string | null, keyId: number | null) {
-    const e = await store.experiments.getBySlug(id);
-    if (!e) throw notFound(id);
+    const e = await loadExperiment(store, id);
     const outcome = await store.responses.setExcluded(e.key, responseId, { excluded, reason }, keyId, new Date().toISOString());
     if (outcome.kind === 'not-found') throw responseNotFound(id, responseId);
     return exclusionView(outcome);
@@ -100,8 +99,7 @@ export async function exclusionRoutes(base: FastifyInstance, opts: { store: Stor
       },
     },
     async (request) => {
-      const e = await store.experiments.getBySlug(request.params.id);
-      if (!e) throw notFound(request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       const outcome = await store.responses.eraseRespondent(e.key, request.params.respondent, request.principal?.keyId ?? null, new Date().toISOString());
       if (outcome.kind === 'not-found') throw notFound(request.params.id);
       return { erased: outcome.erased, dataVersion: outcome.dataVersion };
@@ -120,8 +118,7 @@ export async function exclusionRoutes(base: FastifyInstance, opts: { store: Stor
       },
     },
     async (request) => {
-      const e = await store.experiments.getBySlug(request.params.id);
-      if (!e) throw notFound(request.params.id);
+      const e = await loadExperiment(store, request.params.id);
       return { entries: await store.audit.list(e.key) };
     },
   );

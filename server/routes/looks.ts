@@ -18,7 +18,7 @@ import { ProblemError, RequestValidationError } from '../problem.js';
 import { problems, type Problem } from '../schemas/common.js';
 import { LookInputSchema, LookListQuery, LookListSchema, LookSchema, MeasureParams, PairQuery, TrajectorySchema } from '../schemas/monitoring.js';
 import { ExperimentParams } from '../schemas/responses.js';
-import { notFound } from './experiments.js';
+import { loadExperiment } from './experiments.js';
 
 /**
  * A 409 with its own problem type (urn:splitballot:problem:<name>) for states that PROBLEM_TYPES in problem.ts
@@ -35,12 +35,6 @@ export class StateProblem extends ProblemError {
   override toProblem(): Problem {
     return { ...super.toProblem(), type: `urn:splitballot:problem:${this.typeName}`, title: this.typeTitle };
   }
-}
-
-export async function loadExperiment(store: Store, id: string): Promise<ExperimentRecord> {
-  const e = await store.experiments.getBySlug(id);
-  if (!e) throw notFound(id);
-  return e;
 }
 
 /** The two conditions compared: a and b by id, defaulting to the first two in definition order. */
