@@ -13,7 +13,7 @@ import {
   spendingFunction,
   welchToZ,
 } from '../../stats/sequential.js';
-import { Rng as Xoshiro128 } from '../bench/data.js';
+import { Rng as Xoshiro128 } from '../helpers/rng.js';
 
 // ------------------------------------------------------------------------------------------------
 // Seeded draws for these tests: the xoshiro128** stream (seeded by splitmix32) of the benchmark data,
