@@ -294,14 +294,6 @@ export async function computeMonitoring(input: MonitoringInput): Promise<Monitor
   return { anytimeValid: anytime, groupSequential, caveat: CAVEAT + (early ? EARLY_CAVEAT : '') };
 }
 
-/**
- * Part of a comparison cache key that changes when the monitoring block can change without a new dataVersion:
- * the number of recorded looks of the experiment. (The anytime history only grows at new dataVersions.)
- */
-export async function monitoringCacheKey(store: Store, experimentKey: number): Promise<string> {
-  return `looks:${await store.looks.count(experimentKey)}`;
-}
-
 // ---------------------------------------------------------------------------------------------------------
 // Current moments from the store
 // ---------------------------------------------------------------------------------------------------------

@@ -5,7 +5,7 @@
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import type { ExperimentRecord, MeasureRecord } from '../../server/db/types.js';
-import { CAVEAT, computeMonitoring, currentMoments, MIN_RUNNING_PER_CONDITION, monitoringCacheKey, type Monitoring } from '../../server/monitoring.js';
+import { CAVEAT, computeMonitoring, currentMoments, MIN_RUNNING_PER_CONDITION, type Monitoring } from '../../server/monitoring.js';
 import { anytimeValid, spendingBoundaries } from '../../stats/sequential.js';
 import { welchFromMoments } from '../../stats/welch.js';
 import { startTestApp, waterBillDefinition, WATER_ID, type TestApp } from '../helpers/app.js';
@@ -218,13 +218,15 @@ describe('monitoring block', () => {
     expect(b.anytimeValid).toMatchObject({ p: null, ci: { lower: null, upper: null }, targetPerCondition: 500, reason: /at least two answers/ });
   });
 
-  it('monitoringCacheKey moves when a look is recorded (a look does not move the dataVersion)', async () => {
+  it('the comparison stamp (the cache key\'s cheap part) moves when a look is recorded; the dataVersion does not', async () => {
     expect((await t.createWater({ monitoring: { spending: 'obrien-fleming' } })).statusCode).toBe(201);
     await add(50, 7);
     const { e } = await experiment();
-    const before = await monitoringCacheKey(t.store, e.key);
+    const before = await t.store.responses.getComparisonStamp(e.key);
     expect((await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/looks`, payload: { measure: 'satisfaction' } })).statusCode).toBe(201);
-    expect(await monitoringCacheKey(t.store, e.key)).not.toBe(before);
+    const after = await t.store.responses.getComparisonStamp(e.key);
+    expect(after?.looks).toBe((before?.looks ?? 0) + 1);
+    expect(after?.dataVersion).toBe(before?.dataVersion);
     expect((await experiment()).e.dataVersion).toBe(e.dataVersion);
   });
 });
