@@ -214,11 +214,7 @@ export class SqliteResponseRepository implements ResponseRepository {
   /** Sorted runs of continuous measures kept between comparisons (see server/sorted-values-cache.ts). */
   readonly sortedCache = new SortedValuesCache();
 
-  constructor(
-    private readonly db: SqliteDatabase,
-    /** Gather single-response ingests into group commits (see ingest); off: one transaction per request. */
-    private readonly groupCommit = true,
-  ) {
+  constructor(private readonly db: SqliteDatabase) {
     this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
       `SELECT status, data_version FROM experiments WHERE id = ?`,
     );
@@ -552,7 +548,7 @@ export class SqliteResponseRepository implements ResponseRepository {
    * (2 or more responses) are already one transaction each and run at once.
    */
   async ingest(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): Promise<IngestOutcome> {
-    if (items.length !== 1 || !this.groupCommit) return this.ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
+    if (items.length !== 1) return this.ingestTx.immediate(experimentKey, items, receivedAt, apiKeyId);
     return new Promise<IngestOutcome>((resolve, reject) => {
       this.group.push({ experimentKey, items, receivedAt, apiKeyId, resolve, reject });
       if (this.group.length >= GROUP_COMMIT_MAX) this.flushGroup();
