@@ -20,6 +20,7 @@ import { problems } from '../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../schemas/comparisons.js';
 import { ExperimentParams } from '../schemas/responses.js';
 import { loadExperiment } from './experiments.js';
+import { SVG_CONTENT_TYPE } from '../pages/assets.js';
 
 export const CACHE_CONTROL = 'private, no-cache';
 const ACCESS = { access: { scopes: ['read', 'admin'] as const, experimentParam: 'id' } };
@@ -128,7 +129,7 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.etagOf(service.chartKey(target, includeExcluded, stamp)))) return reply;
       const { svg, etag } = await service.chart(target, includeExcluded, stamp);
-      return reply.header('etag', etag).type('image/svg+xml; charset=utf-8').send(svg);
+      return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
     },
   );
 }

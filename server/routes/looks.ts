@@ -19,6 +19,7 @@ import { problems, type Problem } from '../schemas/common.js';
 import { LookInputSchema, LookListQuery, LookListSchema, LookSchema, MeasureParams, PairQuery, TrajectorySchema } from '../schemas/monitoring.js';
 import { ExperimentParams } from '../schemas/responses.js';
 import { loadExperiment } from './experiments.js';
+import { SVG_CONTENT_TYPE } from '../pages/assets.js';
 
 /**
  * A 409 with its own problem type (urn:splitballot:problem:<name>) for states that PROBLEM_TYPES in problem.ts
@@ -234,7 +235,7 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
         differenceLimits: { lower: -span, upper: span },
         id: `sb-traj-${measure.id}`,
       });
-      reply.type('image/svg+xml; charset=utf-8').header('cache-control', 'no-cache');
+      reply.type(SVG_CONTENT_TYPE).header('cache-control', 'no-cache');
       return svg;
     },
   );
