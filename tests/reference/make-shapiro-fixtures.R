@@ -13,7 +13,9 @@
 #
 # Output:
 # { "note", "tools": { "R" }, "generated",
-#   "datasets": [ { "name", "description", "n", "ties", "x": [...], "w", "p" } | { ..., "error" } ] }
+#   "datasets": [ { "name", "description", "n", "ties", "x": [...], "w", "p", "wCentred", "pCentred" }
+#                 | { ..., "error" } ] }
+# where wCentred, pCentred = shapiro.test(x - median(x)) (see add() below).
 
 out_file <- file.path("tests", "fixtures", "r-shapiro.json")
 if (!dir.exists(dirname(out_file))) stop("run from the repository root (tests/fixtures not found)")
@@ -46,6 +48,12 @@ add <- function(name, description, x) {
   } else {
     entry$w <- unname(res$statistic)
     entry$p <- res$p.value
+    # W is location invariant, but shapiro.test scales the data by their range without centring them,
+    # so far from 0 (e.g. 1e6 + values with a spread of 1) its W loses digits. The same test on the
+    # data shifted by their median is recorded beside it.
+    centred <- shapiro.test(x - median(x))
+    entry$wCentred <- unname(centred$statistic)
+    entry$pCentred <- centred$p.value
   }
   datasets[[length(datasets) + 1L]] <<- entry
 }
@@ -107,7 +115,8 @@ entry_json <- function(e) {
   if (!is.null(e$error)) {
     fields <- c(fields, paste0("\"error\": ", str_json(e$error)))
   } else {
-    fields <- c(fields, paste0("\"w\": ", num(e$w)), paste0("\"p\": ", num(e$p)))
+    fields <- c(fields, paste0("\"w\": ", num(e$w)), paste0("\"p\": ", num(e$p)),
+                paste0("\"wCentred\": ", num(e$wCentred)), paste0("\"pCentred\": ", num(e$pCentred)))
   }
   paste0("    {\n      ", paste(fields, collapse = ",\n      "), "\n    }")
 }
