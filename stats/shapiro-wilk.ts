@@ -84,6 +84,7 @@
  * (n ≤ 5000; the size check is O(1) on a Sample of counts, which is never expanded beyond 5000).
  */
 
+import { timesPowerOfTwo } from './descriptives.js';
 import { normalQuantile, normalUpperTail } from './distributions.js';
 import { expand, type Sample } from './sample.js';
 import type { ShapiroWilk } from './types.js';
@@ -213,12 +214,6 @@ class CompensatedSum {
   value(): number {
     return this.sum + this.compensation;
   }
-}
-
-/** x · 2^k in two steps, so that 2^k itself never overflows. */
-function timesPowerOfTwo(x: number, k: number): number {
-  const half = Math.trunc(k / 2);
-  return x * 2 ** half * 2 ** (k - half);
 }
 
 /** Royston's p-value P(W' ≤ w) under normality for a sample of n (3 ≤ n ≤ 5000). O(1). */
