@@ -1,5 +1,5 @@
-# Reference values of the Shapiro–Wilk test from R's shapiro.test (Royston 1995, AS R94, swilk.c),
-# for stats/shapiro-wilk.ts.
+# Reference values of the Shapiro–Wilk test from R's shapiro.test, run as a black box (R documents it as
+# Royston 1995, AS R94), for stats/shapiro-wilk.ts.
 #
 # Writes tests/fixtures/r-shapiro.json. Regenerate with:
 #     Rscript tests/reference/make-shapiro-fixtures.R
@@ -13,7 +13,9 @@
 #
 # Output:
 # { "note", "tools": { "R" }, "generated",
-#   "datasets": [ { "name", "description", "n", "ties", "x": [...], "w", "p" } | { ..., "error" } ] }
+#   "datasets": [ { "name", "description", "n", "ties", "x": [...], "w", "p", "wCentred", "pCentred" }
+#                 | { ..., "error" } ] }
+# where wCentred, pCentred = shapiro.test(x - median(x)) (see add() below).
 
 out_file <- file.path("tests", "fixtures", "r-shapiro.json")
 if (!dir.exists(dirname(out_file))) stop("run from the repository root (tests/fixtures not found)")
@@ -46,6 +48,12 @@ add <- function(name, description, x) {
   } else {
     entry$w <- unname(res$statistic)
     entry$p <- res$p.value
+    # W is location invariant, but shapiro.test scales the data by their range without centring them,
+    # so far from 0 (e.g. 1e6 + values with a spread of 1) its W loses digits. The same test on the
+    # data shifted by their median is recorded beside it.
+    centred <- shapiro.test(x - median(x))
+    entry$wCentred <- unname(centred$statistic)
+    entry$pCentred <- centred$p.value
   }
   datasets[[length(datasets) + 1L]] <<- entry
 }
@@ -83,7 +91,7 @@ add("n3-tie-low", "c(0, 0, 1): W = 3/4, the exact n = 3 p-value clamped at 0", c
 add("n3-unequal", "c(2.5, 3.1, 7.9)", c(2.5, 3.1, 7.9))
 add("n4-tie-pair", "c(1, 1, 2, 2)", c(1, 1, 2, 2))
 add("n5-one-outlier", "c(1, 2, 3, 4, 100)", c(1, 2, 3, 4, 100))
-add("n11-swilk-comment", "the vector in swilk.c's comment on ifault = 7", c(-1.7, -1, -1, -.73, -.61, -.5, -.24, .45, .62, .81, 1))
+add("n11-mixed-signs", "eleven invented values of both signs with one tie", c(-2.1, -1.3, -0.8, -0.8, -0.35, 0.05, 0.4, 0.9, 1.2, 1.25, 3.6))
 set.seed(4005)
 add("tiny-range-n20", "rnorm(20) * 1e-12: range below 1e-10, so shapiro.test first divides by the range, set.seed(4005)",
     rnorm(20) * 1e-12)
@@ -107,7 +115,8 @@ entry_json <- function(e) {
   if (!is.null(e$error)) {
     fields <- c(fields, paste0("\"error\": ", str_json(e$error)))
   } else {
-    fields <- c(fields, paste0("\"w\": ", num(e$w)), paste0("\"p\": ", num(e$p)))
+    fields <- c(fields, paste0("\"w\": ", num(e$w)), paste0("\"p\": ", num(e$p)),
+                paste0("\"wCentred\": ", num(e$wCentred)), paste0("\"pCentred\": ", num(e$pCentred)))
   }
   paste0("    {\n      ", paste(fields, collapse = ",\n      "), "\n    }")
 }
