@@ -26,7 +26,9 @@
  *   mean      ȳ_w = Σ w y / Σ w                                                  (R: svymean)
  *   sd        √( n/(n − 1) · Σ w (y − ȳ_w)² / Σ w )                              (R: sqrt(svyvar)), n ≥ 2
  *   quantile  the lower inverse of the weighted CDF ("math" rule): the smallest value y with F̂(y) ≥ p, where
- *             F̂(y) = Σ w·1(y_i ≤ y) / Σ w                                         (R: svyquantile(qrule = "math"))
+ *             F̂(y) = Σ w·1(y_i ≤ y) / Σ w                                         (R: svyquantile(qrule = "math"),
+             which agrees except for p below F̂ of the smallest value, where survey 4.1.1 returns the second
+             smallest observation and this rule, by definition, the smallest)
  *   Kish's effective sample size  n_eff = (Σ w)² / Σ w²           Kish (1965) Survey Sampling, Wiley, §11.7
  *   design effect of unequal weighting  1 + CV² = n Σ w² / (Σ w)² = n / n_eff  (CV with divisor n)   — Kish (1965)
  *   largest weight: exact from raw pairs; from per-value sums the largest of Σw²/Σw over values, a lower bound
