@@ -14,7 +14,7 @@
  *
  * Constructors:
  *   weightedFromPairs(values, weights)                         raw (value, weight) pairs, any order   O(n log n)
- *   weightedFromSums(values, counts, weightSums, weightSquareSums, maxWeights?)
+ *   weightedFromSums(values, counts, weightSums, weightSquareSums, { name?, maxWeights? })
  *                                                              per-value sums, values increasing      O(K)
  *   weightedFromIntegerSums(counts, weightSums, weightSquareSums, min)
  *                                                              bounded integer item: entry k is the value min + k
