@@ -49,7 +49,11 @@ export type FlagCode =
   | 'heavy_ties'
   | 'floor_ceiling'
   | 'interim'
-  | 'excluded';
+  | 'excluded'
+  // Weighted comparisons (computed by weight-flags.ts; thresholds and sources in its header).
+  | 'unequal_weights'
+  | 'dominant_weight'
+  | 'weighting_changes_conclusion';
 
 export interface Flag {
   code: FlagCode;
@@ -109,13 +113,16 @@ export interface FlagContext {
   thresholds?: Partial<FlagThresholds>;
 }
 
-const fmt = (x: number, digits = 3): string => {
+/** Format a number for a flag message (3 significant digits; exponent form for very small or large). */
+export const fmt = (x: number, digits = 3): string => {
   if (!Number.isFinite(x)) return String(x);
   if (x !== 0 && (Math.abs(x) < 1e-3 || Math.abs(x) >= 1e6)) return x.toExponential(2);
   return Number(x.toPrecision(digits)).toString();
 };
-const fmtP = (p: number): string => (p < 0.001 ? p.toExponential(1) : p.toFixed(3));
-const plural = (n: number, one: string, many: string): string => `${n} ${n === 1 ? one : many}`;
+/** Format a p-value for a flag message. */
+export const fmtP = (p: number): string => (p < 0.001 ? p.toExponential(1) : p.toFixed(3));
+/** "1 answer" / "3 answers". */
+export const plural = (n: number, one: string, many: string): string => `${n} ${n === 1 ? one : many}`;
 
 interface GroupView {
   key: 'a' | 'b';

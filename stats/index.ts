@@ -15,6 +15,13 @@
  *
  * Options: alternative "two-sided" (default) | "less" | "greater"; confidenceLevel in (0, 1), default
  * 0.95; exact "auto" (default) | "always" | "never" for the rank-sum test (rule in rank-sum.ts).
+ *
+ * Survey weights (block `weighted`; weighted-sample.ts, weighted-comparison.ts, weight-flags.ts):
+ *   weightedFromPairs / weightedFromSums / weightedFromIntegerSums   build a WeightedSample (per value: count, Σw, Σw²)
+ *   compareWeighted(wa, wb, options)       weighted summaries, design-based t test, Lumley–Scott rank test   O(K)
+ *   weightFlags(weighted, unweighted, ctx) unequal_weights, dominant_weight, weighting_changes_conclusion    O(1)
+ * Covariate adjustment (block `adjusted`; covariate-adjustment.ts):
+ *   covariateAdjusted({ outcome, inA, covariates }, options)   Lin (2013) with HC2, beside the unadjusted   O(n·p²)
  */
 import { describe, scaledMoments, type Moments } from './descriptives.js';
 import { effectSizes } from './effect-sizes.js';
@@ -29,6 +36,34 @@ import { studentTest, welchTest } from './welch.js';
 
 export * from './types.js';
 export { fromCounts, fromSortedValues, fromValues, fromWeighted, expand, type Sample } from './sample.js';
+export {
+  unweighted,
+  weightedDescribe,
+  weightedFromIntegerSums,
+  weightedFromPairs,
+  weightedFromSums,
+  weightedMean,
+  weightedQuantile,
+  type WeightedGroupSummary,
+  type WeightedSample,
+} from './weighted-sample.js';
+export { weightedTTest, type WeightedTestOptions } from './weighted-ttest.js';
+export { pooledMidRanks, weightedRankTest, type WeightedRankTestResult } from './weighted-rank-test.js';
+export { compareWeighted, type WeightedComparison } from './weighted-comparison.js';
+export {
+  DEFAULT_WEIGHT_FLAG_THRESHOLDS,
+  weightFlags,
+  type UnweightedResults,
+  type WeightFlagContext,
+  type WeightFlagThresholds,
+} from './weight-flags.js';
+export {
+  covariateAdjusted,
+  type CovariateAdjustment,
+  type CovariateAdjustmentInput,
+  type CovariateAdjustmentOptions,
+  type RegressionEstimate,
+} from './covariate-adjustment.js';
 
 interface ResolvedOptions {
   alternative: Alternative;
