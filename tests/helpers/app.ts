@@ -7,12 +7,12 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
 import { afterAll, afterEach, beforeEach, expect } from 'vitest';
-import { buildApp } from '../../server/app.js';
-import { generateSecret, hashSecret } from '../../server/auth.js';
-import { runCli } from '../../server/cli.js';
+import { buildApp } from '../../server/http/app.js';
+import { generateSecret, hashSecret } from '../../server/http/auth.js';
+import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
-import { openSqliteStore, type SqliteStore } from '../../server/db/store.js';
-import type { Scope } from '../../server/db/types.js';
+import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
+import type { Scope } from '../../server/store/types.js';
 
 export const WATER_ID = 'water-bill-2027';
 

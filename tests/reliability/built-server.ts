@@ -10,7 +10,7 @@ import { join } from 'node:path';
 import type { Readable } from 'node:stream';
 import { fileURLToPath } from 'node:url';
 
-export const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+export const ROOT = fileURLToPath(new URL('../..', import.meta.url));
 export const MAIN_JS = join(ROOT, 'dist', 'server', 'main.js');
 export const HAVE_DIST = existsSync(MAIN_JS);
 

@@ -1,0 +1,186 @@
+/**
+ * API keys.
+ *
+ * Secrets: "sb_" + 32 random bytes in base64url (256 bits), shown once when made. Stored only as SHA-256 hashes;
+ * a presented secret is hashed, looked up by hash, and the stored hash compared with crypto.timingSafeEqual.
+ * (A fast hash is right here: the secrets are long random strings, not passwords, so there is nothing to
+ * brute-force, and every request needs the check.)
+ *
+ * Scopes: admin (everything), ingest (post responses only — it can never read results), read (definitions,
+ * comparisons, exports). A key may be limited to one experiment.
+ *
+ * Every route declares `config.access`; a route without one cannot be registered (onRoute throws), so nothing
+ * is public by accident. Missing/malformed/unknown/revoked key → 401; wrong scope or experiment → 403.
+ *
+ * HTML forms cannot send headers: on routes with `formKey`, a form post without an Authorization header may carry
+ * an INGEST key in the form field `ingestKey`, checked after the body is parsed. Admin and read keys are refused
+ * there (403), because a key in a web page is visible to everyone who opens it.
+ */
+import { randomBytes, timingSafeEqual } from 'node:crypto';
+import type { FastifyInstance, FastifyRequest } from 'fastify';
+import { sha256 } from '../config.js';
+import type { ApiKeyRecord, Scope, Store } from '../store/types.js';
+import { FORM_KEY_FIELD } from '../services/ingest/validate.js';
+import { isFormContentType } from './negotiate.js';
+import { ProblemError } from './problem-handler.js';
+
+export const SECRET_PREFIX = 'sb_';
+export const SCOPES: readonly Scope[] = ['admin', 'ingest', 'read'];
+/** last_used_at is written at most this often per key (ms), so that reads do not turn into writes. */
+export const TOUCH_INTERVAL_MS = 60_000;
+
+export type RouteAccess =
+  | { public: true }
+  | {
+      public?: false;
+      scopes: readonly Scope[];
+      /** Route parameter holding the experiment id; a key limited to another experiment gets 403. */
+      experimentParam?: string;
+      /** May a key limited to one experiment use this route at all (routes without an experiment parameter)? Default true. */
+      allowExperimentLimited?: boolean;
+      /** May an ingest key arrive in the `ingestKey` field of a form post? */
+      formKey?: boolean;
+    };
+
+export interface Principal {
+  keyId: number;
+  scope: Scope;
+  /** Experiment slug the key is limited to, or null. */
+  experiment: string | null;
+  experimentKey: number | null;
+  via: 'header' | 'form';
+}
+
+declare module 'fastify' {
+  interface FastifyContextConfig {
+    access?: RouteAccess;
+  }
+  interface FastifyRequest {
+    principal: Principal | null;
+    /** Set when authentication waits for the form body (formKey routes). */
+    formKeyPending: boolean;
+  }
+}
+
+export function generateSecret(): string {
+  return SECRET_PREFIX + randomBytes(32).toString('base64url');
+}
+
+export function hashSecret(secret: string): Uint8Array {
+  return sha256(secret);
+}
+
+const BEARER = /^Bearer[ \t]+([\x21-\x7e]{1,512})[ \t]*$/i;
+const WWW_AUTHENTICATE = { 'www-authenticate': 'Bearer realm="splitballot"' };
+
+function unauthorized(detail: string): ProblemError {
+  return new ProblemError('unauthorized', detail, { headers: WWW_AUTHENTICATE });
+}
+
+async function authenticate(store: Store, secret: string): Promise<ApiKeyRecord> {
+  const hash = hashSecret(secret);
+  const key = await store.apiKeys.findByHash(hash);
+  if (!key || key.hash.length !== hash.length || !timingSafeEqual(key.hash, hash) || key.revokedAt !== null) {
+    throw unauthorized('The API key is not valid (unknown or revoked).');
+  }
+  return key;
+}
+
+function authorize(key: ApiKeyRecord, access: Exclude<RouteAccess, { public: true }>, request: FastifyRequest): void {
+  if (!access.scopes.includes(key.scope)) {
+    throw new ProblemError('forbidden', `This key has the ${key.scope} scope; this route needs ${access.scopes.join(' or ')}.`);
+  }
+  if (key.experiment !== null) {
+    if (access.experimentParam) {
+      const wanted = (request.params as Record<string, string | undefined>)[access.experimentParam];
+      if (wanted !== key.experiment) throw new ProblemError('forbidden', `This key is limited to experiment ${key.experiment}.`);
+    } else if (access.allowExperimentLimited === false) {
+      throw new ProblemError('forbidden', `This key is limited to experiment ${key.experiment}; this route needs a key for every experiment.`);
+    }
+  }
+}
+
+function toPrincipal(key: ApiKeyRecord, via: Principal['via']): Principal {
+  return { keyId: key.id, scope: key.scope, experiment: key.experiment, experimentKey: key.experimentKey, via };
+}
+
+export function registerAuth(app: FastifyInstance, store: Store, now: () => Date = () => new Date()): void {
+  app.decorateRequest('principal', null);
+  app.decorateRequest('formKeyPending', false);
+  const lastTouched = new Map<number, number>();
+
+  app.addHook('onRoute', (route) => {
+    if (!route.config?.access && route.method === 'OPTIONS' && route.url === '*') {
+      // The CORS preflight route of @fastify/cors: public by nature (it answers with headers only).
+      route.config = { ...route.config, access: { public: true } };
+      route.schema = { ...route.schema, hide: true } as typeof route.schema;
+      return;
+    }
+    if (!route.config?.access) {
+      throw new Error(`route ${String(route.method)} ${route.url} declares no config.access; every route must say who may call it`);
+    }
+  });
+
+  async function touch(key: ApiKeyRecord): Promise<void> {
+    const t = now().getTime();
+    const previous = lastTouched.get(key.id) ?? (key.lastUsedAt ? Date.parse(key.lastUsedAt) : 0);
+    if (t - previous >= TOUCH_INTERVAL_MS) {
+      lastTouched.set(key.id, t);
+      await store.apiKeys.touch(key.id, new Date(t).toISOString());
+    }
+  }
+
+  app.addHook('onRequest', async (request) => {
+    if (request.is404) return;
+    const access = request.routeOptions.config.access;
+    if (!access || access.public) return;
+    const header = request.headers.authorization;
+    if (header === undefined) {
+      if (access.formKey && isFormContentType(request.headers['content-type'])) {
+        request.formKeyPending = true;
+        return;
+      }
+      throw unauthorized('Send an API key in the header Authorization: Bearer <key>.');
+    }
+    const m = BEARER.exec(header);
+    if (!m) throw unauthorized('The Authorization header must be "Bearer <key>".');
+    const key = await authenticate(store, m[1]);
+    authorize(key, access, request);
+    request.principal = toPrincipal(key, 'header');
+    await touch(key);
+  });
+
+  app.addHook('preValidation', async (request) => {
+    if (!request.formKeyPending) return;
+    const access = request.routeOptions.config.access;
+    if (!access || access.public) return;
+    const body = request.body as Record<string, unknown> | null | undefined;
+    const secret = body && typeof body === 'object' ? body[FORM_KEY_FIELD] : undefined;
+    if (typeof secret !== 'string' || secret === '') {
+      throw unauthorized(`Send an ingest key in the form field ${FORM_KEY_FIELD}, or an API key in the Authorization header.`);
+    }
+    if (secret.length > 512) throw unauthorized('The API key is not valid (unknown or revoked).');
+    const key = await authenticate(store, secret);
+    if (key.scope !== 'ingest') {
+      request.log.warn({ keyId: key.id, scope: key.scope }, `a key with the ${key.scope} scope was sent in a form field and refused; it may be exposed in a web page, consider revoking it`);
+      throw new ProblemError('forbidden', `Only an ingest key may be sent in the form field ${FORM_KEY_FIELD}; admin and read keys are refused there.`);
+    }
+    authorize(key, access, request);
+    request.principal = toPrincipal(key, 'form');
+    request.formKeyPending = false;
+    await touch(key);
+  });
+}
+
+/**
+ * At start-up (serve): when no admin key is configured by SPLITBALLOT_ADMIN_KEY and no active admin key exists,
+ * create one and return its secret (to print once). Otherwise null.
+ */
+export async function ensureAdminKey(store: Store, adminKeyHash: Uint8Array | null, nowIso = new Date().toISOString()): Promise<string | null> {
+  await store.apiKeys.syncEnvironmentKey(adminKeyHash, nowIso);
+  if (adminKeyHash !== null) return null;
+  if ((await store.apiKeys.countActiveAdmin()) > 0) return null;
+  const secret = generateSecret();
+  await store.apiKeys.create({ hash: hashSecret(secret), scope: 'admin', experimentKey: null, label: 'first admin key', origin: 'bootstrap', createdAt: nowIso });
+  return secret;
+}

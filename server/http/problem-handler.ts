@@ -1,0 +1,169 @@
+/**
+ * Errors as RFC 9457 problem details. Every 4xx and 5xx answer of the service is application/problem+json
+ * with type, title, status and detail (plus `errors` for validation); a 5xx never carries the error's message,
+ * stack or SQL. A browser's HTML form post gets the same content as a readable HTML page instead (html.ts).
+ *
+ * Problem types (type = "urn:splitballot:problem:<name>"): see PROBLEM_TYPES below and the README.
+ */
+import type { FastifyError, FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import type { FieldError, Problem } from '../schemas/common.js';
+import { errorPage, HTML_CSP } from '../views/html.js';
+import { isFormContentType, prefersHtml } from './negotiate.js';
+
+export const PROBLEM_TYPES = {
+  'malformed-request': { status: 400, title: 'Malformed request' },
+  'invalid-parameters': { status: 400, title: 'Invalid parameters' },
+  unauthorized: { status: 401, title: 'Unauthorized' },
+  forbidden: { status: 403, title: 'Forbidden' },
+  'not-found': { status: 404, title: 'Not found' },
+  'already-exists': { status: 409, title: 'Already exists' },
+  'experiment-closed': { status: 409, title: 'Experiment closed' },
+  'response-conflict': { status: 409, title: 'Response conflict' },
+  'limits-locked': { status: 409, title: 'Measure limits locked' },
+  'monitoring-not-configured': { status: 409, title: 'Monitoring not configured' },
+  'look-not-possible': { status: 409, title: 'Look not possible' },
+  'allocation-unusable': { status: 409, title: 'Allocation unusable' },
+  'request-timeout': { status: 408, title: 'Request timeout' },
+  'rate-limited': { status: 429, title: 'Too many requests' },
+  'headers-too-large': { status: 431, title: 'Request headers too large' },
+  'payload-too-large': { status: 413, title: 'Payload too large' },
+  'unsupported-media-type': { status: 415, title: 'Unsupported media type' },
+  'validation-failed': { status: 422, title: 'Validation failed' },
+  'internal-error': { status: 500, title: 'Internal server error' },
+  unavailable: { status: 503, title: 'Service unavailable' },
+} as const;
+
+export type ProblemName = keyof typeof PROBLEM_TYPES;
+
+export function problemType(name: ProblemName): string {
+  return `urn:splitballot:problem:${name}`;
+}
+
+/** Throw this from routes and hooks; the error handler turns it into the problem response. */
+export class ProblemError extends Error {
+  readonly status: number;
+  readonly problemName: ProblemName;
+  readonly detail: string;
+  readonly errors?: FieldError[];
+  readonly headers?: Record<string, string>;
+
+  constructor(name: ProblemName, detail: string, options: { errors?: FieldError[]; headers?: Record<string, string> } = {}) {
+    super(detail);
+    this.name = 'ProblemError';
+    this.problemName = name;
+    this.status = PROBLEM_TYPES[name].status;
+    this.detail = detail;
+    this.errors = options.errors;
+    this.headers = options.headers;
+  }
+
+  toProblem(): Problem {
+    const p: Problem = { type: problemType(this.problemName), title: PROBLEM_TYPES[this.problemName].title, status: this.status, detail: this.detail };
+    if (this.errors) p.errors = this.errors;
+    return p;
+  }
+}
+
+/** Zod (or other) validation failure of one part of the request, raised by the validator compiler. */
+export class RequestValidationError extends Error {
+  readonly statusCode: number;
+  constructor(
+    readonly part: string,
+    readonly errors: FieldError[],
+  ) {
+    super(`request ${part} is not valid`);
+    this.name = 'RequestValidationError';
+    this.statusCode = part === 'body' ? 422 : 400;
+  }
+}
+
+/** Fastify's own 4xx errors whose messages are safe to show. */
+const FASTIFY_CODES: Record<string, ProblemName> = {
+  FST_ERR_CTP_BODY_TOO_LARGE: 'payload-too-large',
+  FST_ERR_CTP_INVALID_MEDIA_TYPE: 'unsupported-media-type',
+  FST_ERR_CTP_INVALID_CONTENT_LENGTH: 'malformed-request',
+  FST_ERR_CTP_EMPTY_JSON_BODY: 'malformed-request',
+  FST_ERR_CTP_INVALID_JSON_BODY: 'malformed-request',
+  FST_ERR_CTP_INVALID_TYPE: 'malformed-request',
+  FST_ERR_CTP_EMPTY_TYPE: 'malformed-request',
+  FST_ERR_BAD_URL: 'malformed-request',
+  FST_ERR_ASYNC_CONSTRAINT: 'malformed-request',
+};
+
+const DETAILS: Partial<Record<ProblemName, string>> = {
+  'payload-too-large': 'The request body is larger than this route accepts (1 MiB for one response, 16 MiB for a batch, 2 MiB for a CSV import; larger files go through the import command).',
+  'unsupported-media-type': 'Send application/json (or application/x-www-form-urlencoded for a single response from an HTML form).',
+};
+
+export function toProblem(err: unknown, requestId: string): { problem: Problem; headers: Record<string, string>; serverError: boolean } {
+  if (err instanceof ProblemError) return { problem: err.toProblem(), headers: err.headers ?? {}, serverError: err.status >= 500 };
+  if (err instanceof RequestValidationError) {
+    const name: ProblemName = err.part === 'body' ? 'validation-failed' : 'invalid-parameters';
+    const detail =
+      err.part === 'body'
+        ? `The request body has ${err.errors.length} problem${err.errors.length === 1 ? '' : 's'}; nothing was stored.`
+        : `The request ${err.part === 'querystring' ? 'query string' : err.part} is not valid.`;
+    return {
+      problem: { type: problemType(name), title: PROBLEM_TYPES[name].title, status: PROBLEM_TYPES[name].status, detail, errors: err.errors },
+      headers: {},
+      serverError: false,
+    };
+  }
+  const fe = err as Partial<FastifyError> | undefined;
+  const code = typeof fe?.code === 'string' ? fe.code : '';
+  const status = typeof fe?.statusCode === 'number' ? fe.statusCode : 500;
+  if (code in FASTIFY_CODES) {
+    const name = FASTIFY_CODES[code];
+    const detail = DETAILS[name] ?? (code === 'FST_ERR_CTP_INVALID_JSON_BODY' ? 'The body is not valid JSON.' : String(fe?.message ?? ''));
+    return { problem: { type: problemType(name), title: PROBLEM_TYPES[name].title, status: PROBLEM_TYPES[name].status, detail }, headers: {}, serverError: false };
+  }
+  if (status >= 400 && status < 500) {
+    // Some other client error raised by fastify or a plugin: keep its status, show a generic detail.
+    const safe = code.startsWith('FST_') && typeof fe?.message === 'string' ? fe.message : 'The request could not be processed.';
+    return { problem: { type: problemType('malformed-request'), title: 'Bad request', status, detail: safe }, headers: {}, serverError: false };
+  }
+  return {
+    problem: {
+      type: problemType('internal-error'),
+      title: PROBLEM_TYPES['internal-error'].title,
+      status: 500,
+      detail: `An unexpected error occurred; it has been logged with request id ${requestId}.`,
+    },
+    headers: {},
+    serverError: true,
+  };
+}
+
+/** True when this request is an HTML form post from a browser that should see pages, not JSON. */
+export function wantsHtmlPage(request: FastifyRequest): boolean {
+  return isFormContentType(request.headers['content-type']) && prefersHtml(request.headers.accept);
+}
+
+export function sendProblem(request: FastifyRequest, reply: FastifyReply, problem: Problem, headers: Record<string, string> = {}): FastifyReply {
+  reply.code(problem.status);
+  for (const [k, v] of Object.entries(headers)) reply.header(k, v);
+  if (wantsHtmlPage(request)) {
+    reply.header('content-security-policy', HTML_CSP);
+    return reply.type('text/html; charset=utf-8').send(errorPage(problem));
+  }
+  return reply.type('application/problem+json').send(problem);
+}
+
+export function registerProblemHandlers(app: FastifyInstance): void {
+  app.setErrorHandler((err, request, reply) => {
+    const { problem, headers, serverError } = toProblem(err, request.id);
+    if (serverError) request.log.error({ err }, 'request failed');
+    else if (problem.status === 413 || problem.status === 415 || problem.status === 400) request.log.info({ status: problem.status, type: problem.type }, 'request refused');
+    return sendProblem(request, reply, problem, headers);
+  });
+  app.setNotFoundHandler((request, reply) => {
+    const path = request.url.split('?')[0];
+    const problem: Problem = {
+      type: problemType('not-found'),
+      title: PROBLEM_TYPES['not-found'].title,
+      status: 404,
+      detail: `There is no route ${request.method} ${path.length > 200 ? `${path.slice(0, 200)}…` : path}.`,
+    };
+    return sendProblem(request, reply, problem);
+  });
+}
