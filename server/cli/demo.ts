@@ -20,7 +20,7 @@ import { join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { parseArgs } from 'node:util';
 import { buildApp } from '../http/app.js';
-import { generateSecret, hashSecret } from '../http/auth.js';
+import { generateSecret, hashSecret } from '../services/keys.js';
 import { openSqliteStore } from '../store/sqlite/store.js';
 
 export const DEMO_ID = 'water-bill-2027';

@@ -8,7 +8,7 @@
 import { closeSync, existsSync, openSync, writeSync } from 'node:fs';
 import { parseArgs } from 'node:util';
 import { stringify } from 'csv-stringify/sync';
-import type { CliIo } from './run.js';
+import type { CliIo } from './io.js';
 import { loadConfig } from '../config.js';
 import { describeProblem, importCsvFile, type ImportProblem } from '../services/ingest/csv-import.js';
 import { openSqliteStore } from '../store/sqlite/store.js';

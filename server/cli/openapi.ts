@@ -1,38 +1,18 @@
 /**
  * The OpenAPI 3.1 document, generated from the routes' zod schemas by @fastify/swagger (no hand-kept copy).
  *
- *   npm run openapi        → tsc, then `node dist/server/openapi.js`: writes openapi/openapi.json
+ *   npm run openapi        → tsc, then `node dist/server/cli/openapi.js`: writes openapi/openapi.json
  *   GET /openapi.json      → the same document, served by the running service (public)
  *
  * The app is built on an in-memory database (nothing is written anywhere but the output file). Key order is
  * stable: paths and component schemas are sorted by name; everything inside keeps the order the schemas
- * declare. The file ends with a newline. tests/server/http/openapi-document.test.ts fails when the committed file differs.
+ * declare. The file ends with a newline. tests/server/cli/openapi.test.ts fails when the committed file differs.
  */
 import { existsSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import type { FastifyInstance } from 'fastify';
 import { buildApp } from '../http/app.js';
-
-type Json = null | boolean | number | string | Json[] | { [key: string]: Json };
-
-function sortKeys(obj: Record<string, Json> | undefined): Record<string, Json> | undefined {
-  if (!obj) return obj;
-  const out: Record<string, Json> = {};
-  for (const k of Object.keys(obj).sort()) out[k] = obj[k];
-  return out;
-}
-
-/** The document of a ready app, with paths and component schemas in name order (a plain JSON copy). */
-export function openApiDocument(app: FastifyInstance): Record<string, Json> {
-  const doc = JSON.parse(JSON.stringify(app.swagger())) as Record<string, Json>;
-  if (doc.paths && typeof doc.paths === 'object') doc.paths = sortKeys(doc.paths as Record<string, Json>)!;
-  const components = doc.components as Record<string, Json> | undefined;
-  if (components && typeof components === 'object' && components.schemas) {
-    components.schemas = sortKeys(components.schemas as Record<string, Json>)!;
-  }
-  return doc;
-}
+import { openApiDocument, type Json } from '../http/openapi-document.js';
 
 /** Build the app on an in-memory database and return its document. */
 export async function generateOpenApi(): Promise<Record<string, Json>> {

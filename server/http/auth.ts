@@ -1,10 +1,5 @@
 /**
- * API keys.
- *
- * Secrets: "sb_" + 32 random bytes in base64url (256 bits), shown once when made. Stored only as SHA-256 hashes;
- * a presented secret is hashed, looked up by hash, and the stored hash compared with crypto.timingSafeEqual.
- * (A fast hash is right here: the secrets are long random strings, not passwords, so there is nothing to
- * brute-force, and every request needs the check.)
+ * The auth hooks: who may call which route (secrets, hashes and the first admin key are services/keys.ts).
  *
  * Scopes: admin (everything), ingest (post responses only — it can never read results), read (definitions,
  * comparisons, exports). A key may be limited to one experiment.
@@ -16,16 +11,13 @@
  * an INGEST key in the form field `ingestKey`, checked after the body is parsed. Admin and read keys are refused
  * there (403), because a key in a web page is visible to everyone who opens it.
  */
-import { randomBytes, timingSafeEqual } from 'node:crypto';
 import type { FastifyInstance, FastifyRequest } from 'fastify';
-import { sha256 } from '../config.js';
+import { activeKeyByHash, hashSecret } from '../services/keys.js';
 import type { ApiKeyRecord, Scope, Store } from '../store/types.js';
-import { FORM_KEY_FIELD } from '../services/ingest/validate.js';
+import { FORM_KEY_FIELD } from '../schemas/responses.js';
 import { isFormContentType } from './negotiate.js';
-import { ProblemError } from './problem-handler.js';
+import { ProblemError } from '../errors.js';
 
-export const SECRET_PREFIX = 'sb_';
-export const SCOPES: readonly Scope[] = ['admin', 'ingest', 'read'];
 /** last_used_at is written at most this often per key (ms), so that reads do not turn into writes. */
 export const TOUCH_INTERVAL_MS = 60_000;
 
@@ -62,27 +54,25 @@ declare module 'fastify' {
   }
 }
 
-export function generateSecret(): string {
-  return SECRET_PREFIX + randomBytes(32).toString('base64url');
-}
-
-export function hashSecret(secret: string): Uint8Array {
-  return sha256(secret);
-}
-
 const BEARER = /^Bearer[ \t]+([\x21-\x7e]{1,512})[ \t]*$/i;
 const WWW_AUTHENTICATE = { 'www-authenticate': 'Bearer realm="splitballot"' };
 
-function unauthorized(detail: string): ProblemError {
+/** 401 with the WWW-Authenticate challenge. */
+export function unauthorized(detail: string): ProblemError {
   return new ProblemError('unauthorized', detail, { headers: WWW_AUTHENTICATE });
 }
 
+/** The secret of an "Authorization: Bearer <secret>" header; 401 (with `missing` as the detail) when absent, 401 when malformed. */
+export function bearerSecret(header: string | undefined, missing: string): string {
+  if (header === undefined) throw unauthorized(missing);
+  const m = BEARER.exec(header);
+  if (!m) throw unauthorized('The Authorization header must be "Bearer <key>".');
+  return m[1];
+}
+
 async function authenticate(store: Store, secret: string): Promise<ApiKeyRecord> {
-  const hash = hashSecret(secret);
-  const key = await store.apiKeys.findByHash(hash);
-  if (!key || key.hash.length !== hash.length || !timingSafeEqual(key.hash, hash) || key.revokedAt !== null) {
-    throw unauthorized('The API key is not valid (unknown or revoked).');
-  }
+  const key = await activeKeyByHash(store, hashSecret(secret));
+  if (!key) throw unauthorized('The API key is not valid (unknown or revoked).');
   return key;
 }
 
@@ -142,9 +132,7 @@ export function registerAuth(app: FastifyInstance, store: Store, now: () => Date
       }
       throw unauthorized('Send an API key in the header Authorization: Bearer <key>.');
     }
-    const m = BEARER.exec(header);
-    if (!m) throw unauthorized('The Authorization header must be "Bearer <key>".');
-    const key = await authenticate(store, m[1]);
+    const key = await authenticate(store, bearerSecret(header, ''));
     authorize(key, access, request);
     request.principal = toPrincipal(key, 'header');
     await touch(key);
@@ -170,17 +158,4 @@ export function registerAuth(app: FastifyInstance, store: Store, now: () => Date
     request.formKeyPending = false;
     await touch(key);
   });
-}
-
-/**
- * At start-up (serve): when no admin key is configured by SPLITBALLOT_ADMIN_KEY and no active admin key exists,
- * create one and return its secret (to print once). Otherwise null.
- */
-export async function ensureAdminKey(store: Store, adminKeyHash: Uint8Array | null, nowIso = new Date().toISOString()): Promise<string | null> {
-  await store.apiKeys.syncEnvironmentKey(adminKeyHash, nowIso);
-  if (adminKeyHash !== null) return null;
-  if ((await store.apiKeys.countActiveAdmin()) > 0) return null;
-  const secret = generateSecret();
-  await store.apiKeys.create({ hash: hashSecret(secret), scope: 'admin', experimentKey: null, label: 'first admin key', origin: 'bootstrap', createdAt: nowIso });
-  return secret;
 }

@@ -11,18 +11,10 @@
  */
 import { randomBytes } from 'node:crypto';
 import type { FastifyInstance, FastifyRequest } from 'fastify';
-import { ProblemError } from './problem-handler.js';
+import { ProblemError } from '../errors.js';
+import { MAX_NUMBER_LENGTH, OverlongNumber } from '../schemas/field-errors.js';
 
-export const MAX_NUMBER_LENGTH = 40;
 export const MAX_JSON_DEPTH = 32;
-
-/** A JSON number token longer than MAX_NUMBER_LENGTH characters, kept as text (shortened to 64 characters). */
-export class OverlongNumber {
-  constructor(readonly text: string) {}
-  toJSON(): string {
-    return this.text;
-  }
-}
 
 export interface JsonScan {
   /** [start, end) of every number token longer than MAX_NUMBER_LENGTH. */

@@ -22,13 +22,14 @@
  *
  * Cost: O(1) per request (a counter increment and a histogram observation); a scrape is O(series).
  */
-import { createHash, timingSafeEqual } from 'node:crypto';
 import { statSync } from 'node:fs';
 import type { FastifyInstance } from 'fastify';
 import { Counter, Gauge, Histogram, Registry, collectDefaultMetrics } from 'prom-client';
 import { z } from 'zod';
 import type { IngestOutcome, RejectedIncrement, ResponseRepository, Store } from '../store/types.js';
-import { ProblemError } from './problem-handler.js';
+import { ProblemError } from '../errors.js';
+import { activeKeyByHash, hashSecret, sameHash } from '../services/keys.js';
+import { bearerSecret, unauthorized } from './auth.js';
 import { problems } from '../schemas/common.js';
 
 export const METRICS_CONTENT_TYPE = 'text/plain; version=0.0.4; charset=utf-8';
@@ -268,16 +269,11 @@ export async function metricsRoutes(
       config: { access: { public: true } },
       serializerCompiler: () => (data) => (typeof data === 'string' ? data : JSON.stringify(data)),
       onRequest: async (request) => {
-        const header = request.headers.authorization;
-        if (header === undefined) throw unauthorized('Send an admin key or the metrics token in the header Authorization: Bearer <key>.');
-        const m = BEARER.exec(header);
-        if (!m) throw unauthorized('The Authorization header must be "Bearer <key>".');
-        const hash = createHash('sha256').update(m[1], 'utf8').digest();
-        if (metricsTokenHash !== null && metricsTokenHash.length === hash.length && timingSafeEqual(metricsTokenHash, hash)) return;
-        const key = await store.apiKeys.findByHash(hash);
-        if (!key || key.hash.length !== hash.length || !timingSafeEqual(key.hash, hash) || key.revokedAt !== null) {
-          throw unauthorized('The API key is not valid (unknown or revoked).');
-        }
+        const secret = bearerSecret(request.headers.authorization, 'Send an admin key or the metrics token in the header Authorization: Bearer <key>.');
+        const hash = hashSecret(secret);
+        if (metricsTokenHash !== null && sameHash(metricsTokenHash, hash)) return;
+        const key = await activeKeyByHash(store, hash);
+        if (!key) throw unauthorized('The API key is not valid (unknown or revoked).');
         if (key.scope !== 'admin') throw new ProblemError('forbidden', `This key has the ${key.scope} scope; /metrics needs an admin key or the metrics token.`);
         if (key.experiment !== null) throw new ProblemError('forbidden', `This key is limited to experiment ${key.experiment}; /metrics needs a key for every experiment.`);
       },
@@ -300,10 +296,4 @@ export async function metricsRoutes(
       return reply.type(METRICS_CONTENT_TYPE).header('cache-control', 'no-store').send(text);
     },
   );
-}
-
-const BEARER = /^Bearer[ \t]+([\x21-\x7e]{1,512})[ \t]*$/i;
-
-function unauthorized(detail: string): ProblemError {
-  return new ProblemError('unauthorized', detail, { headers: { 'www-authenticate': 'Bearer realm="splitballot"' } });
 }

@@ -5,40 +5,8 @@
  */
 import type { FastifySchemaCompiler } from 'fastify';
 import type { ZodType } from 'zod';
-import { OverlongNumber } from './json-body.js';
-import { formatPath } from '../schemas/common.js';
-import { RequestValidationError } from './problem-handler.js';
-import type { FieldError } from '../schemas/common.js';
-
-function valueAt(data: unknown, path: readonly PropertyKey[]): unknown {
-  let cur: unknown = data;
-  for (const seg of path) {
-    if (cur === null || typeof cur !== 'object') return undefined;
-    cur = (cur as Record<PropertyKey, unknown>)[seg];
-  }
-  return cur;
-}
-
-/** Validate `data` with a zod schema; FieldErrors carry paths under `prefix`. */
-export function zodFieldErrors(schema: ZodType, data: unknown, prefix: readonly PropertyKey[] = []): { ok: true; value: unknown } | { ok: false; errors: FieldError[] } {
-  const result = schema.safeParse(data);
-  if (result.success) return { ok: true, value: result.data };
-  const errors: FieldError[] = [];
-  for (const issue of result.error.issues) {
-    if (issue.code === 'unrecognized_keys') {
-      for (const key of issue.keys) errors.push({ path: formatPath([...prefix, ...issue.path, key]), message: 'is not a known field' });
-      continue;
-    }
-    const value = valueAt(data, issue.path);
-    const e: FieldError = { path: formatPath([...prefix, ...issue.path]), message: issue.message };
-    if (value instanceof OverlongNumber) {
-      e.message = 'is a number with more than 40 characters';
-      e.value = value.text;
-    }
-    errors.push(e);
-  }
-  return { ok: false, errors };
-}
+import { RequestValidationError } from '../errors.js';
+import { zodFieldErrors } from '../schemas/field-errors.js';
 
 export const zodValidatorCompiler: FastifySchemaCompiler<ZodType> =
   ({ schema, httpPart }) =>

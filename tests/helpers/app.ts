@@ -8,7 +8,7 @@ import { join } from 'node:path';
 import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
 import { afterAll, afterEach, beforeEach, expect } from 'vitest';
 import { buildApp } from '../../server/http/app.js';
-import { generateSecret, hashSecret } from '../../server/http/auth.js';
+import { generateSecret, hashSecret } from '../../server/services/keys.js';
 import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
 import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';

@@ -16,7 +16,7 @@ import { z } from 'zod';
 import type { BackupResult } from '../../store/sqlite/backup.js';
 import type { Store } from '../../store/types.js';
 import type { ServiceMetrics } from '../metrics.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 
 export const BACKUP_NAME_PATTERN = /^[A-Za-z0-9][A-Za-z0-9._-]{0,100}\.db$/;

@@ -9,7 +9,7 @@ import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import type { Store } from '../../store/types.js';
 import { blockPlan, secureShuffle } from '../../services/monitoring/interim.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { AssignmentInputSchema, AssignmentSchema, AssignmentSummarySchema } from '../../schemas/monitoring.js';
 import { ExperimentParams } from '../../schemas/responses.js';

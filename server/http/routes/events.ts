@@ -20,7 +20,7 @@ import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { Store } from '../../store/types.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { loadExperiment } from './experiments.js';

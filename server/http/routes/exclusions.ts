@@ -15,7 +15,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import type { ExclusionOutcome, Store } from '../../store/types.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { AuditListSchema, ErasureSchema, ExclusionInputSchema, ExclusionSchema, RespondentParams, ResponseParams } from '../../schemas/exclusions.js';
 import { ExperimentParams } from '../../schemas/responses.js';

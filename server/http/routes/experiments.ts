@@ -5,7 +5,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import type { ExperimentRecord, Store } from '../../store/types.js';
-import { ProblemError, RequestValidationError } from '../problem-handler.js';
+import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
 import { ExperimentParams } from '../../schemas/responses.js';

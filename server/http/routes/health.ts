@@ -2,7 +2,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import type { Store } from '../../store/types.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { HealthSchema, ReadySchema } from '../../schemas/health.js';
 

@@ -13,7 +13,7 @@ import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import { describeProblem, IMPORT_BODY_LIMIT, importCsvBuffer, MAX_KEPT_PROBLEMS, type ImportProblem } from '../../services/ingest/csv-import.js';
 import type { Store } from '../../store/types.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { bodyPassThroughCompiler } from '../validator.js';

@@ -14,7 +14,7 @@ import type { LookRecord } from '../../store/monitoring-types.js';
 import type { ExperimentRecord, MeasureRecord, Store } from '../../store/types.js';
 import { lookMessage, monitoringOption, recordLook, trajectory } from '../../services/monitoring/interim.js';
 import { renderTrajectoryChart } from '../../views/charts.js';
-import { ProblemError, RequestValidationError } from '../problem-handler.js';
+import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems, type Problem } from '../../schemas/common.js';
 import { LookInputSchema, LookListQuery, LookListSchema, LookSchema, MeasureParams, PairQuery, TrajectorySchema } from '../../schemas/monitoring.js';
 import { ExperimentParams } from '../../schemas/responses.js';

@@ -8,7 +8,7 @@ import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { sampleSize } from '../../../stats/planning.js';
 import type { Store } from '../../store/types.js';
-import { RequestValidationError } from '../problem-handler.js';
+import { RequestValidationError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { PlanningInputSchema, PlanningResultSchema } from '../../schemas/monitoring.js';
 

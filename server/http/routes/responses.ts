@@ -10,7 +10,7 @@ import { z } from 'zod';
 import type { ExperimentRecord, IngestOutcome, Store, ValidResponse } from '../../store/types.js';
 import { checkBatch, checkSingle, formToItem } from '../../services/ingest/validate.js';
 import { isFormContentType, prefersHtml } from '../negotiate.js';
-import { ProblemError, RequestValidationError } from '../problem-handler.js';
+import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems, type FieldError } from '../../schemas/common.js';
 import {
   BATCH_BODY_LIMIT,

@@ -16,9 +16,9 @@ import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { Store } from '../../store/types.js';
-import { openApiDocument } from '../../cli/openapi.js';
+import { openApiDocument } from '../openapi-document.js';
 import { PAGE_ASSETS, pagesDirectory, RESULTS_HTML, RESULTS_PAGE_CSP } from '../page-assets.js';
-import { ProblemError } from '../problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 
 interface Asset {

@@ -37,7 +37,7 @@ import { toShared } from '../../store/sqlite/sorted-runs-cache.js';
 import { recordComparison } from '../../http/metrics.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { distributionGroupFromSample, renderDistributionChart } from '../../views/charts.js';
-import { ProblemError } from '../../http/problem-handler.js';
+import { ProblemError } from '../../errors.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import type { FieldError } from '../../schemas/common.js';
 

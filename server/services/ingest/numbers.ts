@@ -8,7 +8,7 @@
  *  - more than 40 characters                                                → too_many_digits
  * "-0" parses to -0; ingest stores it as 0.
  */
-import { MAX_NUMBER_LENGTH } from '../../http/json-body.js';
+import { MAX_NUMBER_LENGTH } from '../../schemas/field-errors.js';
 import type { RejectionReason } from '../../store/types.js';
 
 const HTML_FLOAT = /^-?(?:[0-9]+(?:\.[0-9]+)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$/;

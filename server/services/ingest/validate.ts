@@ -18,18 +18,11 @@
 import { createHash, randomUUID } from 'node:crypto';
 import { z } from 'zod';
 import type { ExperimentRecord, MeasureRecord, RejectedIncrement, RejectionReason, ValidResponse } from '../../store/types.js';
-import { OverlongNumber } from '../../http/json-body.js';
+import { OverlongNumber } from '../../schemas/field-errors.js';
 import { FormNumberFailure, parseFormNumber } from './numbers.js';
 import { echoValue, formatPath, type FieldError } from '../../schemas/common.js';
-import { BatchEnvelopeSchema, RESPONSE_ID_PATTERN, ResponseInputSchema } from '../../schemas/responses.js';
-import { zodFieldErrors } from '../../http/validator.js';
-
-/** Name of the form field that may carry an ingest key (never an admin or read key). */
-export const FORM_KEY_FIELD = 'ingestKey';
-/** Form fields that are not measures. */
-export const FORM_RESERVED_FIELDS = ['condition', 'responseId', 'respondent', 'submittedAt', FORM_KEY_FIELD] as const;
-/** Measure ids that cannot be used, because a form field of that name means something else. */
-export const RESERVED_MEASURE_IDS = ['condition', 'respondent'] as const;
+import { BatchEnvelopeSchema, FORM_KEY_FIELD, FORM_RESERVED_FIELDS, RESPONSE_ID_PATTERN, ResponseInputSchema } from '../../schemas/responses.js';
+import { zodFieldErrors } from '../../schemas/field-errors.js';
 
 export interface CheckResult {
   valid: ValidResponse[];

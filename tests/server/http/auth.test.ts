@@ -4,7 +4,7 @@
  */
 import { beforeEach, describe, expect, it } from 'vitest';
 import { buildApp } from '../../../server/http/app.js';
-import { ensureAdminKey, generateSecret, hashSecret } from '../../../server/http/auth.js';
+import { ensureAdminKey, generateSecret, hashSecret } from '../../../server/services/keys.js';
 import { eachTestApp, testConfig, waterResponse, WATER_ID, tempDir, type TestApp } from '../../helpers/app.js';
 import { join } from 'node:path';
 

@@ -5,7 +5,7 @@
  */
 import SwaggerParser from '@apidevtools/swagger-parser';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { generateSecret, hashSecret } from '../../../server/http/auth.js';
+import { generateSecret, hashSecret } from '../../../server/services/keys.js';
 import { recordComparison } from '../../../server/http/metrics.js';
 import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
 

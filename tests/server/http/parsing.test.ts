@@ -1,7 +1,8 @@
 /** Unit tests of the small parsers: form numbers, the JSON body scan, Accept negotiation, configuration. */
 import { describe, expect, it } from 'vitest';
 import { ConfigError, loadConfig, sha256 } from '../../../server/config.js';
-import { MAX_JSON_DEPTH, MAX_NUMBER_LENGTH, OverlongNumber, parseJsonBody, scanJson } from '../../../server/http/json-body.js';
+import { MAX_JSON_DEPTH, parseJsonBody, scanJson } from '../../../server/http/json-body.js';
+import { MAX_NUMBER_LENGTH, OverlongNumber } from '../../../server/schemas/field-errors.js';
 import { prefersHtml, qualityOf } from '../../../server/http/negotiate.js';
 import { FormNumberFailure, parseFormNumber } from '../../../server/services/ingest/numbers.js';
 

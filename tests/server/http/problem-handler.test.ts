@@ -5,9 +5,9 @@
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { z } from 'zod';
 import { buildApp } from '../../../server/http/app.js';
-import { generateSecret, hashSecret } from '../../../server/http/auth.js';
+import { generateSecret, hashSecret } from '../../../server/services/keys.js';
 import { MAX_JSON_DEPTH } from '../../../server/http/json-body.js';
-import { ProblemError } from '../../../server/http/problem-handler.js';
+import { ProblemError } from '../../../server/errors.js';
 import { LogCapture, tempDir, testConfig } from '../../helpers/app.js';
 import { join } from 'node:path';
 import type { FastifyInstance } from 'fastify';

@@ -6,7 +6,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, readFileSync } from 'node:fs';
 import type { InjectOptions } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { generateSecret, hashSecret } from '../../../server/http/auth.js';
+import { generateSecret, hashSecret } from '../../../server/services/keys.js';
 import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 let t: TestApp;
