@@ -3,7 +3,8 @@ import { existsSync } from 'node:fs';
 import { resolve } from 'node:path';
 import { parseArgs } from 'node:util';
 import { loadConfig } from '../config.js';
-import { BackupError, backupFile, checkFile, checkSummary, restoreDatabase, type BackupProgress } from '../store/sqlite/backup.js';
+import { backupFile, restoreDatabase, type BackupProgress } from '../store/sqlite/backup.js';
+import { BackupError, checkFile, checkSummary } from '../store/sqlite/check.js';
 import { HELP, openStore, UsageError, type CliIo } from './io.js';
 
 export async function migrateCommand(args: string[], io: CliIo): Promise<number> {

@@ -9,7 +9,7 @@
  * estimates, the flags in words) and the results page's address with a read key, and keeps serving until Ctrl-C.
  *
  *   npm run demo                  serve until Ctrl-C
- *   npm run demo -- --once        print and exit 0 (used by tests/server/cli/demo.test.ts)
+ *   npm run demo -- --once        print and exit 0 (used by tests/cli/demo.test.ts)
  *   options: --port N (default: a free port), --seed N (default 2027), --per-condition N (default 250)
  *
  * All data are invented; the output says so.

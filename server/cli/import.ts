@@ -10,7 +10,8 @@ import { parseArgs } from 'node:util';
 import { stringify } from 'csv-stringify/sync';
 import type { CliIo } from './io.js';
 import { loadConfig } from '../config.js';
-import { describeProblem, importCsvFile, type ImportProblem } from '../services/ingest/csv-import.js';
+import { importCsvFile } from '../services/ingest/csv-import.js';
+import { describeProblem, type ImportProblem } from '../services/ingest/csv-rows.js';
 import { openSqliteStore } from '../store/sqlite/store.js';
 
 export const IMPORT_HELP = `Usage: splitballot import --experiment ID FILE.csv [--skip-invalid] [--rejects FILE]

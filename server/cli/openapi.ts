@@ -6,7 +6,7 @@
  *
  * The app is built on an in-memory database (nothing is written anywhere but the output file). Key order is
  * stable: paths and component schemas are sorted by name; everything inside keeps the order the schemas
- * declare. The file ends with a newline. tests/server/cli/openapi.test.ts fails when the committed file differs.
+ * declare. The file ends with a newline. tests/cli/openapi.test.ts fails when the committed file differs.
  */
 import { existsSync, writeFileSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';

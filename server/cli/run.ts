@@ -4,7 +4,7 @@
  * wrapper. Long operations (backup, restore, check) write progress to stderr and one summary line to stdout.
  */
 import { ConfigError } from '../config.js';
-import { BackupError } from '../store/sqlite/backup.js';
+import { BackupError } from '../store/sqlite/check.js';
 import { MigrationError } from '../store/sqlite/migrate.js';
 import { backupCommand, checkCommand, migrateCommand, restoreCommand } from './database.js';
 import { importCommand } from './import.js';

@@ -1,9 +1,10 @@
 /** splitballot serve: take the server lock, open and migrate the database, make the first admin key, listen, and shut down gracefully on SIGTERM/SIGINT. */
 import { parseArgs } from 'node:util';
 import { buildApp } from '../http/app.js';
+import { warmUp } from '../services/comparisons/service.js';
 import { ensureAdminKey } from '../services/keys.js';
 import { loadConfig } from '../config.js';
-import { acquireServerLock, lockPathOf } from '../store/sqlite/backup.js';
+import { acquireServerLock, lockPathOf } from '../store/sqlite/lock.js';
 import type { SqliteStore } from '../store/sqlite/store.js';
 import { HELP, openStore, SHUTDOWN_GRACE_MS, type CliIo } from './io.js';
 
@@ -52,6 +53,8 @@ export async function serveCommand(args: string[], io: CliIo): Promise<number> {
     io.stderr.write(`splitballot: cannot listen on ${config.host}:${config.port}: ${(err as Error).message}\n`);
     return 1;
   }
+  // Compile the stats path and start a comparison worker now, not on the first real request (see warmUp).
+  setImmediate(() => warmUp());
   const address = app.server.address();
   const port = typeof address === 'object' && address ? address.port : config.port;
   const shownHost = config.host === '0.0.0.0' || config.host === '::' ? '127.0.0.1' : config.host.includes(':') ? `[${config.host}]` : config.host;

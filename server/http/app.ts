@@ -19,39 +19,38 @@
  * Protocol-level errors (bad HTTP, timeouts, oversized headers) are answered as problem+json by
  * clientErrorHandler below, not by Node's bare defaults.
  */
-import cors from '@fastify/cors';
 import formbody from '@fastify/formbody';
-import swagger from '@fastify/swagger';
-import rateLimit from '@fastify/rate-limit';
-import Fastify, { type FastifyInstance, type FastifyRequest } from 'fastify';
-import fp from 'fastify-plugin';
-import { STATUS_CODES } from 'node:http';
-import type { Socket } from 'node:net';
-import { jsonSchemaTransform, jsonSchemaTransformObject, serializerCompiler } from 'fastify-type-provider-zod';
-import { registerAuth, type RouteAccess } from './auth.js';
-import { backupDatabase } from '../store/sqlite/backup.js';
+import Fastify, { type FastifyInstance } from 'fastify';
+import { serializerCompiler } from 'fastify-type-provider-zod';
+import { problemType } from '../errors.js';
 import { backupDirOf, REQUEST_TIMEOUT_DEFAULT_MS, type Config } from '../config.js';
+import { SINGLE_BODY_LIMIT } from '../schemas/responses.js';
+import { ComparisonService, DEFAULT_CACHE_LIMITS } from '../services/comparisons/service.js';
+import { backupDatabase } from '../store/sqlite/backup.js';
 import { openSqliteStore, type SqliteStore } from '../store/sqlite/store.js';
 import type { Store } from '../store/types.js';
+import { registerAuth, type RouteAccess } from './auth.js';
+import { registerCors } from './cors.js';
 import { registerJsonParser } from './json-body.js';
-import { attachMetrics, detachMetrics, instrumentStore, metricsRoutes, ServiceMetrics } from './metrics.js';
-import { registerProblemHandlers, sendProblem } from './problem-handler.js';
-import { problemType } from '../errors.js';
-import { experimentRoutes } from './routes/experiments.js';
-import { healthRoutes } from './routes/health.js';
-import { pageRoutes } from './routes/pages.js';
-import { responseRoutes } from './routes/responses.js';
+import { instrumentStore, metricsRoutes, registerRequestMetrics, ServiceMetrics } from './metrics.js';
+import { registerOpenApi } from './openapi-document.js';
+import { clientErrorHandler, registerProblemHandlers, sendProblem } from './problem-handler.js';
+import { registerIngestRateLimit } from './rate-limit.js';
 import { adminRoutes } from './routes/admin.js';
 import { assignmentRoutes } from './routes/assignments.js';
 import { comparisonRoutes } from './routes/comparisons.js';
 import { eventRoutes } from './routes/events.js';
 import { exclusionRoutes } from './routes/exclusions.js';
+import { experimentRoutes } from './routes/experiments.js';
 import { exportRoutes } from './routes/exports.js';
+import { healthRoutes } from './routes/health.js';
 import { importRoutes } from './routes/imports.js';
 import { lookRoutes } from './routes/looks.js';
+import { pageRoutes } from './routes/pages.js';
 import { planningRoutes } from './routes/planning.js';
+import { responseRoutes } from './routes/responses.js';
 import { resultsPageRoutes } from './routes/results-page.js';
-import { SINGLE_BODY_LIMIT } from '../schemas/responses.js';
+import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
 
 export interface AppDeps {
@@ -111,6 +110,8 @@ declare module 'fastify' {
   interface FastifyInstance {
     store: Store;
     metrics: ServiceMetrics;
+    /** The comparison service of this app (its cache, its worker pool settings, its metrics callback). */
+    comparisons: ComparisonService;
     /** Every route registered, with its access declaration, in registration order. */
     routeTable: RouteEntry[];
   }
@@ -120,56 +121,16 @@ declare module 'fastify' {
 export const REQUEST_TIMEOUT_MS = REQUEST_TIMEOUT_DEFAULT_MS;
 export const KEEP_ALIVE_TIMEOUT_MS = 72_000;
 
-/** Security headers on every answer (HTML pages that set their own CSP keep it). */
-export const SECURITY_HEADERS: Readonly<Record<string, string>> = Object.freeze({
-  'x-content-type-options': 'nosniff',
-  'referrer-policy': 'no-referrer',
-  'cross-origin-resource-policy': 'same-origin',
-});
-/** CSP for an HTML answer that did not set one: nothing may load, run, frame it or be posted from it. */
-export const DEFAULT_HTML_CSP = "default-src 'none'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'";
-/** CSP for every other answer (JSON, CSV, text): if a browser ever renders one, nothing in it can run. */
-export const API_CSP = "default-src 'none'; frame-ancestors 'none'";
-
-const RATE_LIMITED_TYPE = 'urn:splitballot:problem:rate-limited';
-
-function rawProblem(status: number, name: string, title: string, detail: string): string {
-  const body = JSON.stringify({ type: `urn:splitballot:problem:${name}`, title, status, detail });
-  return (
-    `HTTP/1.1 ${status} ${STATUS_CODES[status] ?? 'Error'}\r\n` +
-    `Content-Type: application/problem+json\r\nContent-Length: ${Buffer.byteLength(body)}\r\n` +
-    `X-Content-Type-Options: nosniff\r\nContent-Security-Policy: ${API_CSP}\r\nConnection: close\r\n\r\n${body}`
-  );
-}
-
-/** Errors below HTTP (unparseable request, timeout, oversized headers): answered as problem+json, then closed. */
-function clientErrorHandler(this: FastifyInstance, err: NodeJS.ErrnoException, socket: Socket): void {
-  if (err.code === 'ECONNRESET' || socket.destroyed) return;
-  let reply: string;
-  if (err.code === 'ERR_HTTP_REQUEST_TIMEOUT') {
-    reply = rawProblem(408, 'request-timeout', 'Request timeout', 'The request (headers and body) did not arrive within the request timeout.');
-  } else if (err.code === 'HPE_HEADER_OVERFLOW') {
-    reply = rawProblem(431, 'headers-too-large', 'Request headers too large', 'The request line and headers are larger than 16 KiB.');
-  } else {
-    reply = rawProblem(400, 'malformed-request', 'Malformed request', 'The request is not valid HTTP/1.1.');
-  }
-  this.log.debug({ code: err.code }, 'client error');
-  if (socket.writable) socket.write(reply);
-  socket.destroy();
-}
-
-function isIngestRoute(request: FastifyRequest): boolean {
-  if (request.method !== 'POST' || request.is404) return false;
-  const access = request.routeOptions.config.access;
-  return access !== undefined && !access.public && access.scopes.includes('ingest');
-}
-
 export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   const baseStore = deps.store ?? openSqliteStore(config.dbPath);
   const ownsStore = deps.store === undefined;
   const metrics = new ServiceMetrics({ dbPath: config.dbPath, processMetrics: deps.processMetrics ?? false });
   // Routes get a store that reports stored and refused answers to the metrics (server/http/metrics.ts).
   const store = instrumentStore(baseStore, metrics);
+  const comparisons = new ComparisonService(store, DEFAULT_CACHE_LIMITS, {
+    workerMinValues: config.compareWorkerMinValues,
+    onComparison: (event) => metrics.recordComparison(event),
+  });
   const requestTimeout = config.requestTimeoutMs ?? REQUEST_TIMEOUT_DEFAULT_MS;
 
   const app = Fastify({
@@ -208,9 +169,8 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
 
   app.decorate('store', store);
   app.decorate('metrics', metrics);
+  app.decorate('comparisons', comparisons);
   app.decorate('routeTable', [] as RouteEntry[]);
-  attachMetrics(metrics);
-  app.addHook('onClose', async () => detachMetrics(metrics));
   app.addHook('onRoute', (route) => {
     const methods = Array.isArray(route.method) ? route.method : [route.method];
     for (const method of methods) app.routeTable.push({ method: String(method), url: route.url, access: route.config?.access });
@@ -222,39 +182,8 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   registerJsonParser(app);
   app.removeContentTypeParser('text/plain');
   app.register(formbody, { bodyLimit: SINGLE_BODY_LIMIT });
-  if (config.corsOrigins.length > 0) {
-    app.register(cors, {
-      origin: config.corsOrigins,
-      methods: ['GET', 'HEAD', 'POST', 'PATCH', 'DELETE'],
-      allowedHeaders: ['Authorization', 'Content-Type', 'If-None-Match'],
-      exposedHeaders: ['ETag', 'Location'],
-      maxAge: 600,
-    });
-  }
-
-  app.addHook('onSend', async (request, reply, payload) => {
-    for (const [name, value] of Object.entries(SECURITY_HEADERS)) reply.header(name, value);
-    if (!reply.hasHeader('content-security-policy')) {
-      const type = String(reply.getHeader('content-type') ?? '');
-      if (type.startsWith('text/html')) {
-        reply.header('content-security-policy', DEFAULT_HTML_CSP);
-        reply.header('x-frame-options', 'DENY');
-      } else {
-        reply.header('content-security-policy', API_CSP);
-      }
-    }
-    // Answers to a key are for that key only: shared caches must not keep them (ETag revalidation still works).
-    if (request.principal !== null && !reply.hasHeader('cache-control')) reply.header('cache-control', 'private, no-cache');
-    reply.removeHeader('x-powered-by');
-    if (isIngestRoute(request) && reply.statusCode >= 400) {
-      const m = typeof payload === 'string' ? /"type":"urn:splitballot:problem:([a-z-]+)"/.exec(payload.slice(0, 200)) : null;
-      metrics.recordRefused(m ? m[1] : `status-${reply.statusCode}`);
-    }
-    return payload;
-  });
-
-  // While shutting down: requests that still arrive on open keep-alive connections get 503 and the connection
-  // closes; requests already being handled finish (server/cli/run.ts waits for them).
+  registerCors(app, config.corsOrigins);
+  registerSecurityHeaders(app);
   let closing = false;
   app.addHook('preClose', async () => {
     closing = true;
@@ -271,71 +200,12 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   });
 
   registerAuth(app, store);
+  registerIngestRateLimit(app, config.rateLimitIngestPerMinute ?? 0, metrics);
+  registerRequestMetrics(app, metrics);
+  registerOpenApi(app);
 
   // Ingest rate limit: per (API key, client address), after authentication so that the key is known. A form post
   // without an Authorization header is counted per address until its ingestKey field is read.
-  const perMinute = config.rateLimitIngestPerMinute ?? 0;
-  if (perMinute > 0) {
-    app.register(rateLimit, { global: false });
-    app.register(
-      fp(async (instance) => {
-        const limiter = instance.createRateLimit({
-          max: perMinute,
-          timeWindow: 60_000,
-          keyGenerator: (request: FastifyRequest) => `ingest|${request.principal?.keyId ?? 'form'}|${request.ip}`,
-        });
-        instance.addHook('onRequest', async (request, reply) => {
-          if (!isIngestRoute(request)) return;
-          const r = await limiter(request);
-          if (r.isAllowed) return;
-          reply.header('x-ratelimit-limit', String(r.max));
-          reply.header('x-ratelimit-remaining', String(r.remaining));
-          reply.header('x-ratelimit-reset', String(r.ttlInSeconds));
-          if (!r.isExceeded) return;
-          const route = request.routeOptions.url ?? 'unmatched';
-          metrics.recordRateLimited(route);
-          reply.header('retry-after', String(Math.max(1, r.ttlInSeconds)));
-          request.log.info({ route, keyId: request.principal?.keyId ?? null }, 'ingest rate limit reached');
-          return sendProblem(request, reply, {
-            type: RATE_LIMITED_TYPE,
-            title: 'Too many requests',
-            status: 429,
-            detail:
-              `More than ${perMinute} ingest requests per minute from this key and address; retry after ${Math.max(1, r.ttlInSeconds)} s. ` +
-              'Send many responses in one batch request (POST …/responses/batch counts once).',
-          });
-        });
-      }, { name: 'splitballot-ingest-rate-limit', dependencies: ['@fastify/rate-limit'] }),
-    );
-  }
-
-  app.addHook('onResponse', async (request, reply) => {
-    metrics.observeRequest(request.method, request.is404 ? null : (request.routeOptions.url ?? null), reply.statusCode, reply.elapsedTime / 1000);
-  });
-
-  app.addHook('onRoute', (route) => {
-    const access = route.config?.access;
-    if (access && !access.public && route.schema) {
-      route.schema = { ...route.schema, security: [{ bearerAuth: [] }] } as typeof route.schema;
-    }
-  });
-
-  app.register(swagger, {
-    openapi: {
-      openapi: '3.1.0',
-      info: {
-        title: 'Splitballot',
-        version: '0.1.0',
-        description: 'Validated ingest and running two-condition comparisons for split-ballot survey experiments.',
-      },
-      components: {
-        securitySchemes: { bearerAuth: { type: 'http', scheme: 'bearer', description: 'An API key: Authorization: Bearer sb_…' } },
-      },
-    },
-    transform: jsonSchemaTransform,
-    transformObject: jsonSchemaTransformObject,
-  });
-
   app.register(async (instance) => {
     await store.apiKeys.syncEnvironmentKey(config.adminKeyHash, new Date().toISOString());
     instance.log.debug('environment admin key synchronised');
@@ -345,13 +215,13 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(pageRoutes);
   app.register(experimentRoutes, { store });
   app.register(responseRoutes, { store });
-  app.register(comparisonRoutes, { store });
+  app.register(comparisonRoutes, { store, comparisons });
   app.register(exclusionRoutes, { store });
   app.register(lookRoutes, { store });
   app.register(planningRoutes, { store });
   app.register(assignmentRoutes, { store });
   app.register(eventRoutes, { store });
-  app.register(exportRoutes, { store });
+  app.register(exportRoutes, { store, comparisons });
   app.register(importRoutes, { store });
   app.register(resultsPageRoutes, { store });
   app.register(adminRoutes, {

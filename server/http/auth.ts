@@ -94,6 +94,13 @@ function toPrincipal(key: ApiKeyRecord, via: Principal['via']): Principal {
   return { keyId: key.id, scope: key.scope, experiment: key.experiment, experimentKey: key.experimentKey, via };
 }
 
+/** A POST to a route that an ingest key may call (what the ingest rate limit and the refused-response counter watch). */
+export function isIngestRoute(request: FastifyRequest): boolean {
+  if (request.method !== 'POST' || request.is404) return false;
+  const access = request.routeOptions.config.access;
+  return access !== undefined && !access.public && access.scopes.includes('ingest');
+}
+
 export function registerAuth(app: FastifyInstance, store: Store, now: () => Date = () => new Date()): void {
   app.decorateRequest('principal', null);
   app.decorateRequest('formKeyPending', false);

@@ -15,8 +15,10 @@
  *  - splitballot_database_bytes{file}                            size of the database file and its WAL (main | wal)
  *  - process_* / nodejs_* default metrics when enabled (the served process; off in tests)
  *
- * Other modules report through the functions exported here, so that no route needs to know about prom-client:
- *  - recordComparison({ cacheHit, durationSeconds? })  — the comparison service, once per answered comparison
+ * Nothing else needs to know about prom-client:
+ *  - the comparison service reports through the onComparison callback the app gives it (ServiceMetrics.recordComparison),
+ *    once per answered comparison;
+ *  - requests and refused ingest answers are counted by the hooks of registerRequestMetrics;
  *  - responses and rejected values are counted by wrapping the store that the routes receive (instrumentStore),
  *    so ingest, imports and any later writer are counted where the data is written.
  *
@@ -29,20 +31,14 @@ import { z } from 'zod';
 import type { IngestOutcome, RejectedIncrement, ResponseRepository, Store } from '../store/types.js';
 import { ProblemError } from '../errors.js';
 import { activeKeyByHash, hashSecret, sameHash } from '../services/keys.js';
-import { bearerSecret, unauthorized } from './auth.js';
+import { bearerSecret, isIngestRoute, unauthorized } from './auth.js';
+import type { ComparisonEvent } from '../services/comparisons/service.js';
 import { problems } from '../schemas/common.js';
 
 export const METRICS_CONTENT_TYPE = 'text/plain; version=0.0.4; charset=utf-8';
 
 const LATENCY_BUCKETS = [0.0005, 0.001, 0.0025, 0.005, 0.01, 0.025, 0.05, 0.1, 0.25, 0.5, 1, 2.5, 5, 10, 30];
 const KNOWN_METHODS = new Set(['GET', 'HEAD', 'POST', 'PUT', 'PATCH', 'DELETE', 'OPTIONS']);
-
-export interface ComparisonEvent {
-  /** True when the answer came from the cache (nothing was computed). */
-  cacheHit: boolean;
-  /** Time spent computing (cache misses), seconds. */
-  durationSeconds?: number;
-}
 
 export class ServiceMetrics {
   readonly registry = new Registry();
@@ -181,23 +177,18 @@ function fileSize(path: string): number {
   }
 }
 
-/** Metrics of every app that is currently open (normally exactly one per process). */
-const live = new Set<ServiceMetrics>();
-
-export function attachMetrics(m: ServiceMetrics): void {
-  live.add(m);
-}
-
-export function detachMetrics(m: ServiceMetrics): void {
-  live.delete(m);
-}
-
-/**
- * Count one answered comparison (call it once per comparison request the service answers).
- * `cacheHit`: served from the cache; otherwise it was computed and `durationSeconds` (optional) is observed.
- */
-export function recordComparison(event: ComparisonEvent): void {
-  for (const m of live) m.recordComparison(event);
+/** Request counts and latency per route pattern, and refused ingest answers by problem type. */
+export function registerRequestMetrics(app: FastifyInstance, metrics: ServiceMetrics): void {
+  app.addHook('onSend', async (request, reply, payload) => {
+    if (isIngestRoute(request) && reply.statusCode >= 400) {
+      const m = typeof payload === 'string' ? /"type":"urn:splitballot:problem:([a-z-]+)"/.exec(payload.slice(0, 200)) : null;
+      metrics.recordRefused(m ? m[1] : `status-${reply.statusCode}`);
+    }
+    return payload;
+  });
+  app.addHook('onResponse', async (request, reply) => {
+    metrics.observeRequest(request.method, request.is404 ? null : (request.routeOptions.url ?? null), reply.statusCode, reply.elapsedTime / 1000);
+  });
 }
 
 /**

@@ -4,7 +4,9 @@
  * JSON copy. Served at GET /openapi.json (http/routes/results-page.ts) and written to openapi/openapi.json by
  * `npm run openapi` (cli/openapi.ts).
  */
+import swagger from '@fastify/swagger';
 import type { FastifyInstance } from 'fastify';
+import { jsonSchemaTransform, jsonSchemaTransformObject } from 'fastify-type-provider-zod';
 
 export type Json = null | boolean | number | string | Json[] | { [key: string]: Json };
 
@@ -24,4 +26,30 @@ export function openApiDocument(app: FastifyInstance): Record<string, Json> {
     components.schemas = sortKeys(components.schemas as Record<string, Json>)!;
   }
   return doc;
+}
+
+/** @fastify/swagger with the service's info and bearer scheme; every route that needs a key is marked with it. */
+export function registerOpenApi(app: FastifyInstance): void {
+  app.addHook('onRoute', (route) => {
+    const access = route.config?.access;
+    if (access && !access.public && route.schema) {
+      route.schema = { ...route.schema, security: [{ bearerAuth: [] }] } as typeof route.schema;
+    }
+  });
+
+  app.register(swagger, {
+    openapi: {
+      openapi: '3.1.0',
+      info: {
+        title: 'Splitballot',
+        version: '0.1.0',
+        description: 'Validated ingest and running two-condition comparisons for split-ballot survey experiments.',
+      },
+      components: {
+        securitySchemes: { bearerAuth: { type: 'http', scheme: 'bearer', description: 'An API key: Authorization: Bearer sb_…' } },
+      },
+    },
+    transform: jsonSchemaTransform,
+    transformObject: jsonSchemaTransformObject,
+  });
 }

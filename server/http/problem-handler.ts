@@ -5,7 +5,10 @@
  *
  * The problem types and the errors themselves live in server/errors.ts (a leaf any layer may throw).
  */
+import { STATUS_CODES } from 'node:http';
+import type { Socket } from 'node:net';
 import type { FastifyError, FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import { API_CSP } from './security-headers.js';
 import type { Problem } from '../schemas/common.js';
 import { PROBLEM_TYPES, ProblemError, problemType, RequestValidationError, type ProblemName } from '../errors.js';
 import { errorPage, HTML_CSP } from '../views/html.js';
@@ -100,4 +103,29 @@ export function registerProblemHandlers(app: FastifyInstance): void {
     };
     return sendProblem(request, reply, problem);
   });
+}
+
+function rawProblem(status: number, name: string, title: string, detail: string): string {
+  const body = JSON.stringify({ type: `urn:splitballot:problem:${name}`, title, status, detail });
+  return (
+    `HTTP/1.1 ${status} ${STATUS_CODES[status] ?? 'Error'}\r\n` +
+    `Content-Type: application/problem+json\r\nContent-Length: ${Buffer.byteLength(body)}\r\n` +
+    `X-Content-Type-Options: nosniff\r\nContent-Security-Policy: ${API_CSP}\r\nConnection: close\r\n\r\n${body}`
+  );
+}
+
+/** Errors below HTTP (unparseable request, timeout, oversized headers): answered as problem+json, then closed. */
+export function clientErrorHandler(this: FastifyInstance, err: NodeJS.ErrnoException, socket: Socket): void {
+  if (err.code === 'ECONNRESET' || socket.destroyed) return;
+  let reply: string;
+  if (err.code === 'ERR_HTTP_REQUEST_TIMEOUT') {
+    reply = rawProblem(408, 'request-timeout', 'Request timeout', 'The request (headers and body) did not arrive within the request timeout.');
+  } else if (err.code === 'HPE_HEADER_OVERFLOW') {
+    reply = rawProblem(431, 'headers-too-large', 'Request headers too large', 'The request line and headers are larger than 16 KiB.');
+  } else {
+    reply = rawProblem(400, 'malformed-request', 'Malformed request', 'The request is not valid HTTP/1.1.');
+  }
+  this.log.debug({ code: err.code }, 'client error');
+  if (socket.writable) socket.write(reply);
+  socket.destroy();
 }

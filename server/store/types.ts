@@ -243,7 +243,47 @@ export interface ExperimentRepository {
   getDataVersion(experimentKey: number): Promise<number | null>;
 }
 
+/** Widest integer scale read as dense counts (values min … max); a wider integer measure is read as sorted values. */
+export const MAX_DENSE_COUNTS = 1_000_001;
+
+/** One run (measure, condition, excluded) of a snapshot read whole. */
+export interface SnapshotRun {
+  conditionKey: number;
+  excluded: 0 | 1;
+  values: Float64Array;
+}
+
+/** Sorted runs read whole, with what a snapshot needs besides them (see SortedRunsReader). */
+export interface RunsSnapshot extends Omit<MeasureSnapshot, 'groups'> {
+  /** The engine's cache generation the runs belong to (negative: do not cache them). */
+  epoch: number;
+  lastRowId: number;
+  runs: SnapshotRun[];
+}
+
+/**
+ * Optional capability of an engine that keeps sorted runs in memory (the SQLite store does; another engine may
+ * leave `ResponseRepository.sortedRuns` undefined and the comparisons simply read getSortedValuesSnapshot). It lets
+ * the comparison service move a large full read off the main thread: ask how much would be read whole, have a
+ * worker thread read the runs (the engine names the module the worker imports and the source it opens), then
+ * adopt them into the engine's cache. In-process and synchronous by nature (it inspects memory).
+ */
+export interface SortedRunsReader {
+  /** Values getSortedValuesSnapshot would read whole now (an upper bound; Infinity when unknown). */
+  fullReadEstimate(measureKey: number, conditionKeys: number[], includeExcluded: boolean): number;
+  /** Keep runs read elsewhere (a worker) and assemble the snapshot's groups, as getSortedValuesSnapshot would. */
+  adoptRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, snap: RunsSnapshot): MeasureSnapshot;
+  /**
+   * How a worker thread reads the runs on its own connection: `module` (a file URL) exports
+   * `readRunsInWorker(source, measureKey, conditionKeys, includeExcluded): RunsSnapshot`; null when no worker can
+   * (an in-memory database).
+   */
+  readonly workerReads: { module: string; source: string } | null;
+}
+
 export interface ResponseRepository {
+  /** Present when the engine keeps sorted runs in memory (see SortedRunsReader). */
+  readonly sortedRuns?: SortedRunsReader;
   /**
    * Store validated responses in ONE transaction: response rows, value rows, per-value counts of integer
    * measures, per-condition counts, dataVersion + 1. All or nothing: a closed experiment or any conflict
@@ -331,6 +371,53 @@ export interface ApiKeyRepository {
   syncEnvironmentKey(hash: Uint8Array | null, now: string): Promise<void>;
 }
 
+/** One exported response. `values` is aligned with the `measureKeys` passed in (null = not answered). */
+export interface ExportRow {
+  responseId: string;
+  condition: string;
+  respondent: string | null;
+  submittedAt: string;
+  receivedAt: string;
+  excluded: boolean;
+  excludedReason: string | null;
+  values: (number | null)[];
+}
+
+/** An open all-or-nothing import transaction. Call add() for each chunk, then exactly one of commit() or rollback(). */
+export interface BulkImport {
+  /**
+   * Store one chunk with the same bookkeeping as ResponseRepository.ingest, inside the open transaction.
+   * Synchronous: the HTTP import calls it for every chunk without awaiting in between, so no other request's
+   * statement runs inside the import's transaction on a shared connection.
+   */
+  add(items: ValidResponse[]): IngestOutcome;
+  commit(): void;
+  rollback(): void;
+  readonly open: boolean;
+}
+
+/** Bulk reads and writes for the CSV export and import. */
+export interface BulkRepository {
+  /**
+   * Every response of an experiment stored when the export began, in storage order, as pages of at most
+   * `pageSize` rows; each page is read on its own, so a slow client holds nothing between pages.
+   */
+  exportResponsePages(experimentKey: number, measureKeys: number[], pageSize: number): AsyncGenerator<ExportRow[]>;
+  /** Begin one write transaction for a bulk import (the write lock is taken at once). */
+  beginImport(experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport;
+}
+
+/** What an online backup of the database wrote. */
+export interface BackupResult {
+  /** Absolute path of the finished backup. */
+  path: string;
+  pages: number;
+  bytes: number;
+  durationMs: number;
+  /** How many times the copy restarted because another connection wrote meanwhile. */
+  restarts: number;
+}
+
 export interface Store {
   experiments: ExperimentRepository;
   responses: ResponseRepository;
@@ -341,6 +428,8 @@ export interface Store {
   looks: LookRepository;
   /** Balanced, sticky assignment of respondents to conditions. */
   assignments: AssignmentRepository;
+  /** Bulk export and import (CSV). */
+  bulk: BulkRepository;
   /** Database reachable and every known migration applied with its recorded checksum. */
   readiness(): Promise<{ ready: true; migrations: number } | { ready: false; reason: string }>;
   close(): Promise<void>;

@@ -12,6 +12,9 @@ const STYLE =
 const STYLE_HASH = createHash('sha256').update(STYLE, 'utf8').digest('base64');
 
 /** Sent with every HTML page. */
+/** Where a browser form post is sent after a stored response when the experiment names no thankYouUrl. */
+export const THANK_YOU_PATH = '/thank-you';
+
 export const HTML_CSP = `default-src 'none'; style-src 'sha256-${STYLE_HASH}'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'`;
 
 export function escapeHtml(text: string): string {

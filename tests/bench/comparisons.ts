@@ -25,7 +25,7 @@
  */
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
-import { ComparePool, compareSorted } from '../../server/store/sqlite/compare-worker.js';
+import { ComparePool, compareSorted } from '../../server/services/comparisons/worker-pool.js';
 import type { FlagContext } from '../../stats/flags.js';
 import { ensureData, readStream, type StreamName } from './data.js';
 import {

@@ -13,7 +13,7 @@ import { join } from 'node:path';
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import type { BackupResult } from '../../store/sqlite/backup.js';
+import type { BackupResult } from '../../store/types.js';
 import type { Store } from '../../store/types.js';
 import type { ServiceMetrics } from '../metrics.js';
 import { ProblemError } from '../../errors.js';

@@ -8,13 +8,12 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import type { Store } from '../../store/types.js';
-import { blockPlan, secureShuffle } from '../../services/monitoring/interim.js';
+import { blockPlan, secureShuffle } from '../../services/assignment.js';
 import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { AssignmentInputSchema, AssignmentSchema, AssignmentSummarySchema } from '../../schemas/monitoring.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment, notFound } from './experiments.js';
-import { StateProblem } from './looks.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 
 function closed(id: string): ProblemError {
   return new ProblemError('experiment-closed', `Experiment ${id} is closed and assigns no more respondents.`);
@@ -50,7 +49,7 @@ export async function assignmentRoutes(base: FastifyInstance, opts: { store: Sto
       const e = await loadExperiment(store, request.params.id);
       if (e.status !== 'open') throw closed(e.id);
       const plan = blockPlan(e);
-      if (!plan.ok) throw new StateProblem('allocation-unusable', 'Allocation unusable', plan.reason);
+      if (!plan.ok) throw new ProblemError('allocation-unusable', plan.reason);
       const respondent = request.body.respondent;
       const outcome = await store.assignments.assign(
         e.key,
@@ -59,7 +58,7 @@ export async function assignmentRoutes(base: FastifyInstance, opts: { store: Sto
         new Date().toISOString(),
         request.principal?.keyId ?? null,
       );
-      if (outcome.kind === 'not-found') throw notFound(e.id);
+      if (outcome.kind === 'not-found') throw experimentNotFound(e.id);
       if (outcome.kind === 'closed') throw closed(e.id);
       const condition = e.conditions.find((c) => c.key === outcome.conditionKey);
       if (!condition) throw new Error('assigned condition not in the experiment');

@@ -4,45 +4,30 @@
  * compute) → reply with a strong ETag and Cache-Control: private, no-cache. The service (server/services/comparisons/service.ts)
  * holds the logic and the cache.
  */
-import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
+import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import {
-  comparisonServiceFor,
-  ifNoneMatchMatches,
-  resolveMeasure,
-  resolvePair,
-  type ComparisonOptions,
-  type ComparisonTarget,
-} from '../../services/comparisons/service.js';
+import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
+import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment } from './experiments.js';
+import { notModified } from '../conditional.js';
 import { SVG_CONTENT_TYPE } from '../page-assets.js';
 
-export const CACHE_CONTROL = 'private, no-cache';
 const ACCESS = { access: { scopes: ['read', 'admin'] as const, experimentParam: 'id' } };
 const NOT_MODIFIED = z.null().describe('Not modified: the If-None-Match tag is current (no body)');
-
-/** 304 when the request's If-None-Match matches; sets the validators either way. Returns true when answered. */
-function notModified(request: FastifyRequest, reply: FastifyReply, etag: string): boolean {
-  reply.header('etag', etag).header('cache-control', CACHE_CONTROL);
-  if (!ifNoneMatchMatches(request.headers['if-none-match'], etag)) return false;
-  reply.code(304).send();
-  return true;
-}
 
 const POLLING =
   'Every reply carries `dataVersion` and a strong `ETag`. Poll with `If-None-Match: <the ETag>`: while neither the data ' +
   '(dataVersion), the refused-value counters nor the definition changed, the answer is 304 with no body and nothing is ' +
   'recomputed. Results are cached per (experiment, measure, pair, options, dataVersion).';
 
-export async function comparisonRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
+export async function comparisonRoutes(base: FastifyInstance, opts: { store: Store; comparisons: ComparisonService }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
-  const service = comparisonServiceFor(store);
+  const service = opts.comparisons;
 
   app.get(
     '/v1/experiments/:id/comparisons',
@@ -136,7 +121,7 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
 
 function resolveTarget(e: ExperimentRecord, measureId: string, a: string | undefined, b: string | undefined): ComparisonTarget {
   const measure = resolveMeasure(e, measureId);
-  const [ca, cb] = resolvePair(e, a, b);
+  const [ca, cb] = comparisonPair(e, a, b);
   return { experiment: e, measure, a: ca, b: cb };
 }
 

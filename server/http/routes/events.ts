@@ -23,7 +23,7 @@ import type { Store } from '../../store/types.js';
 import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment } from './experiments.js';
+import { loadExperiment } from '../../services/targets.js';
 
 export const POLL_INTERVAL_MS = 1000;
 export const HEARTBEAT_INTERVAL_MS = 15_000;

@@ -19,7 +19,7 @@ import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { AuditListSchema, ErasureSchema, ExclusionInputSchema, ExclusionSchema, RespondentParams, ResponseParams } from '../../schemas/exclusions.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment, notFound } from './experiments.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 
 const ADMIN = { access: { scopes: ['admin'] as const, experimentParam: 'id' } };
 
@@ -101,7 +101,7 @@ export async function exclusionRoutes(base: FastifyInstance, opts: { store: Stor
     async (request) => {
       const e = await loadExperiment(store, request.params.id);
       const outcome = await store.responses.eraseRespondent(e.key, request.params.respondent, request.principal?.keyId ?? null, new Date().toISOString());
-      if (outcome.kind === 'not-found') throw notFound(request.params.id);
+      if (outcome.kind === 'not-found') throw experimentNotFound(request.params.id);
       return { erased: outcome.erased, dataVersion: outcome.dataVersion };
     },
   );

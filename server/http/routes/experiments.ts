@@ -9,6 +9,7 @@ import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
 import { ExperimentParams } from '../../schemas/responses.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -38,17 +39,6 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
       byCondition: e.conditions.map((c) => ({ condition: c.id, responses: c.responses, excluded: c.excluded })),
     },
   };
-}
-
-export function notFound(id: string): ProblemError {
-  return new ProblemError('not-found', `There is no experiment ${JSON.stringify(id.length > 80 ? `${id.slice(0, 80)}…` : id)}.`);
-}
-
-/** The experiment with this id, or a 404 problem. */
-export async function loadExperiment(store: Store, id: string): Promise<ExperimentRecord> {
-  const e = await store.experiments.getBySlug(id);
-  if (!e) throw notFound(id);
-  return e;
 }
 
 export async function experimentRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
@@ -151,7 +141,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         case 'updated':
           return experimentView(result.experiment);
         case 'not-found':
-          throw notFound(request.params.id);
+          throw experimentNotFound(request.params.id);
         case 'limits-locked':
           throw new ProblemError(
             'limits-locked',

@@ -16,13 +16,12 @@ import { stringify } from 'csv-stringify';
 import type { FastifyInstance, FastifyReply } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { exportResponsePages, type ExportRow } from '../../store/sqlite/bulk.js';
-import type { ExperimentRecord, Store } from '../../store/types.js';
-import { computeFamily, type FamilyOptions } from '../../services/comparisons/service.js';
+import type { ExperimentRecord, ExportRow, Store } from '../../store/types.js';
+import type { ComparisonService, FamilyOptions } from '../../services/comparisons/service.js';
 import { FamilyQuery } from '../../schemas/comparisons.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment } from './experiments.js';
+import { loadExperiment } from '../../services/targets.js';
 
 export const EXPORT_PAGE_ROWS = 1000;
 
@@ -62,13 +61,13 @@ function ndjsonRecord(e: ExperimentRecord, row: ExportRow): string {
 }
 
 async function* csvRows(store: Store, e: ExperimentRecord): AsyncGenerator<(string | number)[]> {
-  for await (const page of exportResponsePages(store, e.key, e.measures.map((m) => m.key), EXPORT_PAGE_ROWS)) {
+  for await (const page of store.bulk.exportResponsePages(e.key, e.measures.map((m) => m.key), EXPORT_PAGE_ROWS)) {
     for (const row of page) yield csvRecord(row);
   }
 }
 
 async function* ndjsonChunks(store: Store, e: ExperimentRecord): AsyncGenerator<string> {
-  for await (const page of exportResponsePages(store, e.key, e.measures.map((m) => m.key), EXPORT_PAGE_ROWS)) {
+  for await (const page of store.bulk.exportResponsePages(e.key, e.measures.map((m) => m.key), EXPORT_PAGE_ROWS)) {
     let chunk = '';
     for (const row of page) chunk += ndjsonRecord(e, row);
     yield chunk;
@@ -102,7 +101,7 @@ function fileResponse(description: string, contentType: string, example: string)
   return { 200: { description, content: { [contentType]: { schema: z.string().meta({ example }) } } }, ...EXPORT_PROBLEMS };
 }
 
-export async function exportRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
+export async function exportRoutes(base: FastifyInstance, opts: { store: Store; comparisons: ComparisonService }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
 
@@ -186,7 +185,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store }
     async (request, reply) => {
       const e = await loadExperiment(store, request.params.id);
       const q = request.query;
-      const rows = await comparisonRows(store, e, {
+      const rows = await comparisonRows(opts.comparisons, e, {
         pairs: q.pairs,
         adjust: q.adjust,
         alternative: q.alternative,
@@ -215,8 +214,8 @@ function cell(v: number | null | undefined): number | string {
   return v === null || v === undefined ? '' : v;
 }
 
-export async function comparisonRows(store: Store, e: ExperimentRecord, options: Partial<FamilyOptions>): Promise<(string | number)[][]> {
-  const family = await computeFamily(store, e, options);
+export async function comparisonRows(service: ComparisonService, e: ExperimentRecord, options: Partial<FamilyOptions>): Promise<(string | number)[][]> {
+  const family = await service.familyBody(e, options);
   return family.comparisons.map((c) => [
     c.measure,
     c.a,

@@ -11,13 +11,14 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { describeProblem, IMPORT_BODY_LIMIT, importCsvBuffer, MAX_KEPT_PROBLEMS, type ImportProblem } from '../../services/ingest/csv-import.js';
+import { importCsvBuffer } from '../../services/ingest/csv-import.js';
+import { describeProblem, IMPORT_BODY_LIMIT, MAX_KEPT_PROBLEMS, type ImportProblem } from '../../services/ingest/csv-rows.js';
 import type { Store } from '../../store/types.js';
 import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { bodyPassThroughCompiler } from '../validator.js';
-import { loadExperiment, notFound } from './experiments.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 
 export const ImportRejectSchema = z
   .object({
@@ -114,7 +115,7 @@ export async function importRoutes(base: FastifyInstance, opts: { store: Store }
       );
       const truncated = summary.problems > summary.kept.length;
       if (summary.stoppedBy === 'closed') throw new ProblemError('experiment-closed', `Experiment ${id} is closed and accepts no new responses.`);
-      if (summary.stoppedBy === 'not-found') throw notFound(id);
+      if (summary.stoppedBy === 'not-found') throw experimentNotFound(id);
       if (summary.fatal || (!skipInvalid && summary.problems > 0)) {
         const listed = truncated ? ` The first ${summary.kept.length.toLocaleString('en')} are listed.` : '';
         const detail = summary.fatal

@@ -4,95 +4,46 @@
  *   GET  /v1/experiments/{id}/looks                                   list recorded looks (read)
  *   GET  /v1/experiments/{id}/comparisons/{measure}/trajectory        always-valid p and confidence sequence over time (read)
  *   GET  /v1/experiments/{id}/comparisons/{measure}/trajectory.svg    the same as a chart (read)
- * Thin: resolve experiment, measure and pair → server/services/monitoring/interim.ts → reply.
+ * Thin: resolve experiment, measure and pair → services/monitoring/looks.ts, trajectory.ts → reply.
  */
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { normalUpperTail } from '../../../stats/distributions.js';
 import type { LookRecord } from '../../store/monitoring-types.js';
-import type { ExperimentRecord, MeasureRecord, Store } from '../../store/types.js';
-import { lookMessage, monitoringOption, recordLook, trajectory } from '../../services/monitoring/interim.js';
-import { renderTrajectoryChart } from '../../views/charts.js';
+import type { ConditionRecord, ExperimentRecord, Store } from '../../store/types.js';
+import { lookMessage, lookView, monitoringOption, recordLook } from '../../services/monitoring/looks.js';
+import { trajectory } from '../../services/monitoring/trajectory.js';
+import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
 import { ProblemError, RequestValidationError } from '../../errors.js';
-import { problems, type Problem } from '../../schemas/common.js';
+import { problems } from '../../schemas/common.js';
 import { LookInputSchema, LookListQuery, LookListSchema, LookSchema, MeasureParams, PairQuery, TrajectorySchema } from '../../schemas/monitoring.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment } from './experiments.js';
+import { loadExperiment, LOOK_PAIR, resolveMeasure, resolvePair } from '../../services/targets.js';
 import { SVG_CONTENT_TYPE } from '../page-assets.js';
 
-/**
- * A 409 with its own problem type (urn:splitballot:problem:<name>) for states that PROBLEM_TYPES in problem.ts
- * does not name yet (monitoring-not-configured, look-not-possible, allocation-unusable). Status 409.
- */
-export class StateProblem extends ProblemError {
-  constructor(
-    readonly typeName: string,
-    readonly typeTitle: string,
-    detail: string,
-  ) {
-    super('response-conflict', detail);
-  }
-  override toProblem(): Problem {
-    return { ...super.toProblem(), type: `urn:splitballot:problem:${this.typeName}`, title: this.typeTitle };
-  }
+/** The pair of a look or trajectory (first two conditions by default); 422 (body) or 400 (query) naming the field. */
+function lookPair(e: ExperimentRecord, a: string | undefined, b: string | undefined, part: 'body' | 'querystring'): [ConditionRecord, ConditionRecord] {
+  const r = resolvePair(e, a, b, LOOK_PAIR);
+  if (!r.ok) throw new RequestValidationError(part, r.errors);
+  return r.pair;
 }
 
-/** The two conditions compared: a and b by id, defaulting to the first two in definition order. */
-export function resolvePair(
-  e: ExperimentRecord,
-  a: string | undefined,
-  b: string | undefined,
-  part: 'body' | 'querystring',
-): { keys: [number, number]; ids: [string, string] } {
-  const errors: { path: string; message: string; value?: unknown }[] = [];
-  const find = (id: string | undefined, fallback: number, path: string) => {
-    if (id === undefined) return e.conditions[fallback];
-    const c = e.conditions.find((x) => x.id === id);
-    if (!c) errors.push({ path, message: 'is not a condition of this experiment', value: id.length > 100 ? `${id.slice(0, 100)}…` : id });
-    return c;
-  };
-  const ca = find(a, 0, 'a');
-  const cb = find(b, 1, 'b');
-  if (ca && cb && ca.key === cb.key) errors.push({ path: 'b', message: 'must differ from a', value: cb.id });
-  if (errors.length > 0 || !ca || !cb) throw new RequestValidationError(part, errors);
-  return { keys: [ca.key, cb.key], ids: [ca.id, cb.id] };
-}
-
+/** A recorded look as the look routes answer it: its view plus the measure, the pair and the plan it belongs to. */
 function lookBody(e: ExperimentRecord, l: LookRecord) {
   const m = e.measures.find((x) => x.key === l.measureKey);
   const ca = e.conditions.find((x) => x.key === l.conditionKeys[0]);
   const cb = e.conditions.find((x) => x.key === l.conditionKeys[1]);
-  const crossed = l.boundaryZ !== null && Math.abs(l.observedZ) >= l.boundaryZ;
   return {
-    number: l.number,
+    ...lookView(l),
     measure: m?.id ?? String(l.measureKey),
     a: ca?.id ?? String(l.conditionKeys[0]),
     b: cb?.id ?? String(l.conditionKeys[1]),
-    recordedAt: l.recordedAt,
-    dataVersion: l.dataVersion,
-    fraction: l.fraction,
-    nA: l.nA,
-    nB: l.nB,
     plannedPerCondition: l.plannedPerCondition,
     spending: l.spending,
     alpha: l.alpha,
-    cumulativeAlpha: l.cumulativeAlpha,
-    alphaSpent: l.alphaSpent,
-    boundaryZ: l.boundaryZ,
-    nominalP: null as number | null,
     welch: { t: l.welchT, df: l.welchDf },
-    observedZ: l.observedZ,
-    crossed,
-    direction: crossed ? (l.observedZ > 0 ? ('a' as const) : ('b' as const)) : null,
     final: l.fraction >= 1,
   };
-}
-
-function measureOrNotFound(e: ExperimentRecord, id: string): MeasureRecord {
-  const m = e.measures.find((x) => x.id === id);
-  if (!m) throw new ProblemError('not-found', `Experiment ${e.id} has no measure ${JSON.stringify(id.length > 80 ? `${id.slice(0, 80)}…` : id)}.`);
-  return m;
 }
 
 const READ = { scopes: ['admin', 'read'] as const, experimentParam: 'id' };
@@ -124,15 +75,13 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       const body = request.body;
       const measure = e.measures.find((m) => m.id === body.measure);
       if (!measure) throw new RequestValidationError('body', [{ path: 'measure', message: 'is not a measure of this experiment', value: body.measure }]);
-      const pair = resolvePair(e, body.a, body.b, 'body');
-      const result = await recordLook(store, e, measure, pair.keys, request.principal?.keyId ?? null);
-      if (result.kind === 'not-configured') throw new StateProblem('monitoring-not-configured', 'Monitoring not configured', result.detail);
-      if (result.kind === 'not-possible') throw new StateProblem('look-not-possible', 'Look not possible', result.detail);
-      const view = lookBody(e, result.look);
+      const pair = lookPair(e, body.a, body.b, 'body');
+      const result = await recordLook(store, e, measure, [pair[0].key, pair[1].key], request.principal?.keyId ?? null);
+      if (result.kind === 'not-configured') throw new ProblemError('monitoring-not-configured', result.detail);
+      if (result.kind === 'not-possible') throw new ProblemError('look-not-possible', result.detail);
       reply.code(201);
       return {
-        ...view,
-        nominalP: result.view.nominalP,
+        ...lookBody(e, result.look),
         message: lookMessage(result.view, result.previous, result.look.spending),
       };
     },
@@ -157,10 +106,7 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
         throw new RequestValidationError('querystring', [{ path: 'measure', message: 'is not a measure of this experiment', value: only }]);
       }
       const all = await store.looks.listAll(e.key);
-      const looks = all.map((l) => {
-        const v = lookBody(e, l);
-        return { ...v, nominalP: l.boundaryZ === null ? null : nominalP(l.boundaryZ) };
-      });
+      const looks = all.map((l) => lookBody(e, l));
       return {
         experiment: e.id,
         spending: monitoringOption(e)?.spending ?? null,
@@ -172,9 +118,9 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
 
   async function loadTrajectory(id: string, measureId: string, a: string | undefined, b: string | undefined) {
     const e = await loadExperiment(store, id);
-    const measure = measureOrNotFound(e, measureId);
-    const pair = resolvePair(e, a, b, 'querystring');
-    const t = await trajectory(store, e, measure, pair.keys);
+    const measure = resolveMeasure(e, measureId, { listMeasures: false });
+    const pair = lookPair(e, a, b, 'querystring');
+    const t = await trajectory(store, e, measure, [pair[0].key, pair[1].key]);
     return { e, measure, pair, t };
   }
 
@@ -198,8 +144,8 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       return {
         experiment: e.id,
         measure: measure.id,
-        a: pair.ids[0],
-        b: pair.ids[1],
+        a: pair[0].id,
+        b: pair[1].id,
         dataVersion: t.dataVersion,
         alpha: e.alpha,
         method: t.method,
@@ -231,7 +177,7 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       const svg = renderTrajectoryChart({
         alpha: e.alpha,
         points: t.points,
-        measureLabel: `${measure.label} (${pair.ids[0]} − ${pair.ids[1]})`,
+        measureLabel: `${measure.label} (${pair[0].id} − ${pair[1].id})`,
         differenceLimits: { lower: -span, upper: span },
         id: `sb-traj-${measure.id}`,
       });
@@ -239,9 +185,4 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       return svg;
     },
   );
-}
-
-/** 2·(1 − Φ(z)), the two-sided nominal p of a boundary (as stats/sequential's nominalP). */
-function nominalP(z: number): number {
-  return 2 * normalUpperTail(z);
 }

@@ -2,9 +2,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { HTML_CSP, thankYouPage } from '../../views/html.js';
-
-export const THANK_YOU_PATH = '/thank-you';
+import { HTML_CSP, THANK_YOU_PATH, thankYouPage } from '../../views/html.js';
 
 export async function pageRoutes(base: FastifyInstance): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();

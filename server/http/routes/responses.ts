@@ -22,8 +22,8 @@ import {
   StoredResponseSchema,
 } from '../../schemas/responses.js';
 import { bodyPassThroughCompiler } from '../validator.js';
-import { loadExperiment, notFound } from './experiments.js';
-import { THANK_YOU_PATH } from './pages.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+import { THANK_YOU_PATH } from '../../views/html.js';
 
 function closed(id: string): ProblemError {
   return new ProblemError('experiment-closed', `Experiment ${id} is closed and accepts no new responses.`);
@@ -53,7 +53,7 @@ async function loadOpenExperiment(store: Store, id: string): Promise<ExperimentR
 
 function throwUnlessStored(outcome: IngestOutcome, id: string, paths: (index: number) => string): asserts outcome is Extract<IngestOutcome, { kind: 'stored' }> {
   if (outcome.kind === 'closed') throw closed(id);
-  if (outcome.kind === 'not-found') throw notFound(id);
+  if (outcome.kind === 'not-found') throw experimentNotFound(id);
   if (outcome.kind === 'conflict') {
     const n = outcome.conflicts.length;
     throw new ProblemError(

@@ -29,53 +29,36 @@ import { createHash } from 'node:crypto';
 import { describe } from '../../../stats/descriptives.js';
 import { computeFlags, type FlagContext, type FlagThresholds } from '../../../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../../../stats/adjust.js';
-import { compareSamples, fromCounts, fromSortedValues, type Alternative, type Comparison, type Sample } from '../../../stats/index.js';
-import type { ComparisonStamp, ConditionRecord, ExperimentRecord, MeasureRecord, MeasureSnapshot, Store } from '../../store/types.js';
-import { MAX_DENSE_COUNTS, type RunsSnapshot } from '../../store/sqlite/responses.js';
-import { compareSorted, sharedComparePool, type ComparePool, type CompareResult } from '../../store/sqlite/compare-worker.js';
-import { toShared } from '../../store/sqlite/sorted-runs-cache.js';
-import { recordComparison } from '../../http/metrics.js';
+import { compareSamples, fromCounts, type Alternative, type Sample } from '../../../stats/index.js';
+import type { ComparisonStamp, ConditionRecord, ExperimentRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
+import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
+import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
+import { LruCache } from './cache.js';
+import { compareSorted, shareable, sharedComparePool, type ComparePool, type CompareResult } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
-import { distributionGroupFromSample, renderDistributionChart } from '../../views/charts.js';
-import { ProblemError } from '../../errors.js';
+import { distributionGroupFromSample } from '../../views/charts/common.js';
+import { renderDistributionChart } from '../../views/charts/distribution.js';
+import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
-import type { FieldError } from '../../schemas/common.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 1;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
-/**
- * Continuous comparisons with at least this many values in both groups together are computed in a worker thread,
- * and a snapshot whose uncached runs hold at least this many values is read there (server/store/sqlite/compare-worker.ts).
- * Below it the work takes a few milliseconds in-thread (tests/bench/comparisons.ts measures the crossover).
- * SPLITBALLOT_COMPARE_WORKER_MIN overrides it (0: always a worker; a huge value: never).
- */
-export const WORKER_MIN_VALUES = envWhole('SPLITBALLOT_COMPARE_WORKER_MIN', 10_000);
-
-function envWhole(name: string, fallback: number): number {
-  const raw = process.env[name];
-  if (raw === undefined || raw === '') return fallback;
-  const n = Number(raw);
-  return Number.isInteger(n) && n >= 0 ? n : fallback;
-}
-
-/** The cache-aware reads a SqliteResponseRepository offers beyond the Store interface (duck-typed). */
-interface SortedRunsReader {
-  fullReadEstimate(measureKey: number, conditionKeys: number[], includeExcluded: boolean): number;
-  adoptRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, snap: RunsSnapshot): MeasureSnapshot;
-  readonly databasePath: string | null;
-}
-
-function sortedRunsReader(store: Store): SortedRunsReader | null {
-  const r = store.responses as unknown as Partial<SortedRunsReader>;
-  return typeof r.fullReadEstimate === 'function' && typeof r.adoptRunsSnapshot === 'function' ? (r as SortedRunsReader) : null;
+/** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
+export interface ComparisonEvent {
+  /** True when the answer came from the cache (nothing was computed). */
+  cacheHit: boolean;
+  /** Time spent computing (cache misses), seconds. */
+  durationSeconds?: number;
 }
 
 export interface ComparisonServiceOptions {
-  /** See WORKER_MIN_VALUES. */
+  /** Values from which continuous work goes to a worker thread (config.compareWorkerMinValues; default COMPARE_WORKER_MIN_DEFAULT). */
   workerMinValues?: number;
   /** The worker pool (default: the process-wide one). */
   pool?: ComparePool;
+  /** Called once per answered comparison or chart. */
+  onComparison?: (event: ComparisonEvent) => void;
 }
 
 export interface ComparisonOptions {
@@ -95,158 +78,7 @@ export interface FamilyOptions extends ComparisonOptions {
   adjust: AdjustMethod;
 }
 
-/** A measure and an ordered pair of conditions of one experiment. */
-export interface ComparisonTarget {
-  experiment: ExperimentRecord;
-  measure: MeasureRecord;
-  a: ConditionRecord;
-  b: ConditionRecord;
-}
-
 type Stamp = ComparisonStamp;
-
-// ---------------------------------------------------------------------------------------------------------
-// Resolution (404 / 422 with problem+json)
-// ---------------------------------------------------------------------------------------------------------
-
-const quote = (s: string): string => JSON.stringify(s.length > 80 ? `${s.slice(0, 80)}…` : s);
-
-export function resolveMeasure(experiment: ExperimentRecord, measureId: string): MeasureRecord {
-  const m = experiment.measures.find((x) => x.id === measureId);
-  if (!m) {
-    throw new ProblemError(
-      'not-found',
-      `Experiment ${experiment.id} has no measure ${quote(measureId)}; its measures are ${experiment.measures.map((x) => x.id).join(', ')}.`,
-    );
-  }
-  return m;
-}
-
-/**
- * The pair (a, b). With exactly two conditions a missing a or b is the condition not named (a: the first, b: the
- * second when neither is given); otherwise both are required. Unknown ids and a = b are 422 naming the parameter.
- */
-export function resolvePair(experiment: ExperimentRecord, a: string | undefined, b: string | undefined): [ConditionRecord, ConditionRecord] {
-  const all = experiment.conditions;
-  const ids = all.map((c) => c.id).join(', ');
-  const errors: FieldError[] = [];
-  const find = (name: 'a' | 'b', id: string | undefined): ConditionRecord | null => {
-    if (id === undefined) return null;
-    const c = all.find((x) => x.id === id);
-    if (!c) errors.push({ path: name, message: `is not a condition of experiment ${experiment.id} (${ids})`, value: id });
-    return c ?? null;
-  };
-  let ca = find('a', a);
-  let cb = find('b', b);
-  if (errors.length === 0 && all.length === 2) {
-    if (!ca) ca = all.find((c) => c !== cb) ?? null;
-    if (!cb) cb = all.find((c) => c !== ca) ?? null;
-  }
-  if (errors.length === 0) {
-    if (a === undefined && !ca) errors.push({ path: 'a', message: `is required: experiment ${experiment.id} has ${all.length} conditions (${ids})` });
-    if (b === undefined && !cb) errors.push({ path: 'b', message: `is required: experiment ${experiment.id} has ${all.length} conditions (${ids})` });
-  }
-  if (errors.length === 0 && ca && cb && ca.key === cb.key) errors.push({ path: 'b', message: 'must differ from a', value: b ?? cb.id });
-  if (errors.length > 0 || !ca || !cb) {
-    throw new ProblemError('validation-failed', `The query string does not name two different conditions to compare (a and b).`, { errors });
-  }
-  return [ca, cb];
-}
-
-/** The targets of a family: every measure (definition order) × every pair, in that order. */
-export function familyTargets(experiment: ExperimentRecord, pairs: 'first' | 'all'): ComparisonTarget[] {
-  const out: ComparisonTarget[] = [];
-  for (const measure of experiment.measures) for (const [a, b] of familyPairs(experiment, pairs)) out.push({ experiment, measure, a, b });
-  return out;
-}
-
-/** The pairs of a family: the first two conditions, or every pair (i < j) in definition order. */
-export function familyPairs(experiment: ExperimentRecord, pairs: 'first' | 'all'): [ConditionRecord, ConditionRecord][] {
-  const c = experiment.conditions;
-  if (pairs === 'first') return [[c[0], c[1]]];
-  const out: [ConditionRecord, ConditionRecord][] = [];
-  for (let i = 0; i < c.length; i++) for (let j = i + 1; j < c.length; j++) out.push([c[i], c[j]]);
-  return out;
-}
-
-// ---------------------------------------------------------------------------------------------------------
-// If-None-Match
-// ---------------------------------------------------------------------------------------------------------
-
-/** Does an If-None-Match header match this (strong) tag? Weak comparison, as RFC 9110 §13.1.2 asks. */
-export function ifNoneMatchMatches(header: string | string[] | undefined, etag: string): boolean {
-  if (header === undefined) return false;
-  const text = Array.isArray(header) ? header.join(',') : header;
-  if (text.trim() === '*') return true;
-  const opaque = etag.replace(/^W\//, '');
-  for (const part of text.split(',')) {
-    if (part.trim().replace(/^W\//, '') === opaque) return true;
-  }
-  return false;
-}
-
-// ---------------------------------------------------------------------------------------------------------
-// LRU cache
-// ---------------------------------------------------------------------------------------------------------
-
-interface CacheEntry<T> {
-  value: T;
-  bytes: number;
-}
-
-/** Least-recently-used cache bounded by entry count and by a byte estimate. */
-export class LruCache<T> {
-  private readonly map = new Map<string, CacheEntry<T>>();
-  private bytes = 0;
-  hits = 0;
-  misses = 0;
-
-  constructor(
-    readonly maxEntries: number,
-    readonly maxBytes: number,
-  ) {}
-
-  get(key: string): T | undefined {
-    const e = this.map.get(key);
-    if (!e) {
-      this.misses++;
-      return undefined;
-    }
-    this.hits++;
-    this.map.delete(key);
-    this.map.set(key, e);
-    return e.value;
-  }
-
-  set(key: string, value: T, bytes: number): void {
-    const old = this.map.get(key);
-    if (old) {
-      this.bytes -= old.bytes;
-      this.map.delete(key);
-    }
-    if (bytes > this.maxBytes) return; // too large to keep at all
-    this.map.set(key, { value, bytes });
-    this.bytes += bytes;
-    while (this.map.size > this.maxEntries || this.bytes > this.maxBytes) {
-      const oldest = this.map.keys().next().value as string;
-      this.bytes -= this.map.get(oldest)!.bytes;
-      this.map.delete(oldest);
-    }
-  }
-
-  get size(): number {
-    return this.map.size;
-  }
-
-  get totalBytes(): number {
-    return this.bytes;
-  }
-
-  clear(): void {
-    this.map.clear();
-    this.bytes = 0;
-  }
-}
 
 // ---------------------------------------------------------------------------------------------------------
 // The service
@@ -272,16 +104,13 @@ function tagOf(key: string): string {
   return `"${createHash('sha256').update(key).digest('base64url').slice(0, 32)}"`;
 }
 
-function useCounts(measure: MeasureRecord): boolean {
-  return measure.integer && measure.max - measure.min + 1 <= MAX_DENSE_COUNTS;
-}
-
 export class ComparisonService {
   readonly cache: LruCache<CachedValue>;
   private readonly inflight = new Map<string, Promise<CachedValue>>();
 
   private readonly workerMinValues: number;
   private readonly pool: ComparePool | null;
+  private readonly onComparison: (event: ComparisonEvent) => void;
   /** Where the heavy steps ran (tests and benchmarks). */
   readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0 };
 
@@ -291,8 +120,9 @@ export class ComparisonService {
     options: ComparisonServiceOptions = {},
   ) {
     this.cache = new LruCache(limits.maxEntries, limits.maxBytes);
-    this.workerMinValues = options.workerMinValues ?? WORKER_MIN_VALUES;
+    this.workerMinValues = options.workerMinValues ?? COMPARE_WORKER_MIN_DEFAULT;
     this.pool = options.pool ?? null;
+    this.onComparison = options.onComparison ?? (() => undefined);
   }
 
   private workerPool(): ComparePool {
@@ -302,7 +132,7 @@ export class ComparisonService {
   /** One cheap query: what the cached entries of this experiment depend on besides the definition. */
   async stamp(experiment: ExperimentRecord): Promise<Stamp> {
     const s = await this.store.responses.getComparisonStamp(experiment.key);
-    if (!s) throw new ProblemError('not-found', `There is no experiment ${quote(experiment.id)}.`);
+    if (!s) throw experimentNotFound(experiment.id);
     return s;
   }
 
@@ -401,6 +231,15 @@ export class ComparisonService {
     return { body, etag };
   }
 
+  /**
+   * The family's body with the defaults of the CSV export (first pair, Holm) for whatever `options` leaves out: the
+   * same numbers GET /v1/experiments/{id}/comparisons answers, from the same cache.
+   */
+  async familyBody(experiment: ExperimentRecord, options: Partial<FamilyOptions> = {}): Promise<FamilyBody> {
+    const full: FamilyOptions = { ...DEFAULT_COMPARISON_OPTIONS, pairs: 'first', adjust: 'holm', ...options };
+    return (await this.family(experiment, full)).body;
+  }
+
   /** The family's ETag from the stamp alone (for the 304 check before anything is computed). */
   familyEtagFromStamp(experiment: ExperimentRecord, options: FamilyOptions, s: Stamp): string {
     const keys = familyTargets(experiment, options.pairs).map((t) => this.comparisonKey(t, options, s));
@@ -411,7 +250,7 @@ export class ComparisonService {
   private async cached(key: string, compute: () => Promise<CachedValue>): Promise<CachedValue> {
     const hit = this.cache.get(key);
     if (hit) {
-      recordComparison({ cacheHit: true });
+      this.onComparison({ cacheHit: true });
       return hit;
     }
     const running = this.inflight.get(key);
@@ -420,7 +259,7 @@ export class ComparisonService {
       try {
         const started = performance.now();
         const value = await compute();
-        recordComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
+        this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
         const bytes = value.kind === 'chart' ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
@@ -433,13 +272,10 @@ export class ComparisonService {
   }
 
   private async readSamples(t: ComparisonTarget, includeExcluded: boolean): Promise<{ snapshot: MeasureSnapshot; a: Sample; b: Sample }> {
-    const keys = [t.a.key, t.b.key];
-    if (useCounts(t.measure)) {
-      const snapshot = await this.store.responses.getCountsSnapshot(t.measure.key, keys, includeExcluded);
-      return { snapshot, a: fromCounts(snapshot.groups[0], t.measure.min, 'a'), b: fromCounts(snapshot.groups[1], t.measure.min, 'b') };
-    }
-    const snapshot = await this.readSortedSnapshot(t, includeExcluded);
-    return { snapshot, a: fromSortedValues(snapshot.groups[0], 'a'), b: fromSortedValues(snapshot.groups[1], 'b') };
+    const snapshot = readsCounts(t.measure)
+      ? await readSnapshot(this.store, t.measure, [t.a.key, t.b.key], includeExcluded)
+      : await this.readSortedSnapshot(t, includeExcluded);
+    return { snapshot, ...samplesOf(t.measure, snapshot) };
   }
 
   /**
@@ -450,12 +286,12 @@ export class ComparisonService {
    */
   private async readSortedSnapshot(t: ComparisonTarget, includeExcluded: boolean): Promise<MeasureSnapshot> {
     const keys = [t.a.key, t.b.key];
-    const reader = sortedRunsReader(this.store);
+    const reader = this.store.responses.sortedRuns;
     if (reader && reader.fullReadEstimate(t.measure.key, keys, includeExcluded) >= this.workerMinValues) {
-      const dbPath = reader.databasePath;
-      if (dbPath) {
+      const where = reader.workerReads;
+      if (where) {
         const runs = await this.workerPool().runOr<RunsSnapshot | null>(
-          { kind: 'read', dbPath, measureKey: t.measure.key, conditionKeys: keys, includeExcluded },
+          { kind: 'read', module: where.module, source: where.source, measureKey: t.measure.key, conditionKeys: keys, includeExcluded },
           () => null,
         );
         if (runs) {
@@ -474,14 +310,13 @@ export class ComparisonService {
     snapshot: MeasureSnapshot,
   ): Promise<CompareResult & { a: Sample | null; b: Sample | null }> {
     const ctx = flagContext(t, snapshot, o.includeExcluded);
-    if (useCounts(t.measure)) {
-      const a = fromCounts(snapshot.groups[0], t.measure.min, 'a');
-      const b = fromCounts(snapshot.groups[1], t.measure.min, 'b');
+    if (readsCounts(t.measure)) {
+      const { a, b } = samplesOf(t.measure, snapshot);
       const cmp = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
       this.paths.inThreadComputes++;
       return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), a, b };
     }
-    const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : toShared(x));
+    const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : shareable(x));
     const big = snapshot.groups[0].length + snapshot.groups[1].length >= this.workerMinValues;
     const task = {
       a: big ? shared(snapshot.groups[0]) : snapshot.groups[0],
@@ -507,9 +342,7 @@ export class ComparisonService {
   private async computeComparison(t: ComparisonTarget, o: ComparisonOptions): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot }> {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
-    const snapshot = useCounts(m)
-      ? await this.store.responses.getCountsSnapshot(m.key, keys, o.includeExcluded)
-      : await this.readSortedSnapshot(t, o.includeExcluded);
+    const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
     const { cmp, flags } = await this.compareAndFlag(t, o, snapshot);
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
@@ -587,33 +420,12 @@ export function flagContext(t: ComparisonTarget, snapshot: MeasureSnapshot, incl
   };
 }
 
-// ---------------------------------------------------------------------------------------------------------
-// One service (and cache) per store
-// ---------------------------------------------------------------------------------------------------------
-
-const services = new WeakMap<Store, ComparisonService>();
-
-export function comparisonServiceFor(store: Store): ComparisonService {
-  let s = services.get(store);
-  if (!s) {
-    s = new ComparisonService(store);
-    services.set(store, s);
-    if (!warmedUp && process.env.VITEST === undefined && process.env.NODE_ENV !== 'test') {
-      warmedUp = true;
-      setImmediate(warmUp);
-    }
-  }
-  return s;
-}
-
-let warmedUp = false;
-
 /**
- * Once per served process: run the stats code on small invented samples, in-thread and in a worker (which starts
+ * Once per served process (cli/serve.ts calls it after listening): run the stats code on small invented samples, in-thread and in a worker (which starts
  * it), so that the first real comparison after a restart does not also pay for V8's lazy compilation and the
  * worker's start-up (~0.1–0.3 s measured by tests/bench/comparisons.ts "cold"). Failures are ignored.
  */
-function warmUp(): void {
+export function warmUp(pool: ComparePool = sharedComparePool()): void {
   try {
     // A 0–100 item with ~2,000 answers per group, through stats, the flags and the reply's schema (zod compiles
     // its fast path on first use: ~50 ms measured on the first reply otherwise).
@@ -633,19 +445,10 @@ function warmUp(): void {
     }
     const task = { a: x, b: y, alternative: 'two-sided' as const, confidenceLevel: 0.95, flagContext: { ...ctx, scale: { min: 0, max: 1, integer: false } } };
     compareSorted(task);
-    void sharedComparePool()
+    void pool
       .run({ kind: 'compare', ...task })
       .catch(() => undefined);
   } catch {
     // a warm-up is an optimisation only
   }
-}
-
-/**
- * The family of comparisons of an experiment (every measure × the first pair or every pair), adjusted across the
- * family; the same numbers GET /v1/experiments/{id}/comparisons answers, from the same cache. For the CSV export.
- */
-export async function computeFamily(store: Store, experiment: ExperimentRecord, options: Partial<FamilyOptions> = {}): Promise<FamilyBody> {
-  const full: FamilyOptions = { ...DEFAULT_COMPARISON_OPTIONS, pairs: 'first', adjust: 'holm', ...options };
-  return (await comparisonServiceFor(store).family(experiment, full)).body;
 }

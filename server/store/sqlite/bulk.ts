@@ -1,6 +1,6 @@
 /**
- * Bulk reads and writes for exports and imports (SQLite). Routes and the CLI reach these through functions that
- * take the Store, so no SQL or better-sqlite3 type leaves server/db/.
+ * Bulk reads and writes for exports and imports (SQLite). They implement the port's BulkRepository
+ * (store.bulk, made by sqliteBulk below), so no SQL or better-sqlite3 type leaves server/store/sqlite/.
  *
  *  - exportResponsePages(): every stored response of one experiment with its values, condition, times and
  *    exclusion state, in storage order, as pages of `pageSize` rows. Keyset paging on responses.id: each page is
@@ -15,30 +15,19 @@
  *    chunk, all committed together.
  */
 import { STORED_RESPONSE_COLUMNS, type StoredResponseRow } from './responses.js';
-import type { SqliteStore } from './store.js';
-import type { IngestOutcome, Store, ValidResponse } from '../types.js';
+import type { SqliteDatabase } from './open.js';
+import type { SqliteResponseRepository } from './responses.js';
+import type { BulkImport, BulkRepository, ExportRow } from '../types.js';
 
-/** One exported response. `values` is aligned with the `measureKeys` passed in (null = not answered). */
-export interface ExportRow {
-  responseId: string;
-  condition: string;
-  respondent: string | null;
-  submittedAt: string;
-  receivedAt: string;
-  excluded: boolean;
-  excludedReason: string | null;
-  values: (number | null)[];
-}
-
-function sqlite(store: Store): SqliteStore {
-  const s = store as SqliteStore;
-  if (!s.db || typeof s.db.prepare !== 'function') throw new TypeError('bulk export and import need the SQLite store');
-  return s;
+/** The parts of the SQLite store the bulk operations use (an open SqliteStore is one). */
+export interface SqliteBulkParts {
+  db: SqliteDatabase;
+  responses: SqliteResponseRepository;
 }
 
 const statements = new WeakMap<object, ReturnType<typeof prepareExport>>();
 
-function prepareExport(store: SqliteStore) {
+function prepareExport(store: SqliteBulkParts) {
   const { db } = store;
   return {
     maxId: db.prepare<[number], number | null>(`SELECT max(id) FROM responses WHERE experiment_id = ?`).pluck(),
@@ -61,12 +50,12 @@ function prepareExport(store: SqliteStore) {
  * caller may await I/O freely.
  */
 export async function* exportResponsePages(
-  store: Store,
+  store: SqliteBulkParts,
   experimentKey: number,
   measureKeys: readonly number[],
   pageSize = 1000,
 ): AsyncGenerator<ExportRow[], void, undefined> {
-  const s = sqlite(store);
+  const s = store;
   let st = statements.get(s.db);
   if (!st) {
     st = prepareExport(s);
@@ -109,22 +98,13 @@ export async function* exportResponsePages(
   }
 }
 
-/** An open all-or-nothing import transaction. Call add() for each chunk, then exactly one of commit() or rollback(). */
-export interface BulkImport {
-  /** Store one chunk through the repository's ingest (a savepoint inside the open transaction). Synchronous. */
-  add(items: ValidResponse[]): IngestOutcome;
-  commit(): void;
-  rollback(): void;
-  readonly open: boolean;
-}
-
 /**
  * Begin one write transaction for a bulk import. While it is open every statement on this connection belongs to
  * it: the HTTP route therefore calls add() for all chunks without awaiting anything in between, and the CLI owns
  * its connection alone. The write lock is taken at once (BEGIN IMMEDIATE); other processes' writers wait.
  */
-export function beginBulkImport(store: Store, experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport {
-  const s = sqlite(store);
+export function beginBulkImport(store: SqliteBulkParts, experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport {
+  const s = store;
   if (s.db.inTransaction) throw new Error('a bulk import cannot start inside another transaction');
   s.db.prepare('BEGIN IMMEDIATE').run();
   let open = true;
@@ -147,5 +127,13 @@ export function beginBulkImport(store: Store, experimentKey: number, receivedAt:
     get open() {
       return open;
     },
+  };
+}
+
+/** The store's BulkRepository (`store.bulk`). */
+export function sqliteBulk(store: SqliteBulkParts): BulkRepository {
+  return {
+    exportResponsePages: (experimentKey, measureKeys, pageSize) => exportResponsePages(store, experimentKey, measureKeys, pageSize),
+    beginImport: (experimentKey, receivedAt, apiKeyId) => beginBulkImport(store, experimentKey, receivedAt, apiKeyId),
   };
 }

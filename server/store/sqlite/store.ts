@@ -3,6 +3,7 @@
  * Everything SQLite-specific stays under server/db/.
  */
 import { SqliteApiKeyRepository } from './api-keys.js';
+import { sqliteBulk } from './bulk.js';
 import { SqliteAuditRepository } from './audit.js';
 import { SqliteExperimentRepository } from './experiments.js';
 import { loadMigrations, migrate, migrationsCurrent, type Migration, type MigrateResult } from './migrate.js';
@@ -34,7 +35,7 @@ export function openSqliteStore(path: string, options: { migrations?: Migration[
     throw err;
   }
   const ping = db.prepare(`SELECT 1`).pluck();
-  return {
+  const store: SqliteStore = {
     db,
     migration,
     experiments: new SqliteExperimentRepository(db),
@@ -55,5 +56,10 @@ export function openSqliteStore(path: string, options: { migrations?: Migration[
     async close() {
       closeDatabase(db);
     },
+    get bulk() {
+      return bulk;
+    },
   };
+  const bulk = sqliteBulk(store);
+  return store;
 }
