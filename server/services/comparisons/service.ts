@@ -27,10 +27,10 @@
  */
 import { createHash } from 'node:crypto';
 import { describe } from '../../../stats/descriptives.js';
-import { computeFlags, type FlagContext, type FlagThresholds } from '../../../stats/flags.js';
+import { computeFlags, type FlagContext } from '../../../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../../../stats/adjust.js';
 import { compareSamples, fromCounts, type Alternative, type Sample } from '../../../stats/index.js';
-import type { ComparisonStamp, ConditionRecord, ExperimentRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
+import type { ComparisonStamp, ExperimentRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
 import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
@@ -40,6 +40,7 @@ import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
+import { comparisonBody, flagContext } from './reply.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 1;
@@ -91,14 +92,6 @@ export interface ComparisonReply {
   body: ComparisonBody;
   etag: string;
 }
-
-const REJECTION_GROUPS: Record<string, 'out_of_range' | 'not_integer' | 'not_a_number'> = {
-  out_of_range: 'out_of_range',
-  not_integer: 'not_integer',
-  not_a_number: 'not_a_number',
-  not_finite: 'not_a_number',
-  too_many_digits: 'not_a_number',
-};
 
 function tagOf(key: string): string {
   return `"${createHash('sha256').update(key).digest('base64url').slice(0, 32)}"`;
@@ -361,63 +354,6 @@ export class ComparisonService {
     const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
     return { body, snapshot };
   }
-}
-
-/** The reply of one comparison: the ids, the dataVersion, the statistics and flags, and the monitoring block. */
-function comparisonBody(
-  ids: { experiment: string; measure: string; a: string; b: string },
-  dataVersion: number,
-  { cmp, flags }: CompareResult,
-  monitoring: Awaited<ReturnType<typeof computeMonitoring>> | null,
-): ComparisonBody {
-  return {
-    experiment: ids.experiment,
-    measure: ids.measure,
-    a: ids.a,
-    b: ids.b,
-    dataVersion,
-    computedAt: new Date().toISOString(),
-    groups: cmp.groups,
-    welch: cmp.welch,
-    student: cmp.student,
-    mannWhitney: cmp.mannWhitney,
-    hodgesLehmann: cmp.hodgesLehmann,
-    effectSizes: cmp.effectSizes,
-    robust: cmp.robust,
-    flags: flags as ComparisonBody['flags'],
-    monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
-  };
-}
-
-/** The flags' context from the experiment and the snapshot (all data-dependent parts from the snapshot). */
-export function flagContext(t: ComparisonTarget, snapshot: MeasureSnapshot, includeExcluded: boolean): FlagContext {
-  const { experiment: e, measure: m } = t;
-  const rejected: Record<string, number> = {};
-  for (const r of snapshot.rejected) {
-    const group = REJECTION_GROUPS[r.reason] ?? r.reason;
-    rejected[group] = (rejected[group] ?? 0) + r.count;
-  }
-  const counters = new Map(snapshot.conditions.map((c) => [c.key, c]));
-  const observed = e.conditions.map((c) => {
-    const k = counters.get(c.key);
-    return k ? k.responses - k.excluded : 0;
-  });
-  const allocation = e.options.allocation as Record<string, number> | null | undefined;
-  const excludedOf = (c: ConditionRecord): number => counters.get(c.key)?.excluded ?? 0;
-  return {
-    alpha: e.alpha,
-    labels: { a: t.a.label, b: t.b.label },
-    scale: { min: m.min, max: m.max, integer: m.integer },
-    rejected,
-    plannedPerCondition: e.plannedPerCondition,
-    allocation: {
-      conditions: e.conditions.map((c) => c.label),
-      observed,
-      ...(allocation ? { weights: e.conditions.map((c) => allocation[c.id] ?? 1) } : {}),
-    },
-    excludedCount: includeExcluded ? 0 : excludedOf(t.a) + excludedOf(t.b),
-    thresholds: (e.options.flagThresholds as Partial<FlagThresholds> | null | undefined) ?? undefined,
-  };
 }
 
 /**

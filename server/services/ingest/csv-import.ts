@@ -26,7 +26,7 @@ import { createReadStream } from 'node:fs';
 import { Readable } from 'node:stream';
 import { CsvError, parse as parseStream, type Options as CsvParseOptions } from 'csv-parse';
 import { parse as parseSync } from 'csv-parse/sync';
-import type { ExperimentRecord, IngestOutcome, RejectedIncrement, Store, ValidResponse } from '../../store/types.js';
+import type { BulkImport, ExperimentRecord, IngestOutcome, RejectedIncrement, Store, ValidResponse } from '../../store/types.js';
 import { CSV_PARSE_OPTIONS, CsvRowChecker, IMPORT_CHUNK_ROWS, ImportCounts, ImportProblem, ImportSummary, LineTracker, MAX_KEPT_PROBLEMS, RecordPosition, parseErrorProblem } from './csv-rows.js';
 
 export interface CsvImportOptions {
@@ -256,14 +256,18 @@ export async function importCsvBuffer(run: ImportRun, csv: Buffer | string): Pro
       },
     });
     imp.endInsert(writer);
-    if (imp.shouldCommit()) {
-      writer.commit();
-      committed = true;
-    }
+    committed = commitIfKept(imp, writer);
   } finally {
     writer.rollback();
   }
   return imp.summary(committed);
+}
+
+/** Commit the open import when its rows may be kept (all valid, or skipInvalid); returns whether it did. */
+function commitIfKept(imp: CsvImport, writer: BulkImport): boolean {
+  if (!imp.shouldCommit()) return false;
+  writer.commit();
+  return true;
 }
 
 function* slices(bytes: Buffer, size = 64 * 1024): Generator<Buffer> {
@@ -328,10 +332,7 @@ export async function importCsvFile(run: ImportRun, path: string): Promise<Impor
     });
     imp.endInsert(writer);
     run.onProgress?.(2, imp.insertedRows);
-    if (imp.shouldCommit()) {
-      writer.commit();
-      committed = true;
-    }
+    committed = commitIfKept(imp, writer);
   } finally {
     writer.rollback();
   }
