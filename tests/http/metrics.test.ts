@@ -1,7 +1,7 @@
 /**
  * GET /metrics: who may read it (admin key for every experiment, or SPLITBALLOT_METRICS_TOKEN), the Prometheus
  * text format, route patterns instead of raw URLs, stored/refused answers per reason, comparisons and cache hits
- * through recordComparison(), backups, and the database size.
+ * through ServiceMetrics.recordComparison() (the comparison service's callback), backups, and the database size.
  */
 import SwaggerParser from '@apidevtools/swagger-parser';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';

@@ -21,8 +21,8 @@
  * measures are recomputed when they are asked for, not before). Two replies with the same ETag carry the same
  * numbers; only `computedAt` can differ, when an entry was evicted and computed again.
  *
- * The LRU cache is bounded by entries and by an estimate of bytes (twice the JSON length, UTF-16), one per Store
- * (`comparisonServiceFor(store)`), shared by the routes and by `computeFamily` (used by the CSV export). Identical
+ * The LRU cache is bounded by entries and by an estimate of bytes (twice the JSON length, UTF-16), one per app
+ * (the app's `app.comparisons`), shared by the comparison routes and by the CSV export (`familyBody`). Identical
  * requests that miss at the same time share one computation.
  */
 import { createHash } from 'node:crypto';

@@ -1,6 +1,6 @@
 /**
  * Operations on the SQLite file itself: online backup, restore, the consistency check, and the lock that tells
- * a running server apart from a file at rest. (SQLite-specific like server/db/; the Store interface has no
+ * a running server apart from a file at rest. (SQLite-specific like everything in server/store/sqlite/; the Store interface has no
  * backup because a PostgreSQL deployment would use its own tools.)
  *
  * Online backup: SQLite's backup API (better-sqlite3 `db.backup`), copying pages in steps and yielding to the

@@ -287,7 +287,7 @@ export class SqliteResponseReads implements SortedRunsReader {
   /**
    * Every run a snapshot needs (excluded = 0, and 1 with includeExcluded) read whole, with the dataVersion, the
    * epoch, the last response id and the context, in ONE read transaction. No cache involved: this is what a worker
-   * thread runs on its own read-only connection (server/store/sqlite/compare-worker.ts); the caller adopts the runs.
+   * thread runs on its own read-only connection (worker-reads.ts, run by the comparison worker pool); the caller adopts the runs.
    */
   readRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): RunsSnapshot {
     return this.db.transaction((): RunsSnapshot => {

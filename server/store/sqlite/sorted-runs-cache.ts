@@ -13,7 +13,7 @@
  *   - another epoch, or no entry            → read the whole run from the index (O(n), already in order).
  *
  * Arrays are backed by SharedArrayBuffer and never changed after they are made (a merge makes a new one), so they
- * can be handed to a worker thread (server/store/sqlite/compare-worker.ts) without a copy and a reply computed from an older
+ * can be handed to a worker thread (worker-reads.ts, run by the comparison worker pool) without a copy and a reply computed from an older
  * array stays valid for its own dataVersion.
  *
  * Bounded by a total number of values (default 8,000,000 = 64 MB); the least recently used runs go first.

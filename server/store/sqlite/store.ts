@@ -1,6 +1,6 @@
 /**
  * The SQLite-backed Store: opens the file, applies migrations, and hands out the repositories.
- * Everything SQLite-specific stays under server/db/.
+ * Everything SQLite-specific stays under server/store/sqlite/.
  */
 import { SqliteApiKeyRepository } from './api-keys.js';
 import { sqliteBulk } from './bulk.js';
@@ -16,7 +16,7 @@ export interface SqliteStore extends Store {
   responses: SqliteResponseRepository;
   /** What migrate() did when the store was opened. */
   migration: MigrateResult;
-  /** The underlying connection, for code inside server/db/ and for tests that inspect the file. */
+  /** The underlying connection, for code inside server/store/sqlite/ and for tests that inspect the file. */
   readonly db: SqliteDatabase;
 }
 

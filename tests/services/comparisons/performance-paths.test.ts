@@ -2,7 +2,7 @@
  * Correctness of the performance paths of issue 8 (no timing here; tests/bench/ measures the speed):
  *  - the sorted-values cache (merge of newer rows, invalidation by the values epoch) equals a fresh ordered read
  *    after random batches, single responses, exclusions, restorations and erasures;
- *  - the worker-thread path of a comparison (read + stats + flags in server/store/sqlite/compare-worker.ts) gives the same
+ *  - the worker-thread path of a comparison (read + stats + flags in server/services/comparisons/worker-pool.ts and server/store/sqlite/worker-reads.ts) gives the same
  *    reply as the in-thread path;
  *  - group commit of single responses: each request keeps its own outcome (stored, repeat, conflict), all are
  *    durable when their promises settle, the counters and dataVersion match;
