@@ -32,6 +32,7 @@ import type { Store } from '../store/types.js';
 import { registerAuth, type RouteAccess } from './auth.js';
 import { registerCors } from './cors.js';
 import { registerJsonParser } from './json-body.js';
+import { REDACTED_LOG_PATHS } from './logging.js';
 import { instrumentStore, metricsRoutes, registerRequestMetrics, ServiceMetrics } from './metrics.js';
 import { registerOpenApi } from './openapi-document.js';
 import { clientErrorHandler, registerProblemHandlers, sendProblem } from './problem-handler.js';
@@ -69,42 +70,6 @@ export interface RouteEntry {
   access: RouteAccess | undefined;
 }
 
-/** Log fields that must never be written: credentials in headers or forms, secrets and key hashes. */
-export const REDACTED_LOG_PATHS = [
-  'req.headers.authorization',
-  'req.headers.cookie',
-  'headers.authorization',
-  'headers.cookie',
-  'authorization',
-  'ingestKey',
-  '*.ingestKey',
-  'body.ingestKey',
-  'secret',
-  '*.secret',
-  'hash',
-  '*.hash',
-  'adminKeyHash',
-  '*.adminKeyHash',
-  'metricsTokenHash',
-  '*.metricsTokenHash',
-  'contentHash',
-  '*.contentHash',
-  'content_hash',
-  '*.content_hash',
-  'token',
-  '*.token',
-  'password',
-  '*.password',
-  'req.headers["x-api-key"]',
-  'req.headers["proxy-authorization"]',
-  'res.headers["set-cookie"]',
-  // Error objects logged on a 5xx: better-sqlite3 puts nothing secret in messages, but SQL text can appear in
-  // a wrapped error's `sql` field and statement text in `source`; never log them.
-  'err.sql',
-  'err.source',
-  'err.statement',
-  'err.params',
-];
 
 declare module 'fastify' {
   interface FastifyInstance {

@@ -6,7 +6,8 @@
 import { connect } from 'node:net';
 import type { FastifyInstance } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { buildApp, REDACTED_LOG_PATHS } from '../../server/http/app.js';
+import { buildApp } from '../../server/http/app.js';
+import { REDACTED_LOG_PATHS } from '../../server/http/logging.js';
 import { API_CSP } from '../../server/http/security-headers.js';
 import { ConfigError, loadConfig, sha256 } from '../../server/config.js';
 import { HTML_CSP } from '../../server/views/html.js';
