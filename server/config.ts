@@ -36,7 +36,16 @@ export interface Config {
   trustProxy?: false | number | string[];
   /** Graceful shutdown: how long in-flight requests may take after SIGTERM, ms. Default SHUTDOWN_GRACE_DEFAULT_MS. */
   shutdownGraceMs?: number;
+  /**
+   * Continuous comparisons with at least this many values (both groups) are computed in a worker thread, and
+   * uncached sorted runs of at least this many values are read there (SPLITBALLOT_COMPARE_WORKER_MIN; 0: always a
+   * worker; a huge value: never; unset or unreadable: COMPARE_WORKER_MIN_DEFAULT).
+   */
+  compareWorkerMinValues?: number;
 }
+
+/** Below this many values a comparison takes a few milliseconds in-thread (tests/bench/comparisons.ts measures the crossover). */
+export const COMPARE_WORKER_MIN_DEFAULT = 10_000;
 
 export const RATE_LIMIT_INGEST_DEFAULT = 600;
 export const REQUEST_TIMEOUT_DEFAULT_MS = 60_000;
@@ -124,6 +133,11 @@ const EnvSchema = z.object({
   SPLITBALLOT_REQUEST_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, REQUEST_TIMEOUT_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_SHUTDOWN_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, SHUTDOWN_GRACE_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_BACKUP_DIR: z.preprocess(emptyToUndefined, z.string().optional()),
+  // An unreadable value keeps the default (as before this setting was read here): no start-up error for a tuning knob.
+  SPLITBALLOT_COMPARE_WORKER_MIN: z.preprocess((v) => {
+    const n = Number(v);
+    return v === undefined || v === '' || !Number.isInteger(n) || n < 0 ? undefined : n;
+  }, z.number().optional()),
   SPLITBALLOT_METRICS_TOKEN: secret(MIN_METRICS_TOKEN_LENGTH),
   SPLITBALLOT_TRUST_PROXY: z.preprocess(
     emptyToUndefined,
@@ -173,6 +187,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     backupDir: e.SPLITBALLOT_BACKUP_DIR === undefined ? undefined : resolve(e.SPLITBALLOT_BACKUP_DIR),
     metricsTokenHash: e.SPLITBALLOT_METRICS_TOKEN === undefined ? null : sha256(e.SPLITBALLOT_METRICS_TOKEN),
     trustProxy: e.SPLITBALLOT_TRUST_PROXY,
+    compareWorkerMinValues: e.SPLITBALLOT_COMPARE_WORKER_MIN,
   };
 }
 

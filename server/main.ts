@@ -6,7 +6,7 @@
  * timer, a socket) cannot keep a stopped server alive: after the command returns, the process gets one second
  * to drain its output and then exits anyway (the timer is unref'ed, so a clean exit is not delayed).
  */
-import { runCli } from './cli.js';
+import { runCli } from './cli/run.js';
 
 function finish(code: number): void {
   process.exitCode = code;

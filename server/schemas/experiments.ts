@@ -1,6 +1,6 @@
 /** Schemas of the experiment routes (request bodies and replies). */
 import { z } from 'zod';
-import { RESERVED_MEASURE_IDS } from '../ingest.js';
+import { RESERVED_MEASURE_IDS } from './responses.js';
 import { Slug } from './common.js';
 
 const Label = z.string().min(1).max(500);

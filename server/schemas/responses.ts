@@ -1,6 +1,13 @@
 /** Schemas of the ingest routes: one response, a batch, and what the service answers. */
 import { z } from 'zod';
 
+/** Name of the form field that may carry an ingest key (never an admin or read key). */
+export const FORM_KEY_FIELD = 'ingestKey';
+/** Form fields that are not measures. */
+export const FORM_RESERVED_FIELDS = ['condition', 'responseId', 'respondent', 'submittedAt', FORM_KEY_FIELD] as const;
+/** Measure ids that cannot be used, because a form field of that name means something else. */
+export const RESERVED_MEASURE_IDS = ['condition', 'respondent'] as const;
+
 /** Client response ids: URL-safe, 1–128 characters (they appear in later URLs such as …/responses/{responseId}/exclusion). */
 export const RESPONSE_ID_PATTERN = /^[A-Za-z0-9][A-Za-z0-9._~:-]{0,127}$/;
 export const MAX_BATCH_ITEMS = 10_000;

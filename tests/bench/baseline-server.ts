@@ -1,12 +1,12 @@
 /**
  * The ceiling of this stack for benchmark 1 (tests/bench/ingest-single.ts): a bare fastify route that does one
  * prepared better-sqlite3 INSERT per request, on a file database opened with the service's own pragmas
- * (server/db/open.ts: WAL, synchronous = FULL, foreign keys, busy timeout). No validation, no idempotency, no
+ * (server/store/sqlite/open.ts: WAL, synchronous = FULL, foreign keys, busy timeout). No validation, no idempotency, no
  * counters, no auth: what is left is HTTP + JSON + one fsync'ed commit. Started by the benchmark as a child:
  *   PORT=… BASELINE_DB=… node --import tsx tests/bench/baseline-server.ts
  */
 import Fastify from 'fastify';
-import { openDatabase } from '../../server/db/open.js';
+import { openDatabase } from '../../server/store/sqlite/open.js';
 
 const db = openDatabase(process.env.BASELINE_DB ?? '/tmp/splitballot-baseline.db');
 db.exec(`CREATE TABLE IF NOT EXISTS items (id INTEGER PRIMARY KEY, response_id TEXT NOT NULL, condition TEXT NOT NULL, body TEXT NOT NULL) STRICT`);

@@ -21,11 +21,11 @@
  * Memory: the server's peak resident memory (VmHWM) after the largest size (2 × n continuous values).
  * References (same numbers, data already in memory): reference.py (scipy ttest_ind(equal_var=False),
  * mannwhitneyu(asymptotic), shapiro on 5,000) and reference.R (t.test, wilcox.test, shapiro.test on 5,000).
- * Worker crossover: compare in-thread vs in the worker pool, in-process, by total n (sets WORKER_MIN_VALUES).
+ * Worker crossover: compare in-thread vs in the worker pool, in-process, by total n (sets the service's workerMinValues).
  */
 import { spawnSync } from 'node:child_process';
 import { join } from 'node:path';
-import { ComparePool, compareSorted } from '../../server/compare-worker.js';
+import { ComparePool, compareSorted } from '../../server/services/comparisons/worker-pool.js';
 import type { FlagContext } from '../../stats/flags.js';
 import { ensureData, readStream, type StreamName } from './data.js';
 import {

@@ -12,6 +12,8 @@ import os from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
+import { waterBillDefinition } from '../helpers/water.js';
+
 export const ROOT = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
 export const RESULTS_DIR = join(ROOT, 'bench-results');
 export const DATA_DIR = join(RESULTS_DIR, 'data');
@@ -115,22 +117,9 @@ export function autocannonFigures(result: autocannon.Result) {
 
 type Measure = { id: string; label: string; min: number; max: number; integer: boolean; required: boolean };
 
-/** The water-utility demo's three items (ingest-single.ts, load.ts), under a title naming the benchmark. */
+/** The water-utility demo study (tests/helpers/water.ts) under a title naming the benchmark, with no planned size. */
 export function waterExperiment(title: string) {
-  return {
-    id: 'water-bill-2027',
-    title,
-    conditions: [
-      { id: 'bill-first', label: 'The bill questions come first' },
-      { id: 'service-first', label: 'The service questions come first' },
-    ],
-    measures: [
-      { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-      { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
-      { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
-    ],
-    alpha: 0.05,
-  };
+  return waterBillDefinition({ title, plannedPerCondition: undefined });
 }
 
 /** Conditions a and b with a 0–100 integer score and a continuous amount, then `extra` (ingest-batch.ts, comparisons.ts). */

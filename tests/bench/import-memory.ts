@@ -15,7 +15,7 @@ import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import { once } from 'node:events';
 
-const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+const ROOT = fileURLToPath(new URL('../..', import.meta.url));
 const ROWS = Number(process.env.ROWS ?? 1_000_000);
 
 async function writeCsv(path: string, rows: number): Promise<void> {
@@ -61,7 +61,7 @@ async function main(): Promise<void> {
 
     // Create the experiment with the same code path as the service (in a child, so this process stays small).
     const setup = `
-      import { openSqliteStore } from './dist/server/db/store.js';
+      import { openSqliteStore } from './dist/server/store/sqlite/store.js';
       const s = openSqliteStore(process.env.SPLITBALLOT_DB);
       const r = await s.experiments.create({ id: 'water-bill-2027', title: 'Import benchmark (invented data)',
         conditions: [{ id: 'bill-first', label: 'bill first' }, { id: 'service-first', label: 'service first' }],
@@ -77,7 +77,7 @@ async function main(): Promise<void> {
 
     // The import itself; the wrapper prints the child's peak RSS after the CLI returns.
     const wrapper = `
-      import { runCli } from './dist/server/cli.js';
+      import { runCli } from './dist/server/cli/run.js';
       const code = await runCli(process.argv.slice(1), { stdout: process.stdout, stderr: process.stderr, env: process.env });
       process.stdout.write('maxRSS_KiB=' + process.resourceUsage().maxRSS + '\\n');
       process.exit(code);`;

@@ -16,9 +16,9 @@
 import { mkdtempSync, rmSync } from 'node:fs';
 import os from 'node:os';
 import { join } from 'node:path';
-import { openSqliteStore } from '../../server/db/store.js';
-import { checkBatch } from '../../server/ingest.js';
-import { parseJsonBody } from '../../server/json-body.js';
+import { openSqliteStore } from '../../server/store/sqlite/store.js';
+import { checkBatch } from '../../server/services/ingest/validate.js';
+import { parseJsonBody } from '../../server/http/json-body.js';
 import { ensureData, readStream } from './data.js';
 import {
   abExperiment,

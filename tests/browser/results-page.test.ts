@@ -20,7 +20,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
 
-const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+const ROOT = fileURLToPath(new URL('../..', import.meta.url));
 const OUTPUT = join(ROOT, 'test-output');
 const README_SCREENSHOT = join(ROOT, 'server', 'pages', 'screenshot.png');
 const MEASURES = ['satisfaction', 'trust', 'fair_price'];

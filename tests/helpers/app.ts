@@ -7,34 +7,15 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import type { FastifyInstance, InjectOptions, LightMyRequestResponse } from 'fastify';
 import { afterAll, afterEach, beforeEach, expect } from 'vitest';
-import { buildApp } from '../../server/app.js';
-import { generateSecret, hashSecret } from '../../server/auth.js';
-import { runCli } from '../../server/cli.js';
+import { buildApp } from '../../server/http/app.js';
+import { generateSecret, hashSecret } from '../../server/services/keys.js';
+import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
-import { openSqliteStore, type SqliteStore } from '../../server/db/store.js';
-import type { Scope } from '../../server/db/types.js';
+import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
+import type { Scope } from '../../server/store/types.js';
 
-export const WATER_ID = 'water-bill-2027';
-
-/** The demo experiment: does showing the bill first or the service first change how customers rate their water utility? */
-export function waterBillDefinition(overrides: Record<string, unknown> = {}): Record<string, unknown> {
-  return {
-    id: WATER_ID,
-    title: 'Water utility survey 2027: bill first or service first?',
-    conditions: [
-      { id: 'bill-first', label: 'The bill questions come first' },
-      { id: 'service-first', label: 'The service questions come first' },
-    ],
-    measures: [
-      { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-      { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
-      { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
-    ],
-    plannedPerCondition: 400,
-    alpha: 0.05,
-    ...overrides,
-  };
-}
+export { WATER_ID, waterBillDefinition } from './water.js';
+import { waterBillDefinition } from './water.js';
 
 const createdDirs: string[] = [];
 // Every temporary folder made by a test file is removed after that file's tests (registered when the file

@@ -59,7 +59,7 @@ describe('results page files', () => {
 
 describe('assets module', () => {
   it('lists files that exist and finds the folder', async () => {
-    const { PAGE_ASSETS, RESULTS_HTML, RESULTS_PAGE_CSP, pagesDirectory } = await import('../../server/pages/assets.js');
+    const { PAGE_ASSETS, RESULTS_HTML, RESULTS_PAGE_CSP, pagesDirectory } = await import('../../server/http/page-assets.js');
     expect(pagesDirectory()).toBe(dir.replace(/\/$/, ''));
     for (const name of [RESULTS_HTML, ...Object.keys(PAGE_ASSETS)]) expect(existsSync(join(dir, name)), name).toBe(true);
     // Every file the page loads is in the served list.

@@ -16,7 +16,7 @@
 import { request as httpRequest } from 'node:http';
 import type { InjectOptions } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import type { Scope } from '../../server/db/types.js';
+import type { Scope } from '../../server/store/types.js';
 import { startTestApp, waterBillDefinition, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 type Variant = 'no key' | 'malformed header' | 'unknown key' | 'revoked key' | 'ingest key' | 'read key' | 'admin key' | 'key limited to another experiment';

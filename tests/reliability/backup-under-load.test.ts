@@ -8,8 +8,8 @@
  */
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { checkFile } from '../../server/backup.js';
-import { openDatabase } from '../../server/db/open.js';
+import { checkFile } from '../../server/store/sqlite/check.js';
+import { openDatabase } from '../../server/store/sqlite/open.js';
 import { cli, startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;

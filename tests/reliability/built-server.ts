@@ -3,6 +3,7 @@
  * reliability tests. `npm test` compiles first, so dist/ exists there; when it does not (vitest run alone on a
  * clean checkout), the tests that need it are skipped with a loud message instead of testing stale code silently.
  */
+import { waterBillDefinition } from '../helpers/water.js';
 import { spawn, type ChildProcessByStdio } from 'node:child_process';
 import { existsSync } from 'node:fs';
 import { createServer } from 'node:net';
@@ -10,7 +11,7 @@ import { join } from 'node:path';
 import type { Readable } from 'node:stream';
 import { fileURLToPath } from 'node:url';
 
-export const ROOT = fileURLToPath(new URL('../../', import.meta.url));
+export const ROOT = fileURLToPath(new URL('../..', import.meta.url));
 export const MAIN_JS = join(ROOT, 'dist', 'server', 'main.js');
 export const HAVE_DIST = existsSync(MAIN_JS);
 
@@ -109,18 +110,11 @@ export async function runBuiltCli(args: string[], env: Record<string, string>): 
 
 export const AUTH = { authorization: `Bearer ${ADMIN_SECRET}` };
 
-/** The demo experiment with one integer measure required (cheap to post many of). */
+/** The demo study (tests/helpers/water.ts) with only satisfaction required (cheap to post many of). */
 export function waterDefinition(): Record<string, unknown> {
-  return {
-    id: 'water-bill-2027',
-    title: 'Water utility survey 2027: bill first or service first?',
-    conditions: [{ id: 'bill-first' }, { id: 'service-first' }],
-    measures: [
-      { id: 'satisfaction', min: 0, max: 10, integer: true, required: true },
-      { id: 'trust', min: 1, max: 7, integer: true, required: false },
-      { id: 'fair_price', min: 0, max: 200, integer: false, required: false },
-    ],
-  };
+  const base = waterBillDefinition();
+  const measures = (base.measures as { id: string }[]).map((m) => ({ ...m, required: m.id === 'satisfaction' }));
+  return { ...base, measures };
 }
 
 /** Deterministic invented answers for response number n. */

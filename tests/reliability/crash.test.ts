@@ -11,7 +11,7 @@
  */
 import { dirname, join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { openDatabase } from '../../server/db/open.js';
+import { openDatabase } from '../../server/store/sqlite/open.js';
 import { tempDir } from '../helpers/app.js';
 import { answerFor, AUTH, HAVE_DIST, postJson, runBuiltCli, startBuiltServer, waterDefinition, warnIfNoDist, type BuiltServer } from './built-server.js';
 

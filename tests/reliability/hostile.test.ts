@@ -18,7 +18,7 @@ import { connect } from 'node:net';
 import fc from 'fast-check';
 import type { InjectOptions, LightMyRequestResponse } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { checkDatabase } from '../../server/backup.js';
+import { checkDatabase } from '../../server/store/sqlite/check.js';
 import { startTestApp, tempDir, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 const RUNS = 5200;

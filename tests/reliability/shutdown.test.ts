@@ -13,7 +13,7 @@ import { existsSync, statSync } from 'node:fs';
 import { connect, type Socket } from 'node:net';
 import { join } from 'node:path';
 import { afterEach, describe, expect, it } from 'vitest';
-import { openDatabase } from '../../server/db/open.js';
+import { openDatabase } from '../../server/store/sqlite/open.js';
 import { tempDir } from '../helpers/app.js';
 import { ADMIN_SECRET, answerFor, HAVE_DIST, postJson, runBuiltCli, startBuiltServer, waterDefinition, warnIfNoDist, type BuiltServer } from './built-server.js';
 

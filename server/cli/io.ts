@@ -1,0 +1,131 @@
+/**
+ * What every command of the `splitballot` command line shares: the CliIo it writes to, the help texts, the usage
+ * error (exit code 2) and how a command opens the database. The commands live one group per file beside this one
+ * (serve.ts, keys.ts, database.ts, import.ts); run.ts dispatches.
+ */
+import { SHUTDOWN_GRACE_DEFAULT_MS, type Config } from '../config.js';
+import { openSqliteStore, type SqliteStore } from '../store/sqlite/store.js';
+
+export interface CliIo {
+  stdout: { write(text: string): unknown };
+  stderr: { write(text: string): unknown };
+  env: NodeJS.ProcessEnv;
+  /** For serve: resolves when the process should shut down (default: SIGTERM or SIGINT). */
+  shutdownSignal?: Promise<string>;
+}
+
+/** Default bound on the wait for in-flight requests at shutdown (SPLITBALLOT_SHUTDOWN_TIMEOUT overrides). */
+export const SHUTDOWN_GRACE_MS = SHUTDOWN_GRACE_DEFAULT_MS;
+
+const ENVIRONMENT_HELP = `Environment:
+  PORT                      port to listen on (default 8080)
+  HOST                      address to listen on (default 127.0.0.1)
+  SPLITBALLOT_DB            SQLite database file (default ./data/splitballot.db; the folder is created)
+  SPLITBALLOT_ADMIN_KEY     optional: this exact secret (32+ characters) is accepted as an admin key
+  SPLITBALLOT_CORS_ORIGINS  comma-separated browser origins allowed to call the API (default: none)
+  SPLITBALLOT_RATE_LIMIT_INGEST  ingest requests per minute per API key and client address (default 600; 0 = off)
+  SPLITBALLOT_REQUEST_TIMEOUT    seconds within which a whole request must arrive (default 60)
+  SPLITBALLOT_SHUTDOWN_TIMEOUT   seconds in-flight requests may take after SIGTERM (default 10)
+  SPLITBALLOT_BACKUP_DIR    folder for POST /v1/admin/backup (default: "backups" beside the database)
+  SPLITBALLOT_METRICS_TOKEN optional: a token (32+ characters) that may read GET /metrics and nothing else
+  SPLITBALLOT_TRUST_PROXY   proxies trusted for X-Forwarded-For: a hop count or addresses/CIDRs (default: none)
+  LOG_LEVEL                 fatal, error, warn, info (default), debug, trace or silent`;
+
+export const HELP: Record<string, string> = {
+  main: `Usage: splitballot <command> [options]
+
+Self-hosted results service for split-ballot survey experiments.
+
+Commands:
+  serve                 start the HTTP service (applies pending migrations first)
+  migrate               apply pending database migrations and exit
+  keys create           make an API key and print its secret once
+  keys list             list API keys (never their secrets)
+  keys revoke ID        revoke an API key at once
+  import                import responses from a CSV file
+  backup PATH           copy the database to PATH while the service keeps running
+  restore BACKUP        replace the database by a backup (the service must be stopped)
+  check                 verify the database: integrity and the stored counts
+
+Run "splitballot <command> --help" for a command's options.
+
+${ENVIRONMENT_HELP}
+`,
+  serve: `Usage: splitballot serve
+
+Start the HTTP service on HOST:PORT with the database SPLITBALLOT_DB. Pending migrations are applied first;
+an edited or missing applied migration stops start-up. If no admin key is configured and none exists, one is
+created and printed once. SIGTERM or SIGINT stop it gracefully: no new connections, in-flight requests finish
+(up to SPLITBALLOT_SHUTDOWN_TIMEOUT, default ${SHUTDOWN_GRACE_MS / 1000} s), the WAL is checkpointed and the
+database closed; exit code 0 (1 when requests had to be cut off; a second signal cuts them off at once).
+
+While it runs, serve holds an exclusive lock on SPLITBALLOT_DB.lock: a second serve on the same database and
+"splitballot restore" refuse to start. The operating system releases the lock when the process ends, however
+it ends, so a crash never leaves a stale lock.
+
+${ENVIRONMENT_HELP}
+`,
+  migrate: `Usage: splitballot migrate
+
+Apply pending migrations (migrations/sqlite/NNNN_*.sql, in name order, each in its own transaction) to SPLITBALLOT_DB
+and exit. Refuses, changing nothing, when an applied migration was edited or is missing.
+`,
+  keys: `Usage: splitballot keys <create|list|revoke> [options]
+
+  keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
+  keys list [--json]
+  keys revoke ID
+
+Run "splitballot keys <subcommand> --help" for details. Works on SPLITBALLOT_DB while the service runs.
+`,
+  backup: `Usage: splitballot backup PATH
+
+Copy SPLITBALLOT_DB to PATH with SQLite's online backup API. The service may keep running and ingesting: the
+copy is one consistent state that holds every response acknowledged before the backup started. PATH must not
+exist; the copy is written next to it under a temporary name and renamed when complete (and fsync'ed), then
+checked (integrity and counts). Progress on stderr, one summary line on stdout. Exit 0 ok, 1 failure.
+`,
+  restore: `Usage: splitballot restore BACKUP
+
+Replace SPLITBALLOT_DB by the backup file BACKUP. Refuses, changing nothing, when a server is running on the
+database (it holds SPLITBALLOT_DB.lock) or when the backup fails its check (integrity and counts). The current
+database (with its -wal file) is kept as SPLITBALLOT_DB.pre-restore-<time>; nothing is deleted. Progress on
+stderr, one summary line on stdout. Exit 0 ok, 1 refused or failed.
+`,
+  check: `Usage: splitballot check [--db FILE]
+
+Verify a database (default SPLITBALLOT_DB; --db to check a backup): PRAGMA integrity_check and
+foreign_key_check, then the counts the service keeps at ingest against the stored values: per-value counts
+(value_counts), per-condition response and excluded counters, each value's condition, excluded flag and limits,
+and every experiment's data version. Read-only; safe while the service runs. Prints one summary line; with
+problems, one line per problem on stderr and exit code 1.
+`,
+  'keys create': `Usage: splitballot keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
+
+Make an API key and print its secret on stdout, once (only its SHA-256 hash is stored).
+  --scope admin|ingest|read   admin: everything; ingest: post responses only; read: definitions and results
+  --experiment ID             limit the key to one experiment (it must exist)
+  --label TEXT                a note for "keys list", e.g. "panel form, wave 2"
+
+Example: KEY=$(splitballot keys create --scope ingest --experiment water-bill-2027 --label "web form")
+`,
+  'keys list': `Usage: splitballot keys list [--json]
+
+List API keys: id, scope, experiment, label, origin, created, last used (to the minute) and revoked times.
+Secrets are never shown (they are not stored).
+`,
+  'keys revoke': `Usage: splitballot keys revoke ID
+
+Revoke the key with this id (see "keys list"). Takes effect at once, also in a running service.
+`,
+};
+
+export class UsageError extends Error {}
+
+export function openStore(config: Config): SqliteStore {
+  return openSqliteStore(config.dbPath);
+}
+
+export function pad(s: string, n: number): string {
+  return s.length >= n ? s : s + ' '.repeat(n - s.length);
+}

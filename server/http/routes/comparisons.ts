@@ -1,0 +1,130 @@
+/**
+ * Comparisons over HTTP (read or admin keys): one measure and one pair, the whole family with adjusted p-values,
+ * and the distribution chart as SVG. Thin: resolve → stamp (one cheap query) → If-None-Match → service (cache or
+ * compute) → reply with a strong ETag and Cache-Control: private, no-cache. The service (server/services/comparisons/service.ts)
+ * holds the logic and the cache.
+ */
+import type { FastifyInstance } from 'fastify';
+import type { ZodTypeProvider } from 'fastify-type-provider-zod';
+import { z } from 'zod';
+import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
+import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
+import type { ExperimentRecord, Store } from '../../store/types.js';
+import { problems } from '../../schemas/common.js';
+import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
+import { ExperimentParams } from '../../schemas/responses.js';
+import { notModified } from '../conditional.js';
+import { SVG_CONTENT_TYPE } from '../page-assets.js';
+
+const ACCESS = { access: { scopes: ['read', 'admin'] as const, experimentParam: 'id' } };
+const NOT_MODIFIED = z.null().describe('Not modified: the If-None-Match tag is current (no body)');
+
+const POLLING =
+  'Every reply carries `dataVersion` and a strong `ETag`. Poll with `If-None-Match: <the ETag>`: while neither the data ' +
+  '(dataVersion), the refused-value counters nor the definition changed, the answer is 304 with no body and nothing is ' +
+  'recomputed. Results are cached per (experiment, measure, pair, options, dataVersion).';
+
+export async function comparisonRoutes(base: FastifyInstance, opts: { store: Store; comparisons: ComparisonService }): Promise<void> {
+  const app = base.withTypeProvider<ZodTypeProvider>();
+  const { store } = opts;
+  const service = opts.comparisons;
+
+  app.get(
+    '/v1/experiments/:id/comparisons',
+    {
+      config: ACCESS,
+      schema: {
+        tags: ['comparisons'],
+        summary: 'Every measure for the first pair (or every pair), with p-values adjusted across the family',
+        description:
+          'One entry per measure (definition order) and pair: the full comparison plus `adjusted` — Welch and rank-sum p-values ' +
+          'adjusted across the whole family with Holm (1979, family-wise error; default), Benjamini–Hochberg (1995, false ' +
+          'discovery rate) or none. ' +
+          POLLING,
+        params: ExperimentParams,
+        querystring: FamilyQuery,
+        response: { 200: FamilySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 500) },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const q = request.query;
+      const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust };
+      const stamp = await service.stamp(e);
+      if (notModified(request, reply, service.familyEtagFromStamp(e, options, stamp))) return reply;
+      const { body, etag } = await service.family(e, options, stamp);
+      reply.header('etag', etag);
+      return body;
+    },
+  );
+
+  app.get(
+    '/v1/experiments/:id/comparisons/:measure',
+    {
+      config: ACCESS,
+      schema: {
+        tags: ['comparisons'],
+        summary: 'Compare two conditions on one measure: both tests, estimates, effect sizes, quality flags, monitoring',
+        description:
+          'Welch and pooled t-tests, the Wilcoxon–Mann–Whitney rank-sum test, the Hodges–Lehmann shift, effect sizes, ' +
+          'Brunner–Munzel and Yuen–Welch, every difference a − b, plus quality flags in plain words and the interim ' +
+          'monitoring block. With exactly two conditions a and b default to the first and second. ' +
+          POLLING,
+        params: ComparisonParams,
+        querystring: ComparisonQuery,
+        response: { 200: ComparisonSchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 422, 500) },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
+      const options = toOptions(request.query);
+      const stamp = await service.stamp(e);
+      if (notModified(request, reply, service.etagOf(service.comparisonKey(target, options, stamp)))) return reply;
+      const { body, etag } = await service.comparison(target, options, stamp);
+      reply.header('etag', etag);
+      return body;
+    },
+  );
+
+  app.get(
+    '/v1/experiments/:id/comparisons/:measure/chart.svg',
+    {
+      config: ACCESS,
+      schema: {
+        tags: ['comparisons'],
+        summary: 'Box plot with every answer of two conditions on one measure (SVG)',
+        description:
+          'Box (quartiles), median line, mean diamond, whiskers at 1.5·IQR, every answer as a jittered dot (an evenly spaced ' +
+          'subsample above 2,000 per group); the axis runs over the scale from min to max. Same cache and ETag rules as the comparison.',
+        params: ComparisonParams,
+        querystring: ChartQuery,
+        produces: ['image/svg+xml'],
+        response: {
+          200: { description: 'An SVG image', content: { 'image/svg+xml': { schema: z.string() } } },
+          304: NOT_MODIFIED,
+          ...problems(400, 401, 403, 404, 422, 500),
+        },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
+      const includeExcluded = request.query.includeExcluded === 'true';
+      const stamp = await service.stamp(e);
+      if (notModified(request, reply, service.etagOf(service.chartKey(target, includeExcluded, stamp)))) return reply;
+      const { svg, etag } = await service.chart(target, includeExcluded, stamp);
+      return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
+    },
+  );
+}
+
+function resolveTarget(e: ExperimentRecord, measureId: string, a: string | undefined, b: string | undefined): ComparisonTarget {
+  const measure = resolveMeasure(e, measureId);
+  const [ca, cb] = comparisonPair(e, a, b);
+  return { experiment: e, measure, a: ca, b: cb };
+}
+
+function toOptions(q: { alternative: ComparisonOptions['alternative']; confidenceLevel: number; includeExcluded: 'true' | 'false' }): ComparisonOptions {
+  return { alternative: q.alternative, confidenceLevel: q.confidenceLevel, includeExcluded: q.includeExcluded === 'true' };
+}

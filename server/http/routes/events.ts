@@ -1,0 +1,211 @@
+/**
+ * GET /v1/experiments/{id}/events (read or admin key): Server-Sent Events announcing data changes.
+ *
+ *   retry: 5000                      (reconnect hint, once)
+ *   data: {"dataVersion":12}         (at once: the current version; then whenever it changes)
+ *   : keep-alive                     (a comment every 15 s, so proxies keep the connection open)
+ *
+ * One shared timer per experiment that has listeners (not one per client) reads the experiment's dataVersion
+ * once a second from the store, so changes made by another process on the same database (the `splitballot
+ * import` CLI) are seen too, and a client gets at most one event per second however fast data arrive. The timer
+ * stops when the last listener of that experiment leaves. Streams end when the client disconnects, when the
+ * experiment disappears, and when the app closes (preClose), so a graceful shutdown is not held up by them.
+ *
+ * The reply is a stream sent through fastify (not hijacked), so CORS and the security headers apply as for
+ * every other route. Browsers' EventSource cannot send an Authorization header: the results page reads the
+ * stream with fetch() instead; any other client (curl -N, a dashboard) sends the header normally.
+ */
+import { PassThrough } from 'node:stream';
+import type { FastifyInstance } from 'fastify';
+import type { ZodTypeProvider } from 'fastify-type-provider-zod';
+import { z } from 'zod';
+import type { Store } from '../../store/types.js';
+import { ProblemError } from '../../errors.js';
+import { problems } from '../../schemas/common.js';
+import { ExperimentParams } from '../../schemas/responses.js';
+import { loadExperiment } from '../../services/targets.js';
+
+export const POLL_INTERVAL_MS = 1000;
+export const HEARTBEAT_INTERVAL_MS = 15_000;
+export const RECONNECT_HINT_MS = 5000;
+/** Open event streams per process; one more is refused with 503. */
+export const MAX_EVENT_STREAMS = 1000;
+
+export interface EventTimings {
+  pollMs?: number;
+  heartbeatMs?: number;
+}
+
+interface Listener {
+  /** Called with each new dataVersion (or null when the experiment is gone). */
+  version(v: number | null): void;
+  heartbeat(): void;
+}
+
+interface Watch {
+  listeners: Set<Listener>;
+  last: number | null;
+  pollTimer: NodeJS.Timeout;
+  heartbeatTimer: NodeJS.Timeout;
+  polling: boolean;
+}
+
+/** Shared polling of dataVersion: one timer per experiment with listeners. */
+export class DataVersionWatcher {
+  private readonly watches = new Map<number, Watch>();
+
+  constructor(
+    private readonly store: Store,
+    private readonly timings: Required<EventTimings>,
+    private readonly onError: (err: unknown) => void,
+  ) {}
+
+  /** Number of experiments being polled (for tests). */
+  get watchedExperiments(): number {
+    return this.watches.size;
+  }
+
+  subscribe(experimentKey: number, initial: number, listener: Listener): () => void {
+    let w = this.watches.get(experimentKey);
+    if (!w) {
+      const watch: Watch = {
+        listeners: new Set(),
+        last: initial,
+        polling: false,
+        pollTimer: setInterval(() => void this.poll(experimentKey, watch), this.timings.pollMs),
+        heartbeatTimer: setInterval(() => {
+          for (const l of watch.listeners) l.heartbeat();
+        }, this.timings.heartbeatMs),
+      };
+      watch.pollTimer.unref();
+      watch.heartbeatTimer.unref();
+      this.watches.set(experimentKey, watch);
+      w = watch;
+    }
+    w.listeners.add(listener);
+    const watch = w;
+    return () => {
+      watch.listeners.delete(listener);
+      if (watch.listeners.size === 0 && this.watches.get(experimentKey) === watch) this.stop(experimentKey, watch);
+    };
+  }
+
+  private stop(experimentKey: number, watch: Watch): void {
+    clearInterval(watch.pollTimer);
+    clearInterval(watch.heartbeatTimer);
+    this.watches.delete(experimentKey);
+  }
+
+  private async poll(experimentKey: number, watch: Watch): Promise<void> {
+    if (watch.polling) return; // the previous read has not come back yet
+    watch.polling = true;
+    try {
+      const v = await this.store.experiments.getDataVersion(experimentKey);
+      if (v !== watch.last) {
+        watch.last = v;
+        for (const l of [...watch.listeners]) l.version(v);
+      }
+    } catch (err) {
+      this.onError(err);
+    } finally {
+      watch.polling = false;
+    }
+  }
+
+  closeAll(): void {
+    for (const [key, w] of [...this.watches]) {
+      for (const l of [...w.listeners]) l.version(null);
+      this.stop(key, w);
+    }
+  }
+}
+
+export async function eventRoutes(base: FastifyInstance, opts: { store: Store; timings?: EventTimings }): Promise<void> {
+  const app = base.withTypeProvider<ZodTypeProvider>();
+  const { store } = opts;
+  const timings = { pollMs: opts.timings?.pollMs ?? POLL_INTERVAL_MS, heartbeatMs: opts.timings?.heartbeatMs ?? HEARTBEAT_INTERVAL_MS };
+  const watcher = new DataVersionWatcher(store, timings, (err) => app.log.error({ err }, 'event stream: reading the data version failed'));
+  const open = new Set<PassThrough>();
+  let closing = false;
+
+  const endAll = async () => {
+    closing = true;
+    watcher.closeAll();
+    for (const s of [...open]) s.end();
+  };
+  app.addHook('preClose', endAll);
+  app.addHook('onClose', endAll);
+
+  app.get(
+    '/v1/experiments/:id/events',
+    {
+      config: { access: { scopes: ['read', 'admin'], experimentParam: 'id' } },
+      schema: {
+        tags: ['events'],
+        summary: 'Live updates: a Server-Sent Events stream of the data version',
+        description:
+          'A `text/event-stream` that sends `data: {"dataVersion":N}` at once and again whenever the experiment\'s data change ' +
+          '(new, excluded or erased responses, also from a CSV import in another process), at most once a second; a comment line ' +
+          '(`: keep-alive`) every 15 s; and `retry: 5000` as the reconnect hint. Refresh comparisons when N differs from the ' +
+          'dataVersion you hold. The stream stays open until the client disconnects or the service shuts down. Example: ' +
+          '`curl -N -H "Authorization: Bearer $KEY" http://127.0.0.1:8080/v1/experiments/water-bill-2027/events`.',
+        params: ExperimentParams,
+        response: {
+          200: {
+            description: 'Event stream (stays open)',
+            content: {
+              'text/event-stream': {
+                schema: z.string().meta({ example: 'retry: 5000\n\ndata: {"dataVersion":12}\n\n: keep-alive\n\ndata: {"dataVersion":14}\n\n' }),
+              },
+            },
+          },
+          ...problems(400, 401, 403, 404, 500, 503),
+        },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      if (closing) throw new ProblemError('unavailable', 'The service is shutting down.');
+      if (open.size >= MAX_EVENT_STREAMS) {
+        throw new ProblemError('unavailable', `Too many open event streams (${MAX_EVENT_STREAMS}); try again later.`, { headers: { 'retry-after': '30' } });
+      }
+      const initial = (await store.experiments.getDataVersion(e.key)) ?? e.dataVersion;
+      const stream = new PassThrough();
+      open.add(stream);
+      let sent = initial;
+      const unsubscribe = watcher.subscribe(e.key, initial, {
+        version(v) {
+          if (v === null) {
+            stream.end();
+            return;
+          }
+          if (v !== sent) {
+            sent = v;
+            stream.write(`data: ${JSON.stringify({ dataVersion: v })}\n\n`);
+          }
+        },
+        heartbeat() {
+          stream.write(': keep-alive\n\n');
+        },
+      });
+      const cleanup = () => {
+        unsubscribe();
+        open.delete(stream);
+        if (!stream.writableEnded) stream.end();
+      };
+      reply.raw.once('close', cleanup);
+      stream.once('end', () => {
+        unsubscribe();
+        open.delete(stream);
+      });
+      stream.write(`retry: ${RECONNECT_HINT_MS}\n\n`);
+      stream.write(`data: ${JSON.stringify({ dataVersion: initial })}\n\n`);
+      reply
+        .code(200)
+        .type('text/event-stream; charset=utf-8')
+        .header('cache-control', 'no-store')
+        .header('x-accel-buffering', 'no');
+      return reply.send(stream as unknown as string);
+    },
+  );
+}

@@ -1,0 +1,164 @@
+/**
+ * Experiments: create (admin), list and read (read or admin; the definition plus counts per condition),
+ * change (admin). Thin: parse → repository → reply.
+ */
+import type { FastifyInstance } from 'fastify';
+import type { ZodTypeProvider } from 'fastify-type-provider-zod';
+import type { ExperimentRecord, Store } from '../../store/types.js';
+import { ProblemError, RequestValidationError } from '../../errors.js';
+import { problems } from '../../schemas/common.js';
+import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
+import { ExperimentParams } from '../../schemas/responses.js';
+import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+
+export function experimentView(e: ExperimentRecord): ExperimentView {
+  let responses = 0;
+  let excluded = 0;
+  for (const c of e.conditions) {
+    responses += c.responses;
+    excluded += c.excluded;
+  }
+  return {
+    id: e.id,
+    title: e.title,
+    status: e.status,
+    conditions: e.conditions.map((c) => ({ id: c.id, label: c.label })),
+    measures: e.measures.map((m) => ({ id: m.id, label: m.label, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+    plannedPerCondition: e.plannedPerCondition,
+    alpha: e.alpha,
+    thankYouUrl: e.thankYouUrl,
+    flagThresholds: (e.options.flagThresholds as ExperimentView['flagThresholds']) ?? null,
+    monitoring: (e.options.monitoring as ExperimentView['monitoring']) ?? null,
+    allocation: (e.options.allocation as ExperimentView['allocation']) ?? null,
+    dataVersion: e.dataVersion,
+    createdAt: e.createdAt,
+    updatedAt: e.updatedAt,
+    counts: {
+      responses,
+      excluded,
+      byCondition: e.conditions.map((c) => ({ condition: c.id, responses: c.responses, excluded: c.excluded })),
+    },
+  };
+}
+
+export async function experimentRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
+  const app = base.withTypeProvider<ZodTypeProvider>();
+  const { store } = opts;
+
+  app.post(
+    '/v1/experiments',
+    {
+      config: { access: { scopes: ['admin'], allowExperimentLimited: false } },
+      schema: {
+        tags: ['experiments'],
+        summary: 'Create an experiment',
+        body: ExperimentInputSchema,
+        response: { 201: ExperimentSchema, ...problems(400, 401, 403, 409, 413, 415, 422, 500) },
+      },
+    },
+    async (request, reply) => {
+      const b = request.body;
+      const result = await store.experiments.create({
+        id: b.id,
+        title: b.title,
+        conditions: b.conditions.map((c) => ({ id: c.id, label: c.label ?? c.id })),
+        measures: b.measures.map((m) => ({ id: m.id, label: m.label ?? m.id, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+        plannedPerCondition: b.plannedPerCondition ?? null,
+        alpha: b.alpha,
+        thankYouUrl: b.thankYouUrl ?? null,
+        options: {
+          ...(b.flagThresholds ? { flagThresholds: b.flagThresholds } : {}),
+          ...(b.monitoring ? { monitoring: b.monitoring } : {}),
+          ...(b.allocation ? { allocation: b.allocation } : {}),
+        },
+      });
+      if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);
+      reply.code(201).header('location', `/v1/experiments/${result.experiment.id}`);
+      return experimentView(result.experiment);
+    },
+  );
+
+  app.get(
+    '/v1/experiments',
+    {
+      config: { access: { scopes: ['admin', 'read'] } },
+      schema: {
+        tags: ['experiments'],
+        summary: 'List experiments (a key limited to one experiment sees only that one)',
+        response: { 200: ExperimentListSchema, ...problems(401, 403, 500) },
+      },
+    },
+    async (request) => {
+      const list = await store.experiments.list(request.principal?.experimentKey ?? null);
+      return { experiments: list.map(experimentView) };
+    },
+  );
+
+  app.get(
+    '/v1/experiments/:id',
+    {
+      config: { access: { scopes: ['admin', 'read'], experimentParam: 'id' } },
+      schema: {
+        tags: ['experiments'],
+        summary: 'An experiment: its definition and counts per condition',
+        params: ExperimentParams,
+        response: { 200: ExperimentSchema, ...problems(400, 401, 403, 404, 500) },
+      },
+    },
+    async (request) => {
+      const e = await loadExperiment(store, request.params.id);
+      return experimentView(e);
+    },
+  );
+
+  app.patch(
+    '/v1/experiments/:id',
+    {
+      config: { access: { scopes: ['admin'], experimentParam: 'id' } },
+      schema: {
+        tags: ['experiments'],
+        summary: "Change an experiment's title, status, planned size, alpha, thank-you URL or measures",
+        params: ExperimentParams,
+        body: ExperimentPatchSchema,
+        response: { 200: ExperimentSchema, ...problems(400, 401, 403, 404, 409, 413, 415, 422, 500) },
+      },
+    },
+    async (request) => {
+      const e = await loadExperiment(store, request.params.id);
+      const patch = request.body;
+      const unknown = (patch.measures ?? [])
+        .map((m, i) => ({ m, i }))
+        .filter(({ m }) => !e.measures.some((x) => x.id === m.id))
+        .map(({ m, i }) => ({ path: `measures[${i}].id`, message: `is not a measure of this experiment`, value: m.id }));
+      if (unknown.length > 0) throw new RequestValidationError('body', unknown);
+      const { flagThresholds, ...rest } = patch;
+      const result = await store.experiments.update(
+        e.key,
+        { ...rest, ...(flagThresholds !== undefined ? { options: { flagThresholds } } : {}) },
+        new Date().toISOString(),
+      );
+      switch (result.kind) {
+        case 'updated':
+          return experimentView(result.experiment);
+        case 'not-found':
+          throw experimentNotFound(request.params.id);
+        case 'limits-locked':
+          throw new ProblemError(
+            'limits-locked',
+            `The limits (min, max, integer) of ${result.measures.map((m) => m.id).join(', ')} cannot change: the measure already has stored values.`,
+            {
+              errors: result.measures.map((m) => ({
+                path: `measures[${(patch.measures ?? []).findIndex((p) => p.id === m.id)}]`,
+                message: `${m.id} already has ${m.values} stored value${m.values === 1 ? '' : 's'}; its limits cannot change`,
+              })),
+            },
+          );
+        case 'invalid-limits':
+          throw new RequestValidationError(
+            'body',
+            result.measures.map((m) => ({ path: `measures[${(patch.measures ?? []).findIndex((p) => p.id === m.id)}]`, message: m.message })),
+          );
+      }
+    },
+  );
+}

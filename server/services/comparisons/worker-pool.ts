@@ -1,0 +1,225 @@
+/**
+ * The heavy path of a comparison off the main thread (issue 8, benchmark 6: ingest keeps answering while a large
+ * continuous comparison is computed).
+ *
+ * A small pool of worker threads (node:worker_threads; one by default on a 2-core machine, at most 2) does two
+ * kinds of task:
+ *   read     every sorted run of a continuous measure that a snapshot needs, read whole by the store engine's own
+ *            worker module (SortedRunsReader.workerReads in store/types.ts: for SQLite, store/sqlite/worker-reads.ts
+ *            on the thread's own read-only connection, in ONE read transaction with the dataVersion and counters);
+ *            the arrays live on SharedArrayBuffers, so the main thread keeps them in the engine's cache without a
+ *            copy. The module is named by the store at run time, so this file knows no engine;
+ *   compare  fromSortedValues on the two groups, compareSamples and computeFlags: pure stats/, plain objects back.
+ * The main thread decides what goes to a worker (service.ts: runs of at least the configured minimum of values);
+ * small comparisons stay in-thread, where posting a message would cost more than the work.
+ *
+ * Failures: a worker that cannot start or open the database, or that throws, makes the caller run the same code
+ * in-thread (so a real error, e.g. a RangeError from stats/, surfaces exactly as it would without workers).
+ * Workers are unref'd while idle, so they never keep a process alive.
+ */
+import { existsSync } from 'node:fs';
+import os from 'node:os';
+import { fileURLToPath } from 'node:url';
+import { isMainThread, parentPort, Worker, workerData } from 'node:worker_threads';
+import { computeFlags, type Flag, type FlagContext } from '../../../stats/flags.js';
+import { compareSamples, fromSortedValues, type Alternative, type Comparison } from '../../../stats/index.js';
+import type { RunsSnapshot } from '../../store/types.js';
+
+export interface ReadTask {
+  kind: 'read';
+  /** The engine's worker module (a file URL exporting readRunsInWorker) and the source it opens. */
+  module: string;
+  source: string;
+  measureKey: number;
+  conditionKeys: number[];
+  includeExcluded: boolean;
+}
+
+export interface CompareTask {
+  kind: 'compare';
+  a: Float64Array;
+  b: Float64Array;
+  alternative: Alternative;
+  confidenceLevel: number;
+  flagContext: FlagContext;
+}
+
+export interface CompareResult {
+  cmp: Comparison;
+  flags: readonly Flag[];
+}
+
+type Task = ReadTask | CompareTask;
+
+/** The same values on a SharedArrayBuffer (as they are when already shared), so a worker reads them without a copy. O(n). */
+export function shareable(x: Float64Array): Float64Array {
+  if (x.buffer instanceof SharedArrayBuffer) return x;
+  const out = new Float64Array(new SharedArrayBuffer(x.length * Float64Array.BYTES_PER_ELEMENT));
+  out.set(x);
+  return out;
+}
+type Reply = { id: number; ok: true; result: unknown } | { id: number; ok: false; message: string };
+
+/** The stats part of a comparison (also what the main thread runs in-thread). */
+export function compareSorted(task: Omit<CompareTask, 'kind'>): CompareResult {
+  const a = fromSortedValues(task.a, 'a');
+  const b = fromSortedValues(task.b, 'b');
+  const cmp = compareSamples(a, b, { alternative: task.alternative, confidenceLevel: task.confidenceLevel });
+  const flags = computeFlags(cmp, { a, b }, task.flagContext, task.alternative);
+  return { cmp, flags };
+}
+
+// ───────────────────────────── inside a worker ─────────────────────────────
+
+const WORKER_MARK = 'splitballot-compare-worker';
+
+if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_MARK) {
+  type ReadRuns = (source: string, measureKey: number, conditionKeys: number[], includeExcluded: boolean) => RunsSnapshot;
+  const readers = new Map<string, Promise<ReadRuns>>();
+  const readerFor = (module: string): Promise<ReadRuns> => {
+    let r = readers.get(module);
+    if (!r) {
+      r = import(module).then((m: { readRunsInWorker: ReadRuns }) => m.readRunsInWorker);
+      readers.set(module, r);
+    }
+    return r;
+  };
+  parentPort!.on('message', async (msg: { id: number; task: Task }) => {
+    let reply: Reply;
+    try {
+      const t = msg.task;
+      const result: unknown =
+        t.kind === 'read' ? (await readerFor(t.module))(t.source, t.measureKey, t.conditionKeys, t.includeExcluded) : compareSorted(t);
+      reply = { id: msg.id, ok: true, result };
+    } catch (err) {
+      reply = { id: msg.id, ok: false, message: err instanceof Error ? `${err.name}: ${err.message}` : String(err) };
+    }
+    parentPort!.postMessage(reply);
+  });
+}
+
+// ───────────────────────────── the pool (main thread) ─────────────────────────────
+
+interface Slot {
+  worker: Worker;
+  pending: Map<number, { resolve: (v: unknown) => void; reject: (e: Error) => void }>;
+  dead: boolean;
+}
+
+/**
+ * How to start a worker: the compiled file next to this one (dist/server/services/comparisons/worker-pool.js); when only the sources
+ * exist (tests under vitest, scripts under tsx) the .ts file, loaded through tsx's ESM API inside the worker (a
+ * worker does not inherit the parent's loader hooks).
+ */
+function workerEntry(): { code: string | URL; eval: boolean } | null {
+  const js = new URL('./worker-pool.js', import.meta.url);
+  if (existsSync(fileURLToPath(js))) return { code: js, eval: false };
+  const ts = new URL('./worker-pool.ts', import.meta.url);
+  if (!existsSync(fileURLToPath(ts))) return null;
+  const code = `import('tsx/esm/api').then((api) => { api.register(); return import(${JSON.stringify(ts.href)}); })`;
+  return { code, eval: true };
+}
+
+export class ComparePool {
+  private readonly slots: Slot[] = [];
+  private nextId = 1;
+  private turn = 0;
+  private unavailable = false;
+  private deaths = 0;
+  /** Tasks run in a worker, and tasks that fell back to the main thread (for tests and benchmarks). */
+  readonly stats = { tasks: 0, fallbacks: 0 };
+
+  constructor(readonly size: number = Math.min(2, Math.max(1, os.cpus().length - 1))) {}
+
+  /** Run a task in a worker; rejects when no worker can run it (the caller then runs it in-thread). */
+  run(task: ReadTask): Promise<RunsSnapshot>;
+  run(task: CompareTask): Promise<CompareResult>;
+  run(task: Task): Promise<unknown> {
+    const slot = this.slot();
+    if (!slot) return Promise.reject(new Error('no comparison worker available'));
+    const id = this.nextId++;
+    return new Promise((resolve, reject) => {
+      slot.pending.set(id, { resolve, reject });
+      slot.worker.ref();
+      this.stats.tasks++;
+      slot.worker.postMessage({ id, task });
+    });
+  }
+
+  /** Run in a worker, or in-thread with `fallback` when the worker fails. */
+  async runOr<T>(task: Task, fallback: () => T): Promise<T> {
+    try {
+      return (await this.run(task as ReadTask & CompareTask)) as T;
+    } catch {
+      this.stats.fallbacks++;
+      return fallback();
+    }
+  }
+
+  private slot(): Slot | null {
+    if (this.unavailable) return null;
+    const live = this.slots.filter((s) => !s.dead);
+    if (live.length < this.size) {
+      const s = this.spawn();
+      if (s) return s;
+      if (live.length === 0) return null;
+    }
+    // The least busy live worker (ties: round robin).
+    let best: Slot | null = null;
+    for (let i = 0; i < live.length; i++) {
+      const s = live[(this.turn + i) % live.length];
+      if (!best || s.pending.size < best.pending.size) best = s;
+    }
+    this.turn++;
+    return best;
+  }
+
+  private spawn(): Slot | null {
+    const entry = workerEntry();
+    if (!entry) {
+      this.unavailable = true;
+      return null;
+    }
+    let worker: Worker;
+    try {
+      worker = new Worker(entry.code, { workerData: { mark: WORKER_MARK }, eval: entry.eval });
+    } catch {
+      this.unavailable = true;
+      return null;
+    }
+    const slot: Slot = { worker, pending: new Map(), dead: false };
+    const failAll = (err: Error): void => {
+      if (!slot.dead && ++this.deaths >= 3) this.unavailable = true; // a worker that keeps dying: stay in-thread
+      slot.dead = true;
+      for (const p of slot.pending.values()) p.reject(err);
+      slot.pending.clear();
+    };
+    worker.on('message', (reply: Reply) => {
+      const p = slot.pending.get(reply.id);
+      if (!p) return;
+      slot.pending.delete(reply.id);
+      if (slot.pending.size === 0) worker.unref();
+      if (reply.ok) p.resolve(reply.result);
+      else p.reject(new Error(reply.message));
+    });
+    worker.on('error', (err) => failAll(err instanceof Error ? err : new Error(String(err))));
+    worker.on('exit', () => failAll(new Error('comparison worker exited')));
+    worker.unref();
+    this.slots.push(slot);
+    return slot;
+  }
+
+  /** Stop every worker (tests; a server that closes). */
+  async close(): Promise<void> {
+    const all = this.slots.splice(0);
+    await Promise.all(all.map((s) => s.worker.terminate().catch(() => 0)));
+  }
+}
+
+let shared: ComparePool | null = null;
+
+/** The process-wide pool (created on first use). */
+export function sharedComparePool(): ComparePool {
+  if (!shared) shared = new ComparePool();
+  return shared;
+}

@@ -1,0 +1,164 @@
+/**
+ * Exclusion, restoration and erasure of responses in SQLite, each ONE write transaction that keeps the invariants
+ * (value_counts moved or decremented, condition counters, dataVersion + 1, an audit row). Part of the response
+ * repository (responses.ts is the facade).
+ */
+import { AuditWriter } from './audit.js';
+import type { SqliteDatabase } from './open.js';
+import type {
+  ErasureOutcome,
+  ExclusionOutcome,
+} from '../types.js';
+
+
+/** Exclusion, restoration and erasure: each ONE write transaction keeping the invariants (see responses.ts). */
+export class SqliteExclusionWriter {
+  private readonly experimentState;
+  private readonly bumpVersion;
+  private readonly responseForExclusion;
+  private readonly integerValuesOf;
+  private readonly setResponseExcluded;
+  private readonly setValuesExcluded;
+  private readonly decrementCount;
+  private readonly deleteEmptyCount;
+  private readonly incrementCount;
+  private readonly bumpExcluded;
+  private readonly responsesOfRespondent;
+  private readonly deleteValuesOf;
+  private readonly deleteResponse;
+  private readonly dropCondition;
+  private readonly audit: AuditWriter;
+  private readonly exclusionTx;
+  private readonly erasureTx;
+
+  constructor(db: SqliteDatabase) {
+    this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
+      `SELECT status, data_version FROM experiments WHERE id = ?`,
+    );
+    this.bumpVersion = db
+      .prepare<[number], number>(`UPDATE experiments SET data_version = data_version + 1 WHERE id = ? RETURNING data_version`)
+      .pluck();
+    this.responseForExclusion = db.prepare<
+      [number, string],
+      { id: number; condition_id: number; condition: string; excluded: number; excluded_reason: string | null }
+    >(
+      `SELECT r.id, r.condition_id, c.slug AS condition, r.excluded, r.excluded_reason
+       FROM responses r JOIN conditions c ON c.id = r.condition_id WHERE r.experiment_id = ? AND r.response_id = ?`,
+    );
+    this.integerValuesOf = db
+      .prepare<[number], [number, number]>(
+        `SELECT v.measure_id, v.value FROM response_values v JOIN measures m ON m.id = v.measure_id
+         WHERE v.response_id = ? AND m.is_integer = 1`,
+      )
+      .raw();
+    this.setResponseExcluded = db.prepare<[number, string | null, number]>(`UPDATE responses SET excluded = ?, excluded_reason = ? WHERE id = ?`);
+    this.setValuesExcluded = db.prepare<[number, number]>(`UPDATE response_values SET excluded = ? WHERE response_id = ?`);
+    this.decrementCount = db.prepare<[number, number, number, number, number]>(
+      `UPDATE value_counts SET count = count - ? WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ?`,
+    );
+    this.deleteEmptyCount = db.prepare<[number, number, number, number]>(
+      `DELETE FROM value_counts WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND count = 0`,
+    );
+    this.incrementCount = db.prepare<[number, number, number, number, number]>(
+      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, ?, ?, ?)
+       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
+    );
+    this.bumpExcluded = db.prepare<[number, number]>(`UPDATE conditions SET excluded_count = excluded_count + ? WHERE id = ?`);
+    this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
+      `SELECT id, response_id, condition_id, excluded FROM responses WHERE experiment_id = ? AND respondent = ?`,
+    );
+    this.deleteValuesOf = db.prepare<[number]>(`DELETE FROM response_values WHERE response_id = ?`);
+    this.deleteResponse = db.prepare<[number]>(`DELETE FROM responses WHERE id = ?`);
+    this.dropCondition = db.prepare<[number, number, number]>(
+      `UPDATE conditions SET response_count = response_count - ?, excluded_count = excluded_count - ? WHERE id = ?`,
+    );
+    this.audit = new AuditWriter(db);
+    this.exclusionTx = db.transaction(
+      (experimentKey: number, responseId: string, change: { excluded: boolean; reason: string | null }, apiKeyId: number | null, at: string): ExclusionOutcome => {
+        const state = this.experimentState.get(experimentKey);
+        if (!state) return { kind: 'not-found' };
+        const row = this.responseForExclusion.get(experimentKey, responseId);
+        if (!row) return { kind: 'not-found' };
+        const target = change.excluded ? 1 : 0;
+        if (row.excluded === target) {
+          return {
+            kind: 'unchanged',
+            responseId,
+            condition: row.condition,
+            excluded: row.excluded === 1,
+            reason: row.excluded_reason,
+            dataVersion: state.data_version,
+          };
+        }
+        const from = row.excluded as 0 | 1;
+        const reason = change.excluded ? change.reason : null;
+        this.setResponseExcluded.run(target, reason, row.id);
+        this.setValuesExcluded.run(target, row.id);
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, from, target);
+        this.bumpExcluded.run(change.excluded ? 1 : -1, row.condition_id);
+        const dataVersion = this.bumpVersion.get(experimentKey) as number;
+        this.audit.record({
+          experimentKey,
+          action: change.excluded ? 'exclude' : 'restore',
+          responseId,
+          // A restoration records the reason the response had been excluded for.
+          reason: change.excluded ? change.reason : row.excluded_reason,
+          count: 1,
+          apiKeyId,
+          at,
+          dataVersion,
+        });
+        return { kind: 'changed', responseId, condition: row.condition, excluded: change.excluded, reason, dataVersion };
+      },
+    );
+
+    this.erasureTx = db.transaction((experimentKey: number, respondent: string, apiKeyId: number | null, at: string): ErasureOutcome => {
+      const state = this.experimentState.get(experimentKey);
+      if (!state) return { kind: 'not-found' };
+      const rows = this.responsesOfRespondent.all(experimentKey, respondent);
+      const perCondition = new Map<number, { responses: number; excluded: number }>();
+      for (const row of rows) {
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, row.excluded as 0 | 1, null);
+        this.deleteValuesOf.run(row.id);
+        this.deleteResponse.run(row.id);
+        this.audit.redactResponse(experimentKey, row.response_id);
+        const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
+        c.responses += 1;
+        c.excluded += row.excluded;
+        perCondition.set(row.condition_id, c);
+      }
+      for (const [conditionKey, c] of perCondition) this.dropCondition.run(c.responses, c.excluded, conditionKey);
+      const dataVersion = rows.length > 0 ? (this.bumpVersion.get(experimentKey) as number) : state.data_version;
+      // Only the count and the time (and the key that asked): nothing that identifies the respondent.
+      this.audit.record({ experimentKey, action: 'erase', responseId: null, reason: null, count: rows.length, apiKeyId, at, dataVersion });
+      return { kind: 'erased', erased: rows.length, dataVersion };
+    });
+
+  }
+
+
+  /**
+   * Move one answer's per-value count from excluded = `from` to excluded = `to` (null: remove it, for erasure).
+   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values.
+   */
+  private moveCount(measureKey: number, conditionKey: number, value: number, from: 0 | 1, to: 0 | 1 | null): void {
+    const changed = this.decrementCount.run(1, measureKey, conditionKey, from, value).changes;
+    if (changed !== 1) throw new Error(`value_counts has no row for measure ${measureKey}, condition ${conditionKey}, excluded ${from}, value ${value}`);
+    this.deleteEmptyCount.run(measureKey, conditionKey, from, value);
+    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1);
+  }
+
+  async setExcluded(
+    experimentKey: number,
+    responseId: string,
+    change: { excluded: boolean; reason: string | null },
+    apiKeyId: number | null,
+    at: string,
+  ): Promise<ExclusionOutcome> {
+    return this.exclusionTx.immediate(experimentKey, responseId, change, apiKeyId, at);
+  }
+
+  async eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome> {
+    return this.erasureTx.immediate(experimentKey, respondent, apiKeyId, at);
+  }
+}

@@ -1,0 +1,436 @@
+/**
+ * The storage interface that routes call. Nothing here names SQLite or better-sqlite3: a PostgreSQL-backed store
+ * for multi-node deployments can implement the same interfaces later. Every method returns a Promise for that
+ * reason, although the SQLite store answers synchronously inside.
+ *
+ * Keys: every record carries `key`, the store's integer surrogate key, used between the store and its callers
+ * (routes resolve a slug once, then pass keys). Outside the service only slugs appear.
+ *
+ * Invariants every implementation keeps inside the transaction that changes the data:
+ *  - experiments.dataVersion moves forward (by one) with every committed change to the responses
+ *    (accepted responses, exclusions, erasures); a repeated (idempotent) response does not move it;
+ *  - per-condition response and excluded counts match the responses;
+ *  - for integer measures, per-value counts (by condition and excluded flag) match the stored values.
+ */
+
+import type { AssignmentRepository, LookRepository } from './monitoring-types.js';
+
+export type Scope = 'admin' | 'ingest' | 'read';
+export type ExperimentStatus = 'open' | 'closed';
+
+/** Why a value was refused at ingest. Counted per (experiment, measure, reason). */
+export type RejectionReason = 'out_of_range' | 'not_integer' | 'not_a_number' | 'not_finite' | 'too_many_digits';
+
+export interface ConditionRecord {
+  key: number;
+  id: string;
+  label: string;
+  position: number;
+  /** Stored responses in this condition (excluded ones included). */
+  responses: number;
+  /** How many of those are excluded. */
+  excluded: number;
+}
+
+export interface MeasureRecord {
+  key: number;
+  id: string;
+  label: string;
+  min: number;
+  max: number;
+  integer: boolean;
+  required: boolean;
+  position: number;
+}
+
+export interface ExperimentRecord {
+  key: number;
+  id: string;
+  title: string;
+  status: ExperimentStatus;
+  plannedPerCondition: number | null;
+  alpha: number;
+  thankYouUrl: string | null;
+  /** Options later features add to a definition (flagThresholds, monitoring, allocation, ...). */
+  options: Record<string, unknown>;
+  dataVersion: number;
+  createdAt: string;
+  updatedAt: string;
+  /** In definition order. */
+  conditions: ConditionRecord[];
+  /** In definition order. */
+  measures: MeasureRecord[];
+}
+
+export interface NewExperiment {
+  id: string;
+  title: string;
+  conditions: { id: string; label: string }[];
+  measures: { id: string; label: string; min: number; max: number; integer: boolean; required: boolean }[];
+  plannedPerCondition: number | null;
+  alpha: number;
+  thankYouUrl: string | null;
+  options?: Record<string, unknown>;
+}
+
+export interface MeasurePatch {
+  id: string;
+  label?: string;
+  min?: number;
+  max?: number;
+  integer?: boolean;
+  required?: boolean;
+}
+
+export interface ExperimentPatch {
+  title?: string;
+  status?: ExperimentStatus;
+  plannedPerCondition?: number | null;
+  alpha?: number;
+  thankYouUrl?: string | null;
+  measures?: MeasurePatch[];
+  /** Keys to set in the definition's options (flagThresholds, …); a null value removes the key. */
+  options?: Record<string, unknown>;
+}
+
+export type CreateExperimentResult = { kind: 'created'; experiment: ExperimentRecord } | { kind: 'duplicate' };
+
+export type UpdateExperimentResult =
+  | { kind: 'updated'; experiment: ExperimentRecord }
+  | { kind: 'not-found' }
+  /** A measure's min, max or integer flag was to change although it already has stored values. */
+  | { kind: 'limits-locked'; measures: { id: string; values: number }[] }
+  /** The patch would make a measure's min ≥ max, or give an integer measure a fractional limit. */
+  | { kind: 'invalid-limits'; measures: { id: string; message: string }[] };
+
+/** One validated response ready to be stored. Values are finite numbers within their measure's scale. */
+export interface ValidResponse {
+  /** The client's id, or one the service generated (then `generated` is true and it is always a new response). */
+  responseId: string;
+  generated: boolean;
+  conditionKey: number;
+  respondent: string | null;
+  /** Client time if given, else the receive time (ISO 8601 UTC). */
+  submittedAt: string;
+  /** measureKey → value, for the measures answered. */
+  values: Map<number, number>;
+  /** SHA-256 of the canonical content (see server/services/ingest/validate.ts). */
+  contentHash: Uint8Array;
+}
+
+export interface StoredResponse {
+  responseId: string;
+  /** Condition slug. */
+  condition: string;
+  respondent: string | null;
+  /** Measure slug → value, in definition order. */
+  values: Record<string, number>;
+  submittedAt: string;
+  receivedAt: string;
+  excluded: boolean;
+  excludedReason: string | null;
+}
+
+export type IngestOutcome =
+  | {
+      kind: 'stored';
+      /** Per item, in input order: its responseId and whether it was new (false = an identical repeat). */
+      items: { responseId: string; created: boolean }[];
+      created: number;
+      repeated: number;
+      dataVersion: number;
+    }
+  | { kind: 'closed' }
+  | { kind: 'not-found' }
+  /** Items (by input index) whose responseId is already stored, or repeated in the same batch, with other content. */
+  | { kind: 'conflict'; conflicts: { index: number; responseId: string }[] };
+
+export interface RejectedIncrement {
+  measureKey: number;
+  reason: RejectionReason;
+  count: number;
+}
+
+export interface RejectedCount {
+  /** Measure slug. */
+  measure: string;
+  reason: RejectionReason;
+  count: number;
+}
+
+/** Distinct values in increasing order with their counts (both Float64Array, same length). */
+export interface WeightedValues {
+  values: Float64Array;
+  counts: Float64Array;
+}
+
+/** Stored and excluded responses of one condition, as kept in the per-condition counters. */
+export interface ConditionCounter {
+  key: number;
+  responses: number;
+  excluded: number;
+}
+
+/**
+ * A consistent read of one measure across several conditions (one read transaction): the values, the dataVersion
+ * they belong to, and the other data-dependent inputs of a comparison's flags read in the same transaction.
+ */
+export interface MeasureSnapshot {
+  dataVersion: number;
+  /** One entry per requested condition key, in request order. */
+  groups: Float64Array[];
+  /** Every condition of the measure's experiment, in definition order (allocation and excluded flags). */
+  conditions: ConditionCounter[];
+  /** Values of this measure refused at ingest, by reason (only reasons with a count). */
+  rejected: { reason: RejectionReason; count: number }[];
+  /** All values refused at ingest in this experiment (part of the comparison cache key; see getComparisonStamp). */
+  rejectedTotal: number;
+}
+
+/**
+ * What a cached comparison depends on besides the definition: the dataVersion, the rejected-value total
+ * (refused values are counted without moving the dataVersion, yet they feed the out_of_range flag) and the number
+ * of recorded interim looks (a new look changes the monitoring block without moving the dataVersion).
+ */
+export interface ComparisonStamp {
+  dataVersion: number;
+  rejectedTotal: number;
+  looks: number;
+}
+
+export type ExclusionOutcome =
+  | { kind: 'not-found' }
+  | {
+      /** changed = false: the response already was in the requested state; nothing was written. */
+      kind: 'changed' | 'unchanged';
+      responseId: string;
+      condition: string;
+      excluded: boolean;
+      /** The stored reason (null when not excluded). */
+      reason: string | null;
+      dataVersion: number;
+    };
+
+export type ErasureOutcome = { kind: 'not-found' } | { kind: 'erased'; erased: number; dataVersion: number };
+
+export type AuditAction = 'exclude' | 'restore' | 'erase';
+
+export interface AuditEntry {
+  id: number;
+  action: AuditAction;
+  /** The responseId for exclude/restore; null for erase and for rows redacted by a later erasure. */
+  responseId: string | null;
+  reason: string | null;
+  count: number;
+  /** The API key that made the change. */
+  apiKeyId: number | null;
+  at: string;
+  dataVersion: number;
+  redacted: boolean;
+}
+
+export interface AuditRepository {
+  /** Newest first, at most `limit` (default 1,000). */
+  list(experimentKey: number, limit?: number): Promise<AuditEntry[]>;
+}
+
+export interface ExperimentRepository {
+  create(definition: NewExperiment): Promise<CreateExperimentResult>;
+  getBySlug(slug: string): Promise<ExperimentRecord | null>;
+  /** All experiments in creation order, or only the one with `onlyKey`. */
+  list(onlyKey?: number | null): Promise<ExperimentRecord[]>;
+  update(experimentKey: number, patch: ExperimentPatch, now: string): Promise<UpdateExperimentResult>;
+  getDataVersion(experimentKey: number): Promise<number | null>;
+}
+
+/** Widest integer scale read as dense counts (values min … max); a wider integer measure is read as sorted values. */
+export const MAX_DENSE_COUNTS = 1_000_001;
+
+/** One run (measure, condition, excluded) of a snapshot read whole. */
+export interface SnapshotRun {
+  conditionKey: number;
+  excluded: 0 | 1;
+  values: Float64Array;
+}
+
+/** Sorted runs read whole, with what a snapshot needs besides them (see SortedRunsReader). */
+export interface RunsSnapshot extends Omit<MeasureSnapshot, 'groups'> {
+  /** The engine's cache generation the runs belong to (negative: do not cache them). */
+  epoch: number;
+  lastRowId: number;
+  runs: SnapshotRun[];
+}
+
+/**
+ * Optional capability of an engine that keeps sorted runs in memory (the SQLite store does; another engine may
+ * leave `ResponseRepository.sortedRuns` undefined and the comparisons simply read getSortedValuesSnapshot). It lets
+ * the comparison service move a large full read off the main thread: ask how much would be read whole, have a
+ * worker thread read the runs (the engine names the module the worker imports and the source it opens), then
+ * adopt them into the engine's cache. In-process and synchronous by nature (it inspects memory).
+ */
+export interface SortedRunsReader {
+  /** Values getSortedValuesSnapshot would read whole now (an upper bound; Infinity when unknown). */
+  fullReadEstimate(measureKey: number, conditionKeys: number[], includeExcluded: boolean): number;
+  /** Keep runs read elsewhere (a worker) and assemble the snapshot's groups, as getSortedValuesSnapshot would. */
+  adoptRunsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, snap: RunsSnapshot): MeasureSnapshot;
+  /**
+   * How a worker thread reads the runs on its own connection: `module` (a file URL) exports
+   * `readRunsInWorker(source, measureKey, conditionKeys, includeExcluded): RunsSnapshot`; null when no worker can
+   * (an in-memory database).
+   */
+  readonly workerReads: { module: string; source: string } | null;
+}
+
+export interface ResponseRepository {
+  /** Present when the engine keeps sorted runs in memory (see SortedRunsReader). */
+  readonly sortedRuns?: SortedRunsReader;
+  /**
+   * Store validated responses in ONE transaction: response rows, value rows, per-value counts of integer
+   * measures, per-condition counts, dataVersion + 1. All or nothing: a closed experiment or any conflict
+   * stores nothing. A repeat (same responseId, same content hash) stores nothing for that item.
+   */
+  ingest(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): Promise<IngestOutcome>;
+  /** Add to the rejected-value counters in their own small transaction. */
+  recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void>;
+  getRejectedCounts(experimentKey: number): Promise<RejectedCount[]>;
+  getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null>;
+  /**
+   * Per-value counts of an integer measure in one condition: element k counts answers equal to min + k, for
+   * k = 0 … max − min. Throws RangeError for a continuous measure or a scale wider than 1,000,001 values.
+   */
+  getCounts(measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<Float64Array>;
+  /** Sparse form of getCounts (only values that occur), for integer measures. */
+  getValueCounts(measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<WeightedValues>;
+  /** Every stored value of one measure in one condition, in non-decreasing order. */
+  getSortedValues(measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<Float64Array>;
+  /** Sorted values of one measure for several conditions plus the dataVersion, read in one transaction. */
+  getSortedValuesSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): Promise<MeasureSnapshot>;
+  /** Dense counts (as getCounts) for several conditions plus the dataVersion, read in one transaction. */
+  getCountsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): Promise<MeasureSnapshot>;
+  /** How many values a measure has stored (all conditions, excluded included). */
+  countValues(measureKey: number): Promise<number>;
+  /** One cheap query: the dataVersion and rejected-value total of an experiment (null if it does not exist). */
+  getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null>;
+  /**
+   * Exclude (excluded = true, with a reason) or restore (false) one response, in ONE write transaction: the
+   * response's flag and reason, its values' excluded flag, the per-value counts of integer measures (moved between
+   * excluded 0 and 1), the condition's excluded counter, dataVersion + 1 and an audit row. A response already in
+   * the requested state is left alone ("unchanged": no write, no audit row, dataVersion unchanged).
+   */
+  setExcluded(
+    experimentKey: number,
+    responseId: string,
+    change: { excluded: boolean; reason: string | null },
+    apiKeyId: number | null,
+    at: string,
+  ): Promise<ExclusionOutcome>;
+  /**
+   * Delete every response of one respondent with its values, in ONE write transaction: per-value counts and
+   * per-condition counters decremented, dataVersion + 1 (when anything was deleted), an audit row with only the
+   * count and time, and earlier audit rows of the erased responses redacted. 0 responses is not an error.
+   */
+  eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome>;
+}
+
+export interface ApiKeyRecord {
+  id: number;
+  scope: Scope;
+  /** Experiment slug the key is limited to, or null for every experiment. */
+  experiment: string | null;
+  experimentKey: number | null;
+  label: string;
+  origin: 'cli' | 'bootstrap' | 'environment';
+  createdAt: string;
+  revokedAt: string | null;
+  lastUsedAt: string | null;
+}
+
+/** What ApiKeyRepository.create stores: the hash of the secret, never the secret itself. */
+export interface NewApiKey {
+  hash: Uint8Array;
+  scope: Scope;
+  experimentKey: number | null;
+  label: string;
+  origin: ApiKeyRecord['origin'];
+  createdAt: string;
+}
+
+export interface ApiKeyRepository {
+  create(key: NewApiKey): Promise<ApiKeyRecord>;
+  /** The key whose hash this is, revoked or not, or null. */
+  findByHash(hash: Uint8Array): Promise<(ApiKeyRecord & { hash: Uint8Array }) | null>;
+  list(): Promise<ApiKeyRecord[]>;
+  revoke(id: number, now: string): Promise<'revoked' | 'already-revoked' | 'not-found'>;
+  touch(id: number, now: string): Promise<void>;
+  /** Active (not revoked) admin keys not limited to an experiment. */
+  countActiveAdmin(): Promise<number>;
+  /**
+   * Make the environment admin key (SPLITBALLOT_ADMIN_KEY) the only active key of origin "environment":
+   * revoke any other, insert this hash if absent. With null, revoke them all.
+   */
+  syncEnvironmentKey(hash: Uint8Array | null, now: string): Promise<void>;
+}
+
+/** One exported response. `values` is aligned with the `measureKeys` passed in (null = not answered). */
+export interface ExportRow {
+  responseId: string;
+  condition: string;
+  respondent: string | null;
+  submittedAt: string;
+  receivedAt: string;
+  excluded: boolean;
+  excludedReason: string | null;
+  values: (number | null)[];
+}
+
+/** An open all-or-nothing import transaction. Call add() for each chunk, then exactly one of commit() or rollback(). */
+export interface BulkImport {
+  /**
+   * Store one chunk with the same bookkeeping as ResponseRepository.ingest, inside the open transaction.
+   * Synchronous: the HTTP import calls it for every chunk without awaiting in between, so no other request's
+   * statement runs inside the import's transaction on a shared connection.
+   */
+  add(items: ValidResponse[]): IngestOutcome;
+  commit(): void;
+  rollback(): void;
+  readonly open: boolean;
+}
+
+/** Bulk reads and writes for the CSV export and import. */
+export interface BulkRepository {
+  /**
+   * Every response of an experiment stored when the export began, in storage order, as pages of at most
+   * `pageSize` rows; each page is read on its own, so a slow client holds nothing between pages.
+   */
+  exportResponsePages(experimentKey: number, measureKeys: number[], pageSize: number): AsyncGenerator<ExportRow[]>;
+  /** Begin one write transaction for a bulk import (the write lock is taken at once). */
+  beginImport(experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport;
+}
+
+/** What an online backup of the database wrote. */
+export interface BackupResult {
+  /** Absolute path of the finished backup. */
+  path: string;
+  pages: number;
+  bytes: number;
+  durationMs: number;
+  /** How many times the copy restarted because another connection wrote meanwhile. */
+  restarts: number;
+}
+
+export interface Store {
+  experiments: ExperimentRepository;
+  responses: ResponseRepository;
+  apiKeys: ApiKeyRepository;
+  /** The audit trail of exclusions, restorations and erasures. */
+  audit: AuditRepository;
+  /** Interim looks (group-sequential monitoring); interfaces in monitoring-types.ts. */
+  looks: LookRepository;
+  /** Balanced, sticky assignment of respondents to conditions. */
+  assignments: AssignmentRepository;
+  /** Bulk export and import (CSV). */
+  bulk: BulkRepository;
+  /** Database reachable and every known migration applied with its recorded checksum. */
+  readiness(): Promise<{ ready: true; migrations: number } | { ready: false; reason: string }>;
+  close(): Promise<void>;
+}
