@@ -50,6 +50,8 @@ import { importRoutes } from './routes/imports.js';
 import { lookRoutes } from './routes/looks.js';
 import { planningRoutes } from './routes/planning.js';
 import { resultsPageRoutes } from './routes/results-page.js';
+import { clientScriptRoutes } from './routes/client-script.js';
+import { formDefinitionRoutes } from './routes/form-definition.js';
 import { SINGLE_BODY_LIMIT } from './schemas/responses.js';
 import { zodValidatorCompiler } from './schemas/validator.js';
 
@@ -226,7 +228,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
       origin: config.corsOrigins,
       methods: ['GET', 'HEAD', 'POST', 'PATCH', 'DELETE'],
       allowedHeaders: ['Authorization', 'Content-Type', 'If-None-Match'],
-      exposedHeaders: ['ETag', 'Location'],
+      exposedHeaders: ['ETag', 'Location', 'Retry-After'],
       maxAge: 600,
     });
   }
@@ -353,6 +355,8 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(exportRoutes, { store });
   app.register(importRoutes, { store });
   app.register(resultsPageRoutes, { store });
+  app.register(clientScriptRoutes);
+  app.register(formDefinitionRoutes, { store });
   app.register(adminRoutes, {
     store,
     backupDir: backupDirOf(config),
