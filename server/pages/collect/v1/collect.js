@@ -429,12 +429,13 @@ export function createClient(options) {
 
   /**
    * A fetch that failed without an answer: is the service unreachable, or did the browser refuse to show this
-   * page its answer (CORS)? A no-cors request reaches a reachable service whatever the origin.
+   * page its answer (CORS)? A no-cors request for the client's own file (the one answer the service lets any
+   * origin load: Cross-Origin-Resource-Policy: cross-origin) succeeds whenever the service is reachable.
    * @param {unknown} _err @returns {Promise<import('./collect.js').Failure>}
    */
   async function diagnose(_err) {
     try {
-      await doFetch(`${base}/healthz`, { mode: 'no-cors', credentials: 'omit', cache: 'no-store' });
+      await doFetch(`${base}/client/v1/collect.js`, { mode: 'no-cors', credentials: 'omit', cache: 'no-store' });
       return 'origin-not-allowed';
     } catch {
       return 'network';
