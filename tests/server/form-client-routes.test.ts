@@ -5,7 +5,7 @@
 import { readFileSync } from 'node:fs';
 import { describe, expect, it } from 'vitest';
 import { clientDirectory } from '../../server/routes/client-script.js';
-import { eachTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
+import { eachTestApp, startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
 
 const PAGE_ORIGIN = 'http://127.0.0.1:9';
 let t: TestApp;
@@ -88,5 +88,25 @@ describe('GET /client/v1/{file}', () => {
     const post = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, key: ingest, headers: { origin: PAGE_ORIGIN }, payload: { condition: 'bill-first', values: { satisfaction: 7, trust: 5, fair_price: 1 } } });
     expect(post.statusCode).toBe(201);
     expect(String(post.headers['access-control-expose-headers']).toLowerCase().split(/,\s*/)).toContain('retry-after');
+  });
+});
+
+describe('what the client reads from a refusal across origins', () => {
+  it("the service's own 429 carries Retry-After, readable by a configured origin", async () => {
+    const limited = await startTestApp({ config: { corsOrigins: [PAGE_ORIGIN], rateLimitIngestPerMinute: 1 } });
+    try {
+      expect((await limited.createWater()).statusCode).toBe(201);
+      const ingest = await limited.key('ingest', WATER_ID);
+      const post = () =>
+        limited.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, key: ingest, headers: { origin: PAGE_ORIGIN }, payload: { condition: 'bill-first', values: { satisfaction: 7, trust: 5, fair_price: 1 } } });
+      expect((await post()).statusCode).toBe(201);
+      const refused = await post();
+      expect(refused.statusCode).toBe(429);
+      expect(Number(refused.headers['retry-after'])).toBeGreaterThanOrEqual(1);
+      expect(refused.headers['access-control-allow-origin']).toBe(PAGE_ORIGIN);
+      expect(String(refused.headers['access-control-expose-headers']).toLowerCase().split(/,\s*/)).toContain('retry-after');
+    } finally {
+      await limited.close();
+    }
   });
 });
