@@ -166,6 +166,15 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
   }
   const storedFor = (respondent: string) => stored().filter((r) => r.respondent === respondent);
 
+  /** Requests the service answered, from its own metrics: ingest POSTs and CORS preflights. */
+  async function requestsSeen(): Promise<{ posts: number; preflights: number }> {
+    const metric = t.app.metrics.registry.getSingleMetric('splitballot_http_requests_total');
+    const values = (await metric!.get()).values;
+    const sum = (method: string, route?: string) =>
+      values.filter((v) => v.labels.method === method && (route === undefined || v.labels.route === route)).reduce((n, v) => n + v.value, 0);
+    return { posts: sum('POST', '/v1/experiments/:id/responses'), preflights: sum('OPTIONS') };
+  }
+
   /** Requests the page sent to the service's ingest route. */
   function countPosts(page: Page): { posts: number } {
     const counter = { posts: 0 };
@@ -183,9 +192,14 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
     const firstBlock = await page.locator('#blocks > fieldset').first().getAttribute('id');
     expect(firstBlock).toBe(condition === 'service-first' ? 'block-service' : 'block-bill');
     await fill(page, { satisfaction: '8', trust: '6', fair_price: '38.5' });
+    const before = await requestsSeen();
     await page.locator('button[type=submit]').click();
     expect(await statusOf(page, 'stored')).toBe(THANKS);
     sent.add('normal-1');
+    // One round trip: the submit was one POST and no CORS preflight (OPTIONS).
+    const after = await requestsSeen();
+    expect({ posts: after.posts - before.posts, preflights: after.preflights - before.preflights }).toEqual({ posts: 1, preflights: 0 });
+    expect(before.preflights, 'assignment and definition needed their preflights').toBeGreaterThanOrEqual(2);
     const rows = storedFor('normal-1');
     expect(rows).toHaveLength(1);
     expect(rows[0].condition).toBe(condition);

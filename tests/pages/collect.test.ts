@@ -12,6 +12,7 @@ import {
   CollectError,
   createClient,
   fieldName,
+  formBody,
   isRetryable,
   memoryStorage,
   newId,
@@ -22,7 +23,7 @@ import {
   type FormDefinition,
 } from '../../server/pages/collect/v1/collect.js';
 import type { ExperimentRecord } from '../../server/db/types.js';
-import { checkSingle } from '../../server/ingest.js';
+import { checkSingle, formToItem } from '../../server/ingest.js';
 import { RESPONSE_ID_PATTERN } from '../../server/schemas/responses.js';
 
 const DEFINITION: FormDefinition = Object.freeze({
@@ -142,6 +143,19 @@ describe('checkAnswers', () => {
   });
 });
 
+describe('formBody', () => {
+  it('every finite number survives the form grammar of the service exactly', () => {
+    fc.assert(
+      fc.property(fc.double({ noNaN: true, noDefaultInfinity: true }), (v) => {
+        const fields = Object.fromEntries(formBody({ responseId: 'r1', condition: 'bill-first', respondent: 'p', submittedAt: '2027-03-01T12:00:00.000Z', values: { fair_price: v } }, 'sb_k'));
+        const item = formToItem(fields).item as { values: Record<string, unknown> };
+        expect(item.values.fair_price, String(v)).toBe(v === 0 ? 0 : v); // -0 is written "0"
+      }),
+      { numRuns: 1000 },
+    );
+  });
+});
+
 describe('newId', () => {
   it('is 128 bits as 32 hex digits, a valid responseId', () => {
     const bytes = Uint8Array.from({ length: 16 }, (_, i) => i * 17);
@@ -166,9 +180,19 @@ class FakeService {
   readonly assignments = new Map<string, string>();
   script: Handler[] = [];
 
+  /** Headers of every request, for the "no preflight" check. */
+  readonly headers: Record<string, string>[] = [];
+
   readonly fetch = async (url: string, init: RequestInit): Promise<Response> => {
-    const body = init.body === undefined ? undefined : JSON.parse(String(init.body));
+    // An answer arrives as form fields (a CORS simple request); the other calls as JSON.
+    const body =
+      init.body instanceof URLSearchParams
+        ? Object.fromEntries(init.body)
+        : init.body === undefined
+          ? undefined
+          : JSON.parse(String(init.body));
     const req = { method: init.method ?? 'GET', url, body, mode: init.mode };
+    this.headers.push({ ...(init.headers as Record<string, string>) });
     if (init.mode === 'no-cors') throw new TypeError('Failed to fetch');
     this.calls.push(req);
     const scripted = this.script.shift();
@@ -193,7 +217,9 @@ class FakeService {
       this.assignments.set(r, c);
       return json(201, { condition: c, respondent: r, new: true });
     }
-    const item = req.body as { responseId: string; condition: string; values: Record<string, number> };
+    const fields = req.body as Record<string, string>;
+    expect(fields.ingestKey).toBe('sb_test');
+    const item = formToItem(fields).item as { responseId: string; condition: string; values: Record<string, number> };
     const checked = checkSingle(EXPERIMENT, item, '2027-03-01T12:00:00Z');
     if (checked.errors.length > 0) return json(422, { type: 'urn:splitballot:problem:validation', title: 'Invalid', status: 422, detail: 'invalid', errors: checked.errors });
     const before = this.stored.get(item.responseId);
@@ -262,7 +288,20 @@ describe('createClient', () => {
     expect([...service.stored.values()]).toEqual([{ condition: 'bill-first', values: { satisfaction: 8, trust: 6, fair_price: 35.5 } }]);
     const sent = service.calls.at(-1)!;
     expect(sent.url).toBe('http://svc.test/v1/experiments/water-bill-2027/responses');
-    expect(sent.body).toMatchObject({ responseId: a.responseId, condition: 'bill-first', respondent: 'resp-1' });
+    expect(sent.body).toEqual({
+      responseId: a.responseId,
+      condition: 'bill-first',
+      respondent: 'resp-1',
+      submittedAt: '2027-03-01T12:00:00.000Z',
+      satisfaction: '8',
+      trust: '6',
+      fair_price: '35.5',
+      ingestKey: 'sb_test',
+    });
+    // A CORS simple request (no preflight: one round trip): no Authorization header, only Accept; the body is a
+    // URLSearchParams, which fetch sends as application/x-www-form-urlencoded. Assignment and definition use the header.
+    expect(service.headers.at(-1)).toEqual({ accept: 'application/json' });
+    expect(service.headers[0]).toEqual({ authorization: 'Bearer sb_test', accept: 'application/json' });
   });
 
   it('an invalid answer is shown, not sent and not kept', async () => {

@@ -144,7 +144,18 @@ export interface Answer {
   failure: Failure | null;
 }
 
+/** An answer waiting in storage (sent as it is, every time). */
+export interface PendingAnswer {
+  responseId: string;
+  condition: string;
+  respondent: string;
+  values: Record<string, number>;
+  submittedAt: string;
+}
+
 export declare function createClient(options: ClientOptions): Client;
+/** The answer as HTML form fields, with the key in ingestKey (a CORS simple request: no preflight). */
+export declare function formBody(answer: PendingAnswer, key: string): URLSearchParams;
 export declare function newId(randomBytes?: (n: number) => Uint8Array): string;
 export declare function backoffDelay(attempt: number, baseMs?: number, maxMs?: number, random?: () => number): number;
 export declare function parseRetryAfter(value: string | null | undefined, nowMs: number): number | null;

@@ -126,6 +126,23 @@ export function checkAnswers(definition, answers) {
   return { values, errors };
 }
 
+/**
+ * An answer as the fields of an HTML form post (what the service's ingest route reads from a form): condition,
+ * responseId, respondent, submittedAt, one field per measure, and the ingest key in ingestKey. Numbers are
+ * written as JavaScript writes them ("42.5", "1e-7"), which the service's form number grammar accepts.
+ * @param {import('./collect.js').PendingAnswer} answer @param {string} key
+ */
+export function formBody(answer, key) {
+  const fields = new URLSearchParams();
+  fields.set('responseId', answer.responseId);
+  fields.set('condition', answer.condition);
+  fields.set('respondent', answer.respondent);
+  fields.set('submittedAt', answer.submittedAt);
+  for (const [id, v] of Object.entries(answer.values)) fields.set(id, String(v));
+  fields.set('ingestKey', key);
+  return fields;
+}
+
 /** Is the answer in storage still the one that was sent? @param {unknown} a @param {unknown} b */
 function same(a, b) {
   return JSON.stringify(a) === JSON.stringify(b);
@@ -412,8 +429,13 @@ export function createClient(options) {
         mode: 'cors',
         credentials: 'omit',
         cache: 'no-store',
-        headers: { authorization: `Bearer ${key}`, accept: 'application/json', ...(body === undefined ? {} : { 'content-type': 'application/json' }), ...extraHeaders },
-        body: body === undefined ? undefined : JSON.stringify(body),
+        // A URLSearchParams body (an answer, with the key in its ingestKey field) is a CORS "simple request": no
+        // preflight, so a submit costs exactly one round trip. Other calls send the key as a header.
+        headers:
+          body instanceof URLSearchParams
+            ? { accept: 'application/json' }
+            : { authorization: `Bearer ${key}`, accept: 'application/json', ...(body === undefined ? {} : { 'content-type': 'application/json' }), ...extraHeaders },
+        body: body === undefined || body instanceof URLSearchParams ? body : JSON.stringify(body),
         signal: abort.signal,
       });
       let json = null;
@@ -512,7 +534,7 @@ export function createClient(options) {
       const record = await s.get(recordKey(r));
       if (!record || !record.pending) return { status: 'stored', responseId: record?.responseId ?? '', repeated: true, response: null };
       const pending = record.pending;
-      const a = await send('POST', `${studyPath}/responses`, pending);
+      const a = await send('POST', `${studyPath}/responses`, formBody(pending, key));
       if (a.status === 200 || a.status === 201) {
         await s.update(recordKey(r), (cur) => (cur && same(cur.pending, pending) ? { ...cur, pending: null, stored: true } : cur));
         /** @type {import('./collect.js').SubmitResult} */
