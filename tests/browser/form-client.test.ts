@@ -268,7 +268,9 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
     });
     expect(await statusOf(page, 'stored')).toBe(THANKS);
     await page.waitForTimeout(300);
-    expect(posts.posts).toBe(2);
+    // Both submits went out (a third POST is possible if the page-load flush saw the first one waiting).
+    expect(posts.posts).toBeGreaterThanOrEqual(2);
+    expect(posts.posts).toBeLessThanOrEqual(3);
     sent.add('double-1');
     expect(storedFor('double-1')).toHaveLength(1);
     await page.close();
@@ -311,13 +313,14 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
     expect(await statusOf(page, 'stored', 20_000)).toBe(THANKS);
     sent.add('busy-1');
     expect(attempts.map((a) => a.status)).toEqual([503, 429, 0]);
-    // Waited at least as told: 1 s after the 503, 2 s after the 429 (and at most 20 % more, plus delivery time).
+    // Waited at least as told: 1 s after the 503, 2 s after the 429. The client adds at most 20 %; the upper
+    // bounds allow 3 s more for delivery on a busy shared machine (they only catch a far too long wait).
     const afterUnavailable = attempts[1].at - attempts[0].at;
     const afterRateLimited = attempts[2].at - attempts[1].at;
     expect(afterUnavailable, `${afterUnavailable} ms after the 503`).toBeGreaterThanOrEqual(1000);
-    expect(afterUnavailable).toBeLessThan(1200 + 1000);
+    expect(afterUnavailable, `${afterUnavailable} ms after the 503`).toBeLessThan(1200 + 3000);
     expect(afterRateLimited, `${afterRateLimited} ms after the 429`).toBeGreaterThanOrEqual(2000);
-    expect(afterRateLimited).toBeLessThan(2400 + 1000);
+    expect(afterRateLimited, `${afterRateLimited} ms after the 429`).toBeLessThan(2400 + 3000);
     expect(storedFor('busy-1')).toHaveLength(1);
     await page.close();
   });
