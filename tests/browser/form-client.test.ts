@@ -8,7 +8,7 @@
  *  1. assign, fill, submit → stored once, in the condition the service assigned;
  *  2. network cut during submit (the request reaches the service but its answer is lost, then every request to the
  *     service fails): the page says "Saved, will send when back online"; a reload with the network still cut,
- *     then the network back → stored exactly once;
+ *     then the network back → stored exactly once; the same with localStorage when IndexedDB is missing;
  *  3. a double submit, and two tabs of the same respondent → one stored answer each;
  *  4. the service answers 503 then 429 with Retry-After → the client waits as told, then succeeds;
  *  5. an out-of-range value is shown next to its field before anything is sent; a value the service refuses
@@ -253,6 +253,31 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
     await page.waitForTimeout(500);
     expect(posts.posts).toBe(before);
     expect(storedFor('offline-1')).toHaveLength(1);
+    await page.close();
+  });
+
+  it('2b. without IndexedDB the queue lives in localStorage and survives a reload the same way', async () => {
+    const page = await context.newPage();
+    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
+    await page.addInitScript(() => Object.defineProperty(window, 'indexedDB', { value: undefined, configurable: true }));
+    await page.goto(`${allowed}/survey.html?respondent=offline-ls-1&client=local`);
+    await page.locator('form[data-ready="true"]').waitFor({ timeout: 15_000 });
+    const cut = (route: Route) => route.abort('internetdisconnected');
+    await page.route(`${service}/**`, cut);
+    await fill(page, { satisfaction: '2', trust: '1', fair_price: '80' });
+    await page.locator('button[type=submit]').click();
+    expect(await statusOf(page, 'queued')).toBe(SAVED);
+    const kept = await page.evaluate(() => Object.keys(localStorage).filter((k) => k.startsWith('splitballot|v1|') && k.endsWith('|r|offline-ls-1')));
+    expect(kept).toHaveLength(1);
+    expect(storedFor('offline-ls-1')).toHaveLength(0);
+    await page.reload();
+    await page.locator('form[data-ready="true"]').waitFor({ timeout: 15_000 });
+    expect(await statusOf(page, 'queued')).toBe(SAVED);
+    await page.unroute(`${service}/**`, cut);
+    await page.evaluate(() => window.dispatchEvent(new Event('online')));
+    expect(await statusOf(page, 'stored')).toBe(THANKS);
+    sent.add('offline-ls-1');
+    expect(storedFor('offline-ls-1')).toHaveLength(1);
     await page.close();
   });
 

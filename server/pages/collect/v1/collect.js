@@ -443,7 +443,7 @@ export function createClient(options) {
       return { status: res.status, body: json, retryAfterMs: parseRetryAfter(res.headers.get('retry-after'), now()), failure: null };
     } catch (err) {
       const timedOut = abort.signal.aborted;
-      return { status: 0, body: null, retryAfterMs: null, failure: timedOut ? 'timeout' : await diagnose(err) };
+      return { status: 0, body: null, retryAfterMs: null, failure: timedOut ? 'timeout' : await diagnose(abort.signal) };
     } finally {
       clearTimeout(timer);
     }
@@ -453,11 +453,12 @@ export function createClient(options) {
    * A fetch that failed without an answer: is the service unreachable, or did the browser refuse to show this
    * page its answer (CORS)? A no-cors request for the client's own file (the one answer the service lets any
    * origin load: Cross-Origin-Resource-Policy: cross-origin) succeeds whenever the service is reachable.
-   * @param {unknown} _err @returns {Promise<import('./collect.js').Failure>}
+   * The probe runs under the same time limit as the request it explains.
+   * @param {AbortSignal} signal @returns {Promise<import('./collect.js').Failure>}
    */
-  async function diagnose(_err) {
+  async function diagnose(signal) {
     try {
-      await doFetch(`${base}/client/v1/collect.js`, { mode: 'no-cors', credentials: 'omit', cache: 'no-store' });
+      await doFetch(`${base}/client/v1/collect.js`, { mode: 'no-cors', credentials: 'omit', cache: 'no-store', signal });
       return 'origin-not-allowed';
     } catch {
       return 'network';
