@@ -34,7 +34,10 @@ const HTTP_DATE = /^[A-Z][a-z]{2}, \d{2} [A-Z][a-z]{2} \d{4} \d{2}:\d{2}:\d{2} G
 // Pure helpers (exported for tests and for pages that want them)
 // ------------------------------------------------------------------------------------------------------------
 
-/** Hex id of 128 random bits (crypto.getRandomValues unless `randomBytes` is given). */
+/**
+ * Hex id of 128 random bits (crypto.getRandomValues unless `randomBytes` is given).
+ * @param {(n: number) => Uint8Array} [randomBytes]
+ */
 export function newId(randomBytes = defaultRandomBytes) {
   let out = '';
   for (const b of randomBytes(16)) out += (b < 16 ? '0' : '') + b.toString(16);
@@ -264,6 +267,7 @@ export function indexedDbStorage(idb, name = 'splitballot-collect') {
           new Promise((res, rej) => {
             const tx = db.transaction('kv', 'readwrite');
             const store = tx.objectStore('kv');
+            /** @type {any} */
             let next;
             const req = store.get(key);
             req.onsuccess = () => {
