@@ -388,8 +388,8 @@ describe.skipIf(!CHROMIUM)('survey-page client in Chromium', () => {
     const before = stored().length;
     // The versioned module itself is refused by CORS: the page falls back to the plain form and says so.
     const page = await open(`${disallowed}/survey.html?respondent=foreign-1`, false);
-    const text = await statusOf(page, 'no-client');
-    expect(text).toContain("may not allow this page's address (CORS)");
+    const text = await statusOf(page, 'no-client-origin');
+    expect(text).toBe(`The survey service does not allow this page's address (${disallowed}) to use its answer helper (CORS). Your answers will be sent the plain way.`);
     // The site's own copy of the client loads, but the service's answers are not shown to this origin.
     const local = await open(`${disallowed}/survey.html?respondent=foreign-2&client=local`, false);
     const why = await statusOf(local, 'origin-not-allowed');
