@@ -51,6 +51,8 @@ import { pageRoutes } from './routes/pages.js';
 import { planningRoutes } from './routes/planning.js';
 import { responseRoutes } from './routes/responses.js';
 import { resultsPageRoutes } from './routes/results-page.js';
+import { clientScriptRoutes } from './routes/client-script.js';
+import { formDefinitionRoutes } from './routes/form-definition.js';
 import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
 
@@ -189,6 +191,8 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(exportRoutes, { store, comparisons });
   app.register(importRoutes, { store });
   app.register(resultsPageRoutes, { store });
+  app.register(clientScriptRoutes);
+  app.register(formDefinitionRoutes, { store });
   app.register(adminRoutes, {
     store,
     backupDir: backupDirOf(config),

@@ -8,7 +8,7 @@ export function registerCors(app: FastifyInstance, origins: string[]): void {
         origin: origins,
         methods: ['GET', 'HEAD', 'POST', 'PATCH', 'DELETE'],
         allowedHeaders: ['Authorization', 'Content-Type', 'If-None-Match'],
-        exposedHeaders: ['ETag', 'Location'],
+        exposedHeaders: ['ETag', 'Location', 'Retry-After'],
         maxAge: 600,
       });
     }

@@ -49,6 +49,7 @@ const ACCESS: Record<string, Entry> = {
   'GET /experiments/:id': { scopes: 'public' },
   'GET /pages/:name': { scopes: 'public', path: '/pages/results.css' },
   'GET /openapi.json': { scopes: 'public' },
+  'GET /client/v1/:file': { scopes: 'public', path: '/client/v1/collect.js' },
   'GET /metrics': { scopes: ['admin'], limited: 'denied' },
 
   'POST /v1/experiments': {
@@ -58,6 +59,7 @@ const ACCESS: Record<string, Entry> = {
   },
   'GET /v1/experiments': { scopes: ['admin', 'read'], limited: 'allowed' },
   'GET /v1/experiments/:id': { scopes: ['admin', 'read'] },
+  'GET /v1/experiments/:id/form': { scopes: ['ingest', 'read', 'admin'] },
   'PATCH /v1/experiments/:id': { scopes: ['admin'], payload: () => ({ title: 'Water utility survey 2027 (renamed)' }) },
 
   'POST /v1/experiments/:id/responses': { scopes: ['ingest', 'admin'], ok: [201], payload: () => waterResponse() },
