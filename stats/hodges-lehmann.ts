@@ -14,8 +14,10 @@
  * (two-sided: α/2 on each side), α = 1 − confidenceLevel.
  *
  * Method for the interval, by the method rank-sum.ts chose for the same data and `exact` option:
- *  - exact, no ties (as R's wilcox.test(exact = TRUE, conf.int = TRUE)): qu = qwilcox(α/2, n_a, n_b)
- *    (one-sided: qwilcox(α)), qu := 1 if it is 0; lower = D_(qu), upper = D_(N − qu + 1).
+ *  - exact, no ties (as R's wilcox.test(exact = TRUE, conf.int = TRUE)): qu = the α/2 quantile of U under
+ *    its exact null distribution, the smallest u with P(U ≤ u) ≥ α/2 (one-sided: the α quantile), compared
+ *    with a slack of 128ε relative + ε/2 absolute for rounding (exactLowerQuantile; the values equal R's
+ *    qwilcox(α/2, n_a, n_b)); qu := 1 if it is 0; lower = D_(qu), upper = D_(N − qu + 1) (Bauer 1972).
  *    achievedLevel = 1 − 2·P(U ≤ qu − 1) (one-sided 1 − P(U ≤ qu − 1)), the exact coverage. R prints the
  *    requested level unless that coverage falls short by more than α/2 (then it prints 1 − achieved α);
  *    we always report the exact coverage.
@@ -941,28 +943,35 @@ function midpoint(x: number, y: number): number {
 // Exact critical values
 // ---------------------------------------------------------------------------------------------------
 
-/** R's qwilcox(x, m, n) on an exact tie-free distribution (with R's 10·DBL_EPSILON fuzz). */
-function qwilcoxLike(dist: ExactRankSumDistribution, x: number): number {
-  const p = dist.probabilities;
-  const mn = p.length - 1; // unitsPerU is 1 without ties
-  if (x <= 0) return 0;
-  if (x >= 1) return mn;
-  const eps10 = 10 * Number.EPSILON;
-  let cum = 0;
-  if (x <= 0.5) {
-    const target = x - eps10;
-    for (let q = 0; q <= mn; q++) {
-      cum += p[q];
-      if (cum >= target) return q;
-    }
-    return mn;
+/**
+ * Slack allowed when a cumulative probability of U is compared with a requested tail probability α, so that
+ * a P(U ≤ u) that equals α in exact arithmetic counts as reaching it whatever the rounding of the two:
+ *  - relative 128ε for the cumulative sum: against exact integer counts of the tie-free distribution (the
+ *    Gaussian binomial coefficients) the summed probabilities were within 4e-15 ≈ 18ε relative for sizes up
+ *    to 200 × 200 and 20 × 1500, so 128ε leaves a margin of seven;
+ *  - absolute ε/2 for α itself: α = 1 − level, and a decimal level such as 0.95 is stored to within ε/2, the
+ *    subtraction then being exact.
+ * A true P(U ≤ u) just below α by less than this slack (a coincidence at the 1e-14 level) would be counted
+ * as reaching it; the interval is then one order statistic wider, and achievedLevel reports its coverage.
+ */
+const QUANTILE_SLACK_RELATIVE = 128 * Number.EPSILON;
+const QUANTILE_SLACK_ABSOLUTE = Number.EPSILON / 2;
+
+/**
+ * The lower α-quantile of U under an exact distribution: the smallest attainable u with P(U ≤ u) ≥ α
+ * (up to the slack above), by summing the probabilities from u = 0 upwards in the same order as exactCdf.
+ * This is the value R's qwilcox(α, n_a, n_b) gives on the tie-free distribution (checked through the
+ * exact intervals of tests/fixtures/r-reference.json). O(u).
+ */
+function exactLowerQuantile(dist: ExactRankSumDistribution, alpha: number): number {
+  const probabilities = dist.probabilities;
+  const target = alpha - (QUANTILE_SLACK_RELATIVE * alpha + QUANTILE_SLACK_ABSOLUTE);
+  let cumulative = 0;
+  for (let index = 0; index < probabilities.length; index++) {
+    cumulative += probabilities[index];
+    if (cumulative >= target) return index / dist.unitsPerU;
   }
-  const target = 1 - x + eps10;
-  for (let q = 0; q <= mn; q++) {
-    cum += p[q];
-    if (cum > target) return mn - q;
-  }
-  return 0;
+  return (probabilities.length - 1) / dist.unitsPerU;
 }
 
 /** coin's qperm on an exact distribution, as a value of U: first support point with cumulative ≥ p − √ε. */
@@ -1039,7 +1048,7 @@ const ONE_SIDED_UPPER = 'the interval is one-sided ("greater"): unbounded above'
 function exactTieFreeInterval(os: OrderStatistics, dist: ExactRankSumDistribution, alternative: Alternative, level: number): Ci {
   const N = os.mat.total;
   const alpha = 1 - level;
-  let qu = qwilcoxLike(dist, alternative === 'two-sided' ? alpha / 2 : alpha);
+  let qu = exactLowerQuantile(dist, alternative === 'two-sided' ? alpha / 2 : alpha);
   if (qu === 0) qu = 1;
   const tail = exactCdf(dist, qu - 1);
   if (alternative === 'two-sided') {

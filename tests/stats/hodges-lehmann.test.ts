@@ -392,6 +392,45 @@ describe('properties', () => {
   });
 });
 
+describe('exact tie-free interval: the quantile of U read in exact arithmetic', () => {
+  // Independent of floating point: the counts of U = 0, 1, … under H0 are the coefficients of the Gaussian
+  // binomial [n_a + n_b choose n_a]_q (exact BigInt arithmetic), and a decimal level = L/1000 gives the tail
+  // α/2 = (1000 − L)/2000 exactly, so qu = the smallest u with 2000·#(U ≤ u) ≥ (1000 − L)·C(n_a + n_b, n_a).
+  // With a_i = i·n_b and b_j = −j − ½ every difference is distinct and D_(k) = k − ½, so lower = qu − ½
+  // (qu raised to 1 when it is 0). The grid includes levels where P(U ≤ u) equals α/2 exactly
+  // (e.g. n_a = 1, n_b = 19, level 0.9: P(U ≤ 0) = 1/20 = α/2), where rounding decides if the slack is missing.
+  function uCounts(na: number, nb: number): bigint[] {
+    let poly: bigint[] = [1n];
+    for (let i = 1; i <= na; i++) {
+      const next = poly.concat(new Array<bigint>(nb + i).fill(0n));
+      for (let k = next.length - 1; k >= nb + i; k--) next[k] -= next[k - nb - i];
+      poly = next;
+    }
+    for (let i = 1; i <= na; i++) for (let k = i; k < poly.length; k++) poly[k] += poly[k - i];
+    return poly.slice(0, na * nb + 1);
+  }
+  it('n_a, n_b ≤ 20, levels 0.5 … 0.999: lower bound = D_(qu) exactly', () => {
+    let equalities = 0;
+    for (let na = 1; na <= 20; na++) {
+      for (let nb = 1; nb <= 20; nb++) {
+        const counts = uCounts(na, nb);
+        const total = counts.reduce((x, y) => x + y, 0n);
+        const a = fromValues(Object.freeze(Array.from({ length: na }, (_, i) => i * nb)));
+        const b = fromValues(Object.freeze(Array.from({ length: nb }, (_, j) => -j - 0.5)));
+        for (const L of [500, 600, 750, 800, 900, 950, 980, 990, 995, 999]) {
+          let cumulative = 0n;
+          let qu = 0;
+          while (2000n * (cumulative + counts[qu]) < BigInt(1000 - L) * total) cumulative += counts[qu++];
+          if (2000n * (cumulative + counts[qu]) === BigInt(1000 - L) * total) equalities++;
+          const h = hodgesLehmann(a, b, { alternative: 'two-sided', confidenceLevel: L / 1000, exact: 'always' });
+          expect(h.ci.lower, `n_a = ${na}, n_b = ${nb}, level ${L / 1000}: expected D_(${Math.max(1, qu)})`).toBe(Math.max(1, qu) - 0.5);
+        }
+      }
+    }
+    expect(equalities).toBeGreaterThan(5);
+  });
+});
+
 describe('edge cases', () => {
   const S = (x: number[]): Sample => fromValues(Object.freeze(x));
   const opts = (exact: ExactMode, alternative: Alternative = 'two-sided') => ({ alternative, confidenceLevel: 0.95, exact });
