@@ -102,7 +102,8 @@ describe.each(scipy.datasets)('against scipy 1.10.1: $name', (ds) => {
     // statistic near 0 carries ~n·eps absolute rounding; observed worst 2.5e-14 relative)
     // our statistic is positive when a is larger: −1 × scipy's (stats/robust.ts header)
     expectRel(r.statistic === null ? null : -r.statistic, ref.statistic, 1e-9, `${what} statistic`, 1e-12);
-    // source: df by scipy 1.10.1's own formula (recomputed in make-scipy-fixtures.py); relative ≤ 1e-9
+    // source: df from Brunner & Munzel (2000) in make-scipy-fixtures.py, which checks scipy's p is the t tail
+    // at that df (scipy does not return df); relative ≤ 1e-9
     expectRel(r.df, ref.df, 1e-9, `${what} df`);
     // source: scipy.stats.t.cdf / t.sf at scipy's statistic and df (pDirectTail); relative ≤ 1e-6 for
     // p ≥ 1e-300 (observed worst 4e-13); below 1e-300 only "tiny" is asserted.
@@ -129,7 +130,7 @@ describe.each(scipy.datasets)('against scipy 1.10.1: $name', (ds) => {
     }
     // source: scipy.stats.ttest_ind(a, b, equal_var=False, trim=0.2, alternative).statistic; relative ≤ 1e-9
     expectRel(r.t, ref.t, 1e-9, `${what} t`);
-    // source: df as scipy's _unequal_var_ttest_denom computes it (make-scipy-fixtures.py); relative ≤ 1e-9
+    // source: df from Yuen (1974) in make-scipy-fixtures.py, checked there against scipy's p; relative ≤ 1e-9
     expectRel(r.df, ref.df!, 1e-9, `${what} df`);
     // source: scipy.stats.ttest_ind(...).pvalue (special.stdtr, a direct tail); relative ≤ 1e-6
     expectRel(r.p, ref.p!, 1e-6, `${what} p`);
