@@ -431,6 +431,29 @@ describe('exact tie-free interval: the quantile of U read in exact arithmetic', 
   });
 });
 
+describe('exact conditional interval: cumulative probability just below α', () => {
+  // Invented tied 0–3 data (found by a random search). For "less" at level 0.5 the one-sided bound uses the
+  // 1 − α = 0.5 quantile of U, and here P(U ≤ u) = 0.4999999991… at the candidate u: below 0.5 by 9e-10, far
+  // more than rounding, so by the definition the quantile is the next support point and the bound is D = 0,
+  // with coverage 0.5000000009 ≥ 0.5. R coin 1.4-2 (black box, wilcox_test(distribution = "exact") and
+  // confint at level 0.5) gives the upper bound 1 instead, with coverage a hair below 0.5.
+  const a = fromValues(Object.freeze([0, 0, 0, 0, 1, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 3, 3, 3]));
+  const b = fromValues(Object.freeze([0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 1, 1, 2, 2, 2, 3, 3, 3, 3]));
+  it('"less", level 0.5: upper = 0 and achievedLevel ≥ 0.5', () => {
+    const h = hodgesLehmann(a, b, { alternative: 'less', confidenceLevel: 0.5, exact: 'always' });
+    expect(h.ci.lower).toBeNull();
+    expect(h.ci.upper).toBe(0);
+    expect(h.ci.achievedLevel!).toBeGreaterThanOrEqual(0.5);
+    // the near miss: the coverage exceeds 0.5 by less than 1e-8 (it is 0.5 + 8.8e-10)
+    expect(h.ci.achievedLevel! - 0.5).toBeLessThan(1e-8);
+  });
+  it('"greater", level 0.5: lower = 0 (as coin) and achievedLevel ≥ 0.5', () => {
+    const h = hodgesLehmann(a, b, { alternative: 'greater', confidenceLevel: 0.5, exact: 'always' });
+    expect(h.ci.lower).toBe(0);
+    expect(h.ci.achievedLevel!).toBeGreaterThanOrEqual(0.5);
+  });
+});
+
 describe('edge cases', () => {
   const S = (x: number[]): Sample => fromValues(Object.freeze(x));
   const opts = (exact: ExactMode, alternative: Alternative = 'two-sided') => ({ alternative, confidenceLevel: 0.95, exact });
