@@ -47,10 +47,10 @@ const fixture = loadFixture<{
 /**
  * Tolerances (relative):
  *   estimate vs R's median(outer(a, b, "-")): 1e-12. Both take the same double differences; for an even
- *     count R averages the two middle ones in long double, we use a correctly rounded midpoint. Observed: 0.
+ *     count we use a correctly rounded midpoint of the two middle ones. Observed: 0.
  *   interval bounds: 1e-12. They are order statistics of the same double differences (observed: 0 against
- *     R; against coin ≤ 1.3e-16, because coin merges differences within √ε of each other and keeps the
- *     larger, e.g. 0.9 where R's sort(outer()) has 0.8999999999999999).
+ *     R; against coin ≤ 1.3e-16: coin's bound is 0.9 where R's sort(outer()) and ours have
+ *     0.8999999999999999, so coin treats differences that agree to a few ulps as one).
  *   achievedLevel vs exact coverage 1 − 2·pwilcox(qu − 1) computed by R: 1e-10 (observed 5e-16).
  */
 const EST_TOL = 1e-12;
