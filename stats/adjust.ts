@@ -31,7 +31,7 @@
  *   Benjamini Y, Hochberg Y (1995). Controlling the false discovery rate: a practical and powerful approach
  *     to multiple testing. JRSS B 57:289–300. doi:10.1111/j.2517-6161.1995.tb02031.x
  *   (The adjusted-p-value form of both procedures: Wright SP (1992). Adjusted p-values for simultaneous
- *     inference. Biometrics 48:1005–1013. doi:10.2307/2532694)
+ *     inference. Biometrics 48:1005–1013.)
  *
  * Cost: O(m log m) time (one sort), O(m) memory. The input array is never mutated; the result is a frozen array.
  */
