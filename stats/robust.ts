@@ -11,7 +11,7 @@
  * Sign convention: the project's a − b direction — `statistic` is POSITIVE WHEN a TENDS TO BE LARGER,
  * like Welch's t. It is −1 × scipy.stats.brunnermunzel(a, b).statistic (whose sign is positive when b
  * tends to be larger); the p-values equal scipy's for the same alternative (tests/fixtures/scipy-reference.json).
- * Method (Brunner & Munzel 2000, section 2, with mid-ranks so that ties are allowed). With N = n_a + n_b,
+ * Method (Brunner & Munzel 2000, with mid-ranks so that ties are allowed). With N = n_a + n_b,
  * R_k the mid-rank of observation k among all N and R^(own)_k its mid-rank within its own group, the
  * difference R_k − R^(own)_k is the observation's placement among the other group,
  *   P(v) = #(other < v) + ½·#(other = v),
@@ -33,7 +33,7 @@
  * ── Yuen–Welch (Yuen 1974) ────────────────────────────────────────────────────────────────────────
  * Estimand: the difference of the γ-trimmed population means, a − b (γ = `trim`, default 0.2).
  * H0: equal trimmed means; "greater": trimmed mean of a larger; "less": smaller; "two-sided": differ.
- * Method (Yuen 1974, section 2). In each group of n sorted values x_(1) ≤ … ≤ x_(n):
+ * Method (Yuen 1974). In each group of n sorted values x_(1) ≤ … ≤ x_(n):
  *   g = ⌊γ·n⌋ values are cut from each end, h = n − 2g remain;
  *   trimmed mean  x̄_t = (x_(g+1) + … + x_(n−g)) / h;
  *   winsorized sample y: the g lowest values replaced by x_(g+1), the g highest by x_(n−g); ȳ its mean;

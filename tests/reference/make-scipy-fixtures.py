@@ -109,7 +109,7 @@ def placements(x, y):
 
 def brunner_munzel_paper(x, y):
     """The Brunner-Munzel statistic (sign as scipy's: positive when y tends to be larger) and df, written
-    from Brunner & Munzel (2000), section 2: with P the placements, S2_i their sample variance in group i,
+    from Brunner & Munzel (2000): with P the placements, S2_i their sample variance in group i,
     W = (n_x n_y / 2 - sum P_x) / sqrt(n_x S2_x + n_y S2_y) and
     f = (n_x S2_x + n_y S2_y)^2 / ((n_x S2_x)^2 / (n_x - 1) + (n_y S2_y)^2 / (n_y - 1)).
     (nan, nan) where undefined (a group with fewer than 2 observations, or both variances 0)."""
@@ -165,7 +165,7 @@ def brunner_munzel(a, b, alternative):
 
 
 def yuen_parts(x):
-    """Yuen (1974), section 2, for one group: g = floor(n / 5) values (the 20 % trim: TRIM = 0.2 = 1/5, so
+    """Yuen (1974), for one group: g = floor(n / 5) values (the 20 % trim: TRIM = 0.2 = 1/5, so
     the floor is taken in whole numbers) are cut from each end, h = n - 2g remain, the winsorized sample
     sets the g lowest values to x_(g+1) and the g highest to x_(n-g), and d = SSD_w / (h (h - 1)) with
     SSD_w the sum of squared deviations of the winsorized sample from its mean. Returns (d, h); d is nan

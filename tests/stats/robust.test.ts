@@ -268,7 +268,7 @@ describe('yuenWelch edge cases', () => {
 // ── properties ───────────────────────────────────────────────────────────────────────────────────────
 /**
  * The Brunner–Munzel statistic (scipy's sign: positive when b tends to be larger) and df on expanded data,
- * straight from the definitions of Brunner & Munzel (2000, section 2): mid-ranks counted pairwise
+ * straight from the definitions of Brunner & Munzel (2000): mid-ranks counted pairwise
  * (R = #(<) + (#(=) + 1)/2) among all N observations and within each group, S²_i = Σ (R − R^(i) − R̄_i +
  * (n_i + 1)/2)² / (n_i − 1), σ̂²_i = S²_i / (N − n_i)², σ̂²_N = N·Σ σ̂²_i / n_i, W = (R̄_b − R̄_a) / (√N·σ̂_N),
  * f̂ = (Σ N σ̂²_i / n_i)² / Σ (N σ̂²_i / n_i)² / (n_i − 1). O(N²), for checks only.
