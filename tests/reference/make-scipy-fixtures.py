@@ -20,9 +20,9 @@ For each dataset and alternative ("two-sided", "less", "greater"):
                    Munzel (2000) (brunner_munzel_paper), and checks that the paper's statistic agrees with
                    scipy's (1e-11 relative) and that scipy's p is the t tail at that df (1e-9 relative).
                    pDirectTail: the same p computed by this script from scipy's statistic and df as a
-                   direct tail (scipy.stats.t.cdf for P(T <= x), t.sf for P(T > x)), because
-                   brunnermunzel itself forms "less" and part of "two-sided" as 1 - cdf, which loses all
-                   relative precision below about 1e-16.
+                   direct tail (scipy.stats.t.cdf for P(T <= x), t.sf for P(T > x)), because the p of
+                   brunnermunzel itself keeps only absolute precision (about 1e-16) for "less" and for
+                   some "two-sided" cases (it returns 0 where the tail is 1e-253).
   yuenWelch      = scipy.stats.ttest_ind(a, b, equal_var=False, trim=0.2, alternative=...)
                    -> {t, df, p, difference}; difference = trim_mean(a, 0.2) - trim_mean(b, 0.2);
                    df: ttest_ind does not return it; computed here from Yuen (1974) (yuen_parts: g =
@@ -153,7 +153,7 @@ def brunner_munzel(a, b, alternative):
         else:
             direct = min(1.0, 2.0 * min(lower, upper))
         out["pDirectTail"] = direct
-        # scipy's p from this df: equal up to scipy's 1 - cdf rounding (absolute 1e-15)
+        # scipy's p from this df: equal up to scipy's absolute precision there (1e-15)
         assert abs(direct - p) <= 1e-9 * direct + 1e-15, (alternative, statistic, df, p, direct)
     else:
         out["pDirectTail"] = None

@@ -109,8 +109,8 @@ describe.each(scipy.datasets)('against scipy 1.10.1: $name', (ds) => {
     // p ≥ 1e-300 (observed worst 4e-13); below 1e-300 only "tiny" is asserted.
     if (ref.pDirectTail! >= 1e-300) expectRel(r.p, ref.pDirectTail!, 1e-6, `${what} p (direct tail)`);
     else expect(r.p!).toBeLessThan(1e-290);
-    // source: scipy.stats.brunnermunzel(...).pvalue; relative ≤ 1e-6, plus 1e-15 absolute because scipy
-    // forms "less" and half of "two-sided" as 1 − cdf (e.g. it returns 0 where the tail is 1e-253).
+    // source: scipy.stats.brunnermunzel(...).pvalue; relative ≤ 1e-6, plus 1e-15 absolute because scipy's
+    // p keeps only absolute precision for "less" and some "two-sided" cases (it returns 0 where the tail is 1e-253).
     expectRel(r.p, ref.p!, 1e-6, `${what} p (scipy)`, 1e-15);
   });
 
