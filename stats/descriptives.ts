@@ -19,8 +19,9 @@
  *     two-pass" algorithm (Chan, Golub & LeVeque 1983, doi:10.1080/00031305.1983.10483115) carried to the
  *     third and fourth moments, which removes the rounding of the mean (half an ulp, 6e-5 at 1e12).
  *   - Type 7 quantile of probability p: h = (n − 1)p (0-based); with j = ⌊h⌋ and x_(j) the order statistics,
- *     Q(p) = (1 − (h − j))·x_(j) + (h − j)·x_(j+1), evaluated as R does (the second term only when the two
- *     order statistics differ). Hyndman, R. J. & Fan, Y. (1996). Sample quantiles in statistical packages.
+ *     Q(p) = (1 − (h − j))·x_(j) + (h − j)·x_(j+1), with the second term added only when the two order
+ *     statistics differ, so that Q(p) is exactly x_(j) when they are equal (no rounding from the weights);
+ *     the values match R's quantile(x, p, type = 7). Hyndman, R. J. & Fan, Y. (1996). Sample quantiles in statistical packages.
  *     The American Statistician 50, 361–365. doi:10.1080/00031305.1996.10473566.
  *     Order statistics are found from cumulative counts by binary search, so no expansion is needed.
  *   - MAD: the absolute deviations from the median form two sorted runs (values below the median, read

@@ -61,7 +61,8 @@
  *     (tie-corrected variance).
  *   Streitberg, B. & Röhmel, J. (1986). Exact distributions for permutation and rank tests. Statistical
  *     Software Newsletter 12(1), 10–17 (the conditional distribution given ties; used by R's coin).
- *   R 4.2.2 stats::wilcox.test.default; coin 1.4-2 wilcox_test (ExactNullDistribution, pvalue, qperm).
+ *   Black-box references (tests/fixtures/r-reference.json): R 4.2.2 stats::wilcox.test; coin 1.4-2
+ *     wilcox_test(distribution = "exact") with its pvalue() and qperm().
  *
  * Cost: U, V and the normal p in O(K_a + K_b) (K the number of distinct values). The exact distribution
  * in O(N · m · s·n_a·n_b) time at worst (bounded by the limits above) and O(m · s·n_a·n_b) memory.
@@ -270,19 +271,21 @@ export function exactSf(dist: ExactRankSumDistribution, u: number): number {
   return Math.min(1, sum);
 }
 
+/**
+ * Exact p-value of the observed U = u (header, "p-values"): "less" P(U ≤ u), "greater" P(U ≥ u);
+ * "two-sided" without ties twice the tail on the side of u from the centre E = n_a n_b/2, capped at 1 (the
+ * tie-free distribution is symmetric about E, so this is also P(|U − E| ≥ |u − E|)); with ties, whose
+ * conditional distribution need not be symmetric, P(|U − E| ≥ |u − E|) itself, the sum of the two tails
+ * beyond distance |u − E| from E (1 when u = E). Distances are multiples of ½, so they are exact. O(n_a n_b).
+ */
 function exactPValue(dist: ExactRankSumDistribution, u: number, nA: number, nB: number, alternative: Alternative): number {
-  const half = (nA * nB) / 2;
   if (alternative === 'less') return exactCdf(dist, u);
   if (alternative === 'greater') return exactSf(dist, u);
-  if (dist.tieFree) {
-    // R: p <- if (W > m n / 2) pwilcox(W − 1, upper) else pwilcox(W); min(2p, 1)
-    const p = u > half ? exactSf(dist, u) : exactCdf(dist, u);
-    return Math.min(1, 2 * p);
-  }
-  // coin: P(|U − E| ≥ |u − E|), 1 when u = E
-  if (u === half) return 1;
-  const d = Math.abs(u - half);
-  return Math.min(1, exactCdf(dist, half - d) + exactSf(dist, half + d));
+  const centre = (nA * nB) / 2;
+  if (dist.tieFree) return Math.min(1, 2 * (u <= centre ? exactCdf(dist, u) : exactSf(dist, u)));
+  const distance = Math.abs(u - centre);
+  if (distance === 0) return 1;
+  return Math.min(1, exactCdf(dist, centre - distance) + exactSf(dist, centre + distance));
 }
 
 /** Choose the method and compute U, V and (when exact) the exact distribution. */

@@ -56,9 +56,9 @@
  *   - Arithmetic: the data are multiplied by a power of two near 2/range (exact), centred at their mean
  *     (with a second pass for the mean's rounding), and every sum is compensated (Neumaier), so data of
  *     any magnitude or offset (1e-12, 1e12, 1e300) give W within about one rounding of the exact W for
- *     the coefficients; the papers work in exact arithmetic. W is capped at 1. (R's shapiro.test
- *     scales by the range without centring first, which moves its W by up to 6e-7 relative on data near
- *     1e12 with a spread of 10: the magnitude-1e12 case of tests/fixtures/r-reference.json.)
+ *     the coefficients; the papers work in exact arithmetic. W is capped at 1. (R's shapiro.test is not
+ *     location invariant in floating point: shifting the data moves its W by up to 6e-7 relative on data
+ *     near 1e12 with a spread of 10, the magnitude-1e12 case of tests/fixtures/r-reference.json.)
  *   - n = 3: W cannot lie below 3/4 (the value when two observations tie at one end). A computed W
  *     within 16 ulps of 3/4 is rounding of that value, and its p-value is 0 (the exact distribution
  *     puts no mass below 3/4). W = 1 gives p = 1 for every n.

@@ -11,8 +11,9 @@
 #   g  = J d
 #   CI for g: t = d / sqrt(1/na + 1/nb); ncpL solves pt(t, df, ncpL) = 1 - alpha/2 and ncpU solves
 #        pt(t, df, ncpU) = alpha/2 (uniroot, tol 1e-13); bounds J * ncp * sqrt(1/na + 1/nb)
-#        (Steiger & Fouladi 1997 inversion, J rescaling). For df > 4e5, where R's pt(ncp) is a normal
-#        approximation, the noncentral t cdf is instead integrate() of pnorm(t s - ncp) against the density of
+#        (Steiger & Fouladi 1997 inversion, J rescaling). For df > 4e5 (beyond the region where the project
+#        uses R's noncentral pt, AS 243, as a reference: see make-distribution-fixtures.R), the noncentral t
+#        cdf is instead integrate() of pnorm(t s - ncp) against the density of
 #        s = sqrt(chisq_df/df) around the integrand's peak (an independent quadrature, QUADPACK).
 #   rankBiserial = 2W/(na nb) - 1 and probabilityOfSuperiority = W/(na nb), W = wilcox.test(a, b)$statistic.
 # Data: invented with set.seed; continuous values rounded to 4 decimals so that JSON carries them exactly.

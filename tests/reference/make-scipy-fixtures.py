@@ -16,17 +16,18 @@ output says so in "datasetsFrom".
 For each dataset and alternative ("two-sided", "less", "greater"):
   brunnerMunzel  = scipy.stats.brunnermunzel(a, b, alternative=..., distribution="t")
                    -> {statistic, df, p, pDirectTail}
-                   df: scipy does not return it; this script computes it with the same formula and the
-                   same steps as scipy 1.10.1's brunnermunzel (scipy/stats/_stats_py.py), and checks that
-                   its statistic and p agree with scipy's exactly.
+                   df: scipy does not return it; this script computes it from the formula of Brunner &
+                   Munzel (2000) (brunner_munzel_paper), and checks that the paper's statistic agrees with
+                   scipy's (1e-11 relative) and that scipy's p is the t tail at that df (1e-9 relative).
                    pDirectTail: the same p computed by this script from scipy's statistic and df as a
-                   direct tail (scipy.stats.t.cdf for P(T <= x), t.sf for P(T > x)), because
-                   brunnermunzel itself forms "less" and part of "two-sided" as 1 - cdf, which loses all
-                   relative precision below about 1e-16.
+                   direct tail (scipy.stats.t.cdf for P(T <= x), t.sf for P(T > x)), because the p of
+                   brunnermunzel itself keeps only absolute precision (about 1e-16) for "less" and for
+                   some "two-sided" cases (it returns 0 where the tail is 1e-253).
   yuenWelch      = scipy.stats.ttest_ind(a, b, equal_var=False, trim=0.2, alternative=...)
                    -> {t, df, p, difference}; difference = trim_mean(a, 0.2) - trim_mean(b, 0.2);
-                   df: ttest_ind does not return it; computed here exactly as scipy's
-                   _unequal_var_ttest_denom does from _ttest_trim_var_mean_len.
+                   df: ttest_ind does not return it; computed here from Yuen (1974) (yuen_parts: g =
+                   floor(0.2 n) cut from each end, Welch's df), and checked: scipy's p is the t tail at
+                   scipy's t and that df (1e-9 relative).
   yuenWelchShifted (only for data far from 0 relative to their spread, e.g. near 1e12)
                  = the same call on a - c and b - c, c the pooled median, where every subtraction is
                    exact: t, df, p and the difference are unchanged by a common shift, and scipy's
@@ -97,42 +98,50 @@ def script_datasets():
     return out
 
 
+def placements(x, y):
+    """Placement of each value of x among the observations of y: #(y < v) + 1/2 #(y = v)
+    (Brunner & Munzel 2000: the overall mid-rank minus the mid-rank within the own group)."""
+    ys = np.sort(np.asarray(y, dtype=float))
+    below = np.searchsorted(ys, x, side="left")
+    at_or_below = np.searchsorted(ys, x, side="right")
+    return below + 0.5 * (at_or_below - below)
+
+
+def brunner_munzel_paper(x, y):
+    """The Brunner-Munzel statistic (sign as scipy's: positive when y tends to be larger) and df, written
+    from Brunner & Munzel (2000): with P the placements, S2_i their sample variance in group i,
+    W = (n_x n_y / 2 - sum P_x) / sqrt(n_x S2_x + n_y S2_y) and
+    f = (n_x S2_x + n_y S2_y)^2 / ((n_x S2_x)^2 / (n_x - 1) + (n_y S2_y)^2 / (n_y - 1)).
+    (nan, nan) where undefined (a group with fewer than 2 observations, or both variances 0)."""
+    nx, ny = len(x), len(y)
+    if nx < 2 or ny < 2:
+        return float("nan"), float("nan")
+    px = placements(x, y)
+    py = placements(y, x)
+    vx = nx * float(np.var(px, ddof=1))
+    vy = ny * float(np.var(py, ddof=1))
+    if vx + vy == 0.0:
+        return float("nan"), float("nan")
+    w = (nx * ny / 2.0 - float(np.sum(px))) / math.sqrt(vx + vy)
+    f = (vx + vy) ** 2 / (vx ** 2 / (nx - 1) + vy ** 2 / (ny - 1))
+    return w, f
+
+
 def brunner_munzel(a, b, alternative):
-    """scipy.stats.brunnermunzel plus its df, recomputed with scipy 1.10.1's own steps."""
+    """scipy.stats.brunnermunzel (a black box: statistic and p) plus the df of its t approximation, which
+    scipy does not return, from the paper's formula (brunner_munzel_paper). Two checks tie that df to
+    scipy's run: the paper's statistic equals scipy's, and scipy's p equals the Student tail at scipy's
+    statistic and this df (pDirectTail below) wherever that tail is large enough to be compared."""
     x = np.asarray(a, dtype=float)
     y = np.asarray(b, dtype=float)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         res = stats.brunnermunzel(x, y, alternative=alternative, distribution="t")
-        statistic = float(res.statistic)
-        p = float(res.pvalue)
-        nx, ny = len(x), len(y)
-        df = float("nan")
-        if nx > 0 and ny > 0:
-            # --- copied step for step from scipy 1.10.1 _stats_py.py brunnermunzel ---
-            rankc = rankdata(np.concatenate((x, y)))
-            rankcx = rankc[0:nx]
-            rankcy = rankc[nx:nx + ny]
-            rankcx_mean = np.mean(rankcx)
-            rankcy_mean = np.mean(rankcy)
-            rankx = rankdata(x)
-            ranky = rankdata(y)
-            rankx_mean = np.mean(rankx)
-            ranky_mean = np.mean(ranky)
-            Sx = np.sum(np.power(rankcx - rankx - rankcx_mean + rankx_mean, 2.0))
-            Sx /= nx - 1
-            Sy = np.sum(np.power(rankcy - ranky - rankcy_mean + ranky_mean, 2.0))
-            Sy /= ny - 1
-            wbfn = nx * ny * (rankcy_mean - rankcx_mean)
-            wbfn /= (nx + ny) * np.sqrt(nx * Sx + ny * Sy)
-            df_numer = np.power(nx * Sx + ny * Sy, 2.0)
-            df_denom = np.power(nx * Sx, 2.0) / (nx - 1)
-            df_denom += np.power(ny * Sy, 2.0) / (ny - 1)
-            df = float(df_numer / df_denom)
-            # --- end of scipy's steps ---
-            same = (float(wbfn) == statistic) or (math.isnan(float(wbfn)) and math.isnan(statistic))
-            if not same:
-                raise SystemExit(f"recomputed Brunner-Munzel statistic {wbfn!r} differs from scipy's {statistic!r}")
+    statistic = float(res.statistic)
+    p = float(res.pvalue)
+    own_statistic, df = brunner_munzel_paper(x, y)
+    if math.isfinite(statistic) and math.isfinite(own_statistic):
+        assert abs(own_statistic - statistic) <= 1e-11 * abs(statistic) + 1e-12, (own_statistic, statistic)
     out = {"statistic": finite_or_none(statistic), "df": finite_or_none(df), "p": finite_or_none(p)}
     if out["statistic"] is not None and out["df"] is not None:
         lower = float(stats.t.cdf(statistic, df))  # P(T <= statistic)
@@ -144,6 +153,8 @@ def brunner_munzel(a, b, alternative):
         else:
             direct = min(1.0, 2.0 * min(lower, upper))
         out["pDirectTail"] = direct
+        # scipy's p from this df: equal up to scipy's absolute precision there (1e-15)
+        assert abs(direct - p) <= 1e-9 * direct + 1e-15, (alternative, statistic, df, p, direct)
     else:
         out["pDirectTail"] = None
     if None in (out["statistic"], out["df"], out["p"]):
@@ -151,6 +162,24 @@ def brunner_munzel(a, b, alternative):
                          "(a group with fewer than 2 observations, or both placement variances 0)"
                          % (statistic, p, df))
     return out
+
+
+def yuen_parts(x):
+    """Yuen (1974), for one group: g = floor(n / 5) values (the 20 % trim: TRIM = 0.2 = 1/5, so
+    the floor is taken in whole numbers) are cut from each end, h = n - 2g remain, the winsorized sample
+    sets the g lowest values to x_(g+1) and the g highest to x_(n-g), and d = SSD_w / (h (h - 1)) with
+    SSD_w the sum of squared deviations of the winsorized sample from its mean. Returns (d, h); d is nan
+    when h < 2."""
+    assert TRIM == 0.2
+    xs = np.sort(np.asarray(x, dtype=float))
+    n = len(xs)
+    g = n // 5
+    h = n - 2 * g
+    if h < 2:
+        return float("nan"), h
+    w = np.clip(xs, xs[g], xs[n - g - 1])
+    ssd = float(np.sum((w - np.mean(w)) ** 2))
+    return ssd / (h * (h - 1)), h
 
 
 def yuen_welch(a, b, alternative):
@@ -164,18 +193,22 @@ def yuen_welch(a, b, alternative):
         df = float("nan")
         difference = float("nan")
         if len(x) > 0 and len(y) > 0:
-            # scipy 1.10.1 ttest_ind(trim != 0): _ttest_trim_var_mean_len then _unequal_var_ttest_denom
-            v1, m1, n1 = stats._stats_py._ttest_trim_var_mean_len(x, TRIM, 0)
-            v2, m2, n2 = stats._stats_py._ttest_trim_var_mean_len(y, TRIM, 0)
-            vn1 = v1 / n1
-            vn2 = v2 / n2
-            df = float((vn1 + vn2) ** 2 / (vn1 ** 2 / (n1 - 1) + vn2 ** 2 / (n2 - 1)))
+            # df from Yuen (1974), which ttest_ind does not return (yuen_parts below); checked against scipy's p
+            d1, h1 = yuen_parts(x)
+            d2, h2 = yuen_parts(y)
+            spread = d1 ** 2 / (h1 - 1) + d2 ** 2 / (h2 - 1)
+            df = float((d1 + d2) ** 2 / spread) if spread > 0 else float("nan")
             difference = float(stats.trim_mean(x, TRIM) - stats.trim_mean(y, TRIM))
+            if math.isfinite(t) and math.isfinite(df) and p > 1e-300:
+                tail = float(stats.t.sf(abs(t), df))
+                expected = {"two-sided": min(1.0, 2.0 * tail), "greater": float(stats.t.sf(t, df)),
+                            "less": float(stats.t.cdf(t, df))}[alternative]
+                assert abs(expected - p) <= 1e-9 * p, (alternative, t, df, p, expected)
     out = {"t": finite_or_none(t), "df": finite_or_none(df), "p": finite_or_none(p),
            "difference": finite_or_none(difference)}
     if None in (out["t"], out["df"], out["p"]):
-        # scipy replaces an undefined df by 1 (both variances 0) and returns t = +-inf or nan; the test is
-        # undefined then, so t, df and p are all null (the trimmed-mean difference stays when it exists).
+        # scipy returns t = +-inf or nan here; the test is undefined then, so t, df and p are all null
+        # (the trimmed-mean difference stays when it exists).
         out["t"] = out["df"] = out["p"] = None
         out["reason"] = ("scipy.stats.ttest_ind(trim=0.2) returned t=%r, p=%r with df %r "
                          "(fewer than 2 observations left after trimming, or both winsorized variances 0)"

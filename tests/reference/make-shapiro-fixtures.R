@@ -48,8 +48,8 @@ add <- function(name, description, x) {
   } else {
     entry$w <- unname(res$statistic)
     entry$p <- res$p.value
-    # W is location invariant, but shapiro.test scales the data by their range without centring them,
-    # so far from 0 (e.g. 1e6 + values with a spread of 1) its W loses digits. The same test on the
+    # W is location invariant, but shapiro.test's W moves when the data are shifted, so far from 0
+    # (e.g. 1e6 + values with a spread of 1) it loses digits. The same test on the
     # data shifted by their median is recorded beside it.
     centred <- shapiro.test(x - median(x))
     entry$wCentred <- unname(centred$statistic)

@@ -15,8 +15,8 @@ const fixture = loadFixture<{
   families: Family[];
 }>('r-adjust.json');
 
-// Tolerance: the adjustment is one multiplication (and a division for BH) per value, in the same order as R,
-// so agreement is to a few ulps: relative 4·Number.EPSILON.
+// Tolerance: each adjusted value is one multiplication (and, for BH, a division) of an input value, so two
+// correct computations can differ only by the rounding of those steps: relative 4·Number.EPSILON.
 const REL = 4 * Number.EPSILON;
 
 function expectClose(actual: (number | null)[], expected: (number | null)[], label: string): void {

@@ -47,10 +47,10 @@ const fixture = loadFixture<{
 /**
  * Tolerances (relative):
  *   estimate vs R's median(outer(a, b, "-")): 1e-12. Both take the same double differences; for an even
- *     count R averages the two middle ones in long double, we use a correctly rounded midpoint. Observed: 0.
+ *     count we use a correctly rounded midpoint of the two middle ones. Observed: 0.
  *   interval bounds: 1e-12. They are order statistics of the same double differences (observed: 0 against
- *     R; against coin ≤ 1.3e-16, because coin merges differences within √ε of each other and keeps the
- *     larger, e.g. 0.9 where R's sort(outer()) has 0.8999999999999999).
+ *     R; against coin ≤ 1.3e-16: coin's bound is 0.9 where R's sort(outer()) and ours have
+ *     0.8999999999999999, so coin treats differences that agree to a few ulps as one).
  *   achievedLevel vs exact coverage 1 − 2·pwilcox(qu − 1) computed by R: 1e-10 (observed 5e-16).
  */
 const EST_TOL = 1e-12;
@@ -389,6 +389,68 @@ describe('properties', () => {
       }),
       { numRuns: 80 },
     );
+  });
+});
+
+describe('exact tie-free interval: the quantile of U read in exact arithmetic', () => {
+  // Independent of floating point: the counts of U = 0, 1, … under H0 are the coefficients of the Gaussian
+  // binomial [n_a + n_b choose n_a]_q (exact BigInt arithmetic), and a decimal level = L/1000 gives the tail
+  // α/2 = (1000 − L)/2000 exactly, so qu = the smallest u with 2000·#(U ≤ u) ≥ (1000 − L)·C(n_a + n_b, n_a).
+  // With a_i = i·n_b and b_j = −j − ½ every difference is distinct and D_(k) = k − ½, so lower = qu − ½
+  // (qu raised to 1 when it is 0). The grid includes levels where P(U ≤ u) equals α/2 exactly
+  // (e.g. n_a = 1, n_b = 19, level 0.9: P(U ≤ 0) = 1/20 = α/2), where rounding decides if the slack is missing.
+  function uCounts(na: number, nb: number): bigint[] {
+    let poly: bigint[] = [1n];
+    for (let i = 1; i <= na; i++) {
+      const next = poly.concat(new Array<bigint>(nb + i).fill(0n));
+      for (let k = next.length - 1; k >= nb + i; k--) next[k] -= next[k - nb - i];
+      poly = next;
+    }
+    for (let i = 1; i <= na; i++) for (let k = i; k < poly.length; k++) poly[k] += poly[k - i];
+    return poly.slice(0, na * nb + 1);
+  }
+  it('n_a, n_b ≤ 20, levels 0.5 … 0.999: lower bound = D_(qu) exactly', () => {
+    let equalities = 0;
+    for (let na = 1; na <= 20; na++) {
+      for (let nb = 1; nb <= 20; nb++) {
+        const counts = uCounts(na, nb);
+        const total = counts.reduce((x, y) => x + y, 0n);
+        const a = fromValues(Object.freeze(Array.from({ length: na }, (_, i) => i * nb)));
+        const b = fromValues(Object.freeze(Array.from({ length: nb }, (_, j) => -j - 0.5)));
+        for (const L of [500, 600, 750, 800, 900, 950, 980, 990, 995, 999]) {
+          let cumulative = 0n;
+          let qu = 0;
+          while (2000n * (cumulative + counts[qu]) < BigInt(1000 - L) * total) cumulative += counts[qu++];
+          if (2000n * (cumulative + counts[qu]) === BigInt(1000 - L) * total) equalities++;
+          const h = hodgesLehmann(a, b, { alternative: 'two-sided', confidenceLevel: L / 1000, exact: 'always' });
+          expect(h.ci.lower, `n_a = ${na}, n_b = ${nb}, level ${L / 1000}: expected D_(${Math.max(1, qu)})`).toBe(Math.max(1, qu) - 0.5);
+        }
+      }
+    }
+    expect(equalities).toBeGreaterThan(5);
+  });
+});
+
+describe('exact conditional interval: cumulative probability just below α', () => {
+  // Invented tied 0–3 data (found by a random search). For "less" at level 0.5 the one-sided bound uses the
+  // 1 − α = 0.5 quantile of U, and here P(U ≤ u) = 0.4999999991… at the candidate u: below 0.5 by 9e-10, far
+  // more than rounding, so by the definition the quantile is the next support point and the bound is D = 0,
+  // with coverage 0.5000000009 ≥ 0.5. R coin 1.4-2 (black box, wilcox_test(distribution = "exact") and
+  // confint at level 0.5) gives the upper bound 1 instead, with coverage a hair below 0.5.
+  const a = fromValues(Object.freeze([0, 0, 0, 0, 1, 1, 1, 1, 1, 2, 2, 2, 2, 3, 3, 3, 3, 3, 3, 3]));
+  const b = fromValues(Object.freeze([0, 0, 0, 0, 0, 0, 0, 1, 1, 1, 1, 1, 1, 2, 2, 2, 3, 3, 3, 3]));
+  it('"less", level 0.5: upper = 0 and achievedLevel ≥ 0.5', () => {
+    const h = hodgesLehmann(a, b, { alternative: 'less', confidenceLevel: 0.5, exact: 'always' });
+    expect(h.ci.lower).toBeNull();
+    expect(h.ci.upper).toBe(0);
+    expect(h.ci.achievedLevel!).toBeGreaterThanOrEqual(0.5);
+    // the near miss: the coverage exceeds 0.5 by less than 1e-8 (it is 0.5 + 8.8e-10)
+    expect(h.ci.achievedLevel! - 0.5).toBeLessThan(1e-8);
+  });
+  it('"greater", level 0.5: lower = 0 (as coin) and achievedLevel ≥ 0.5', () => {
+    const h = hodgesLehmann(a, b, { alternative: 'greater', confidenceLevel: 0.5, exact: 'always' });
+    expect(h.ci.lower).toBe(0);
+    expect(h.ci.achievedLevel!).toBeGreaterThanOrEqual(0.5);
   });
 });
 

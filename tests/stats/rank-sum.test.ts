@@ -45,8 +45,8 @@ const fixture = loadFixture<{
  *   U = R's W: exact (both are sums of halves, exact in doubles).
  *   normal-method p (R: pnorm; here the erfc-based normal tail of distributions.ts): 1e-9 — the same z,
  *     two accurate tail routines; observed worst about 1e-14. The issue allows 1e-6.
- *   exact p (R's pwilcox sums cwilcox counts; coin sums its shift-algorithm probabilities; here the
- *     probabilities come from a product-form dynamic programme): 1e-10; observed worst about 1e-14.
+ *   exact p (R's pwilcox and coin's exact distribution, computed by those packages in their own ways; here
+ *     the probabilities come from a product-form dynamic programme): 1e-10; observed worst about 1e-14.
  */
 const P_NORMAL_TOL = 1e-9;
 const P_EXACT_TOL = 1e-10;

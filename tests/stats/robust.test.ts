@@ -1,6 +1,6 @@
 import fc from 'fast-check';
 import { describe, expect, it } from 'vitest';
-import { brunnerMunzel, yuenWelch } from '../../stats/robust.js';
+import { brunnerMunzel, trimmedCount, yuenWelch } from '../../stats/robust.js';
 import { expand, fromCounts, fromValues, type Sample } from '../../stats/sample.js';
 import type { Alternative, BrunnerMunzelResult, YuenWelchResult } from '../../stats/types.js';
 import { loadFixture } from './fixtures.js';
@@ -102,14 +102,15 @@ describe.each(scipy.datasets)('against scipy 1.10.1: $name', (ds) => {
     // statistic near 0 carries ~n·eps absolute rounding; observed worst 2.5e-14 relative)
     // our statistic is positive when a is larger: −1 × scipy's (stats/robust.ts header)
     expectRel(r.statistic === null ? null : -r.statistic, ref.statistic, 1e-9, `${what} statistic`, 1e-12);
-    // source: df by scipy 1.10.1's own formula (recomputed in make-scipy-fixtures.py); relative ≤ 1e-9
+    // source: df from Brunner & Munzel (2000) in make-scipy-fixtures.py, which checks scipy's p is the t tail
+    // at that df (scipy does not return df); relative ≤ 1e-9
     expectRel(r.df, ref.df, 1e-9, `${what} df`);
     // source: scipy.stats.t.cdf / t.sf at scipy's statistic and df (pDirectTail); relative ≤ 1e-6 for
     // p ≥ 1e-300 (observed worst 4e-13); below 1e-300 only "tiny" is asserted.
     if (ref.pDirectTail! >= 1e-300) expectRel(r.p, ref.pDirectTail!, 1e-6, `${what} p (direct tail)`);
     else expect(r.p!).toBeLessThan(1e-290);
-    // source: scipy.stats.brunnermunzel(...).pvalue; relative ≤ 1e-6, plus 1e-15 absolute because scipy
-    // forms "less" and half of "two-sided" as 1 − cdf (e.g. it returns 0 where the tail is 1e-253).
+    // source: scipy.stats.brunnermunzel(...).pvalue; relative ≤ 1e-6, plus 1e-15 absolute because scipy's
+    // p keeps only absolute precision for "less" and some "two-sided" cases (it returns 0 where the tail is 1e-253).
     expectRel(r.p, ref.p!, 1e-6, `${what} p (scipy)`, 1e-15);
   });
 
@@ -129,7 +130,7 @@ describe.each(scipy.datasets)('against scipy 1.10.1: $name', (ds) => {
     }
     // source: scipy.stats.ttest_ind(a, b, equal_var=False, trim=0.2, alternative).statistic; relative ≤ 1e-9
     expectRel(r.t, ref.t, 1e-9, `${what} t`);
-    // source: df as scipy's _unequal_var_ttest_denom computes it (make-scipy-fixtures.py); relative ≤ 1e-9
+    // source: df from Yuen (1974) in make-scipy-fixtures.py, checked there against scipy's p; relative ≤ 1e-9
     expectRel(r.df, ref.df!, 1e-9, `${what} df`);
     // source: scipy.stats.ttest_ind(...).pvalue (special.stdtr, a direct tail); relative ≤ 1e-6
     expectRel(r.p, ref.p!, 1e-6, `${what} p`);
@@ -235,6 +236,27 @@ describe('yuenWelch edge cases', () => {
     expectRel(r.p, 0.07939414, 1e-6, 'p');
   });
 
+  it('trimming count g = ⌊γ·n⌋ read as the decimal γ stands for (the project\'s rule, stats/robust.ts header)', () => {
+    // 0.29 × 100 = 28.999999999999996 in double precision; the decimal product is 29 (hand arithmetic).
+    expect(0.29 * 100).toBeLessThan(29);
+    expect(trimmedCount(100, 0.29)).toBe(29);
+    // Exact products and ordinary cases (hand arithmetic): ⌊0.2·10⌋ = 2, ⌊0.2·15⌋ = 3, ⌊0.2·14⌋ = 2, ⌊0.1·30⌋ = 3,
+    // ⌊0.4·5⌋ = 2, ⌊0.2·4⌋ = 0, and 0 for γ = 0 or n ≤ 1.
+    const cases: [number, number, number][] = [[10, 0.2, 2], [15, 0.2, 3], [14, 0.2, 2], [30, 0.1, 3], [5, 0.4, 2], [4, 0.2, 0], [7, 0, 0], [1, 0.4, 0], [0, 0.2, 0]];
+    for (const [n, trim, g] of cases) expect(trimmedCount(n, trim), `trimmedCount(${n}, ${trim})`).toBe(g);
+    // Every γ = k/100 and n ≤ 200: g is the whole part of the exact rational k·n/100 (checked in integers).
+    for (let k = 0; k < 50; k++) {
+      for (let n = 0; n <= 200; n++) expect(trimmedCount(n, k / 100), `trimmedCount(${n}, ${k}/100)`).toBe(Math.floor((k * n) / 100));
+    }
+    // At least one value is always kept.
+    expect(trimmedCount(2, 0.49999999999999994)).toBe(0);
+    // Through yuenWelch: a = 1², 2², …, 100² with γ = 0.29 keeps ranks 30 … 71, whose mean is
+    // (Σ_{i≤71} i² − Σ_{i≤29} i²)/42 = (121836 − 8555)/42 = 113281/42; b = [0, 0] keeps both (⌊0.58⌋ = 0).
+    const squares = Array.from({ length: 100 }, (_, i) => (i + 1) ** 2);
+    const r = yuenWelch(S(squares), S([0, 0]), { alternative: 'two-sided', trim: 0.29 });
+    expectRel(r.difference, 113281 / 42, 4 * Number.EPSILON, 'difference (pure arithmetic: relative 4ε)');
+  });
+
   it('rejects a bad trim or alternative', () => {
     for (const trim of [-0.1, 0.5, 0.7, Number.NaN, Infinity]) {
       expect(() => yuenWelch(S([1, 2, 3]), S([4, 5, 6]), { alternative: 'two-sided', trim })).toThrow(RangeError);
@@ -244,35 +266,40 @@ describe('yuenWelch edge cases', () => {
 });
 
 // ── properties ───────────────────────────────────────────────────────────────────────────────────────
-/** Direct transcription of scipy's brunnermunzel on expanded data (mid-ranks by sorting), for checks. */
+/**
+ * The Brunner–Munzel statistic (scipy's sign: positive when b tends to be larger) and df on expanded data,
+ * straight from the definitions of Brunner & Munzel (2000): mid-ranks counted pairwise
+ * (R = #(<) + (#(=) + 1)/2) among all N observations and within each group, S²_i = Σ (R − R^(i) − R̄_i +
+ * (n_i + 1)/2)² / (n_i − 1), σ̂²_i = S²_i / (N − n_i)², σ̂²_N = N·Σ σ̂²_i / n_i, W = (R̄_b − R̄_a) / (√N·σ̂_N),
+ * f̂ = (Σ N σ̂²_i / n_i)² / Σ (N σ̂²_i / n_i)² / (n_i − 1). O(N²), for checks only.
+ */
 function bmNaive(a: readonly number[], b: readonly number[]): { statistic: number; df: number } {
-  const midranks = (x: readonly number[]): number[] => {
-    const idx = x.map((v, i) => [v, i] as const).sort((p, q) => p[0] - q[0]);
-    const r = new Array<number>(x.length);
-    for (let i = 0; i < idx.length; ) {
-      let j = i;
-      while (j + 1 < idx.length && idx[j + 1][0] === idx[i][0]) j++;
-      for (let k = i; k <= j; k++) r[idx[k][1]] = (i + j) / 2 + 1;
-      i = j + 1;
+  const midrank = (v: number, among: readonly number[]): number => {
+    let less = 0;
+    let equal = 0;
+    for (const w of among) {
+      if (w < v) less++;
+      else if (w === v) equal++;
     }
-    return r;
+    return less + (equal + 1) / 2;
   };
-  const nx = a.length;
-  const ny = b.length;
-  const rc = midranks([...a, ...b]);
-  const rx = midranks(a);
-  const ry = midranks(b);
-  const mean = (v: number[]): number => v.reduce((s, t) => s + t, 0) / v.length;
-  const rcx = rc.slice(0, nx);
-  const rcy = rc.slice(nx);
-  const mcx = mean(rcx);
-  const mcy = mean(rcy);
-  const mx = mean(rx);
-  const my = mean(ry);
-  const sx = rcx.reduce((s, v, i) => s + (v - rx[i] - mcx + mx) ** 2, 0) / (nx - 1);
-  const sy = rcy.reduce((s, v, i) => s + (v - ry[i] - mcy + my) ** 2, 0) / (ny - 1);
-  const statistic = (nx * ny * (mcy - mcx)) / ((nx + ny) * Math.sqrt(nx * sx + ny * sy));
-  const df = (nx * sx + ny * sy) ** 2 / ((nx * sx) ** 2 / (nx - 1) + (ny * sy) ** 2 / (ny - 1));
+  const all = [...a, ...b];
+  const N = all.length;
+  const parts = [a, b].map((x) => {
+    const n = x.length;
+    const overall = x.map((v) => midrank(v, all));
+    const own = x.map((v) => midrank(v, x));
+    const meanRank = overall.reduce((s, r) => s + r, 0) / n;
+    const s2 = overall.reduce((s, r, k) => s + (r - own[k] - meanRank + (n + 1) / 2) ** 2, 0) / (n - 1);
+    const sigma2 = s2 / (N - n) ** 2;
+    return { n, meanRank, sigma2 };
+  });
+  const [pa, pb] = parts;
+  const termA = (N * pa.sigma2) / pa.n;
+  const termB = (N * pb.sigma2) / pb.n;
+  const sigmaN = Math.sqrt(N * (pa.sigma2 / pa.n + pb.sigma2 / pb.n));
+  const statistic = (pb.meanRank - pa.meanRank) / (Math.sqrt(N) * sigmaN);
+  const df = (termA + termB) ** 2 / (termA ** 2 / (pa.n - 1) + termB ** 2 / (pb.n - 1));
   return { statistic, df };
 }
 
@@ -336,7 +363,7 @@ describe('properties (fast-check)', () => {
     );
   });
 
-  it('BM from the O(K) merge equals a direct transcription of scipy\'s formula on the expanded data', () => {
+  it('BM from the O(K) merge equals the paper\'s rank formulas evaluated on the expanded data', () => {
     fc.assert(
       fc.property(group, group, (x, y) => {
         const r = brunnerMunzel(S(x), S(y), { alternative: 'two-sided' });

@@ -32,8 +32,8 @@ const fixture = loadFixture<{
  *   W for its coefficients (checked in rational arithmetic on the n ≥ 50 data sets); R's W differs from
  *   that by up to 9e-14, and for n = 5000 with W near 1, p magnifies a relative change in W by about
  *   W/(1 − W)·(1/σ) ≈ 1e3.
- * R's shapiro.test scales the data by their range without centring them, so on data far from 0 relative
- * to their spread its own W moves with the shift (W is location invariant): on large-offset-n30 by 1.9e-12
+ * R's shapiro.test is not location invariant in floating point: on data far from 0 relative to their
+ * spread its W moves with a shift of the data (W itself is location invariant): on large-offset-n30 by 1.9e-12
  * relative, on magnitude-1e12 (r-reference.json) by up to 6.3e-7. stats/shapiro-wilk.ts centres first, so
  * it is compared with R on the data shifted by their median (wCentred / shapiroCentred) at the tolerances
  * above, and with R's unshifted value at bounds a little above R's own shift error (R_SHIFT_ERROR).
