@@ -275,6 +275,10 @@ async function profile(): Promise<Record<string, unknown>> {
       add('total parse + validation + store', plus(plus(parse, validate), tx));
       log(`profile rep ${r + 1}/${REPS}: parse ${parse.wall.toFixed(1)} ms, validate ${validate.wall.toFixed(1)} ms, tx ${tx.wall.toFixed(1)} ms (wall)`);
     }
+    // Guard: the replay wrote what the real transaction wrote.
+    const rowsOf = (db: Database.Database): string =>
+      (db.prepare(`SELECT (SELECT count(*) FROM responses), (SELECT count(*) FROM response_values), (SELECT sum(count) FROM value_counts)`).raw().get() as number[]).join('/');
+    if (rowsOf(real.db) !== rowsOf(copy.db)) throw new Error(`profile: the replay stored ${rowsOf(copy.db)} rows, the store ${rowsOf(real.db)}`);
     await real.close();
     await copy.close();
     const w = (v: Clock[]): number[] => v.map((x) => x.wall);
@@ -511,6 +515,10 @@ function runVariant(v: Variant, batches: PlainItem[][]): VariantResult {
       const c = process.cpuUsage(batchCpu0);
       cpuMs.push((c.user + c.system) / 1000);
     }
+    // Guard: the timed code did the whole work.
+    const n = batches.reduce((t, x) => t + x.length, 0);
+    const got = db.prepare(`SELECT (SELECT count(*) FROM responses), (SELECT count(*) FROM response_values), (SELECT sum(count) FROM value_counts)`).raw().get() as number[];
+    if (got[0] !== n || got[1] !== 3 * n || got[2] !== 2 * n) throw new Error(`prototype ${v.name}: stored ${got.join('/')} rows, expected ${n}/${3 * n}/${2 * n}`);
     return { batchMs, cpuMs, stepMs, stepCpu };
   } finally {
     db.close();
@@ -576,7 +584,40 @@ function prototype(): Record<string, unknown> {
     h2.push(timed(() => canon.forEach((s) => oneShotHash('sha256', s, 'buffer')))[1].cpu);
   }
   process.stdout.write(table(['hash of the canonical string (no stringify)', 'CPU µs / response'], [['createHash().update().digest()', us(median(h1))], ['crypto.hash one-shot', us(median(h2))]]) + '\n\n');
+  // The floor: what SQLite itself does with narrow rows on this machine (4 rows per response: 1 + 3 values), one
+  // transaction per 10,000 responses, one cached single-row INSERT, no index, no foreign key, no JavaScript work
+  // beyond the bind.
+  const floorCpu: number[] = [];
+  const floorWall: number[] = [];
+  {
+    const dir = tempDir();
+    const db = openScratch(join(dir, 'floor.db'), false);
+    try {
+      db.exec(`CREATE TABLE narrow (a INTEGER NOT NULL, b INTEGER NOT NULL, v REAL NOT NULL) STRICT`);
+      const ins = db.prepare(`INSERT INTO narrow (a, b, v) VALUES (?, ?, ?)`);
+      const tx = db.transaction((items: PlainItem[], first: number) => {
+        for (let i = 0; i < items.length; i++) {
+          ins.run(first + i, items[i].condition, 0);
+          for (const [m, x] of items[i].values) ins.run(first + i, m, x);
+        }
+      });
+      for (let b = 0; b < batches.length; b++) {
+        const [, c] = timed(() => tx.immediate(batches[b], b * BATCH));
+        if (b > 0) (floorCpu.push(c.cpu), floorWall.push(c.wall));
+      }
+    } finally {
+      db.close();
+      rmSync(dir, { recursive: true, force: true });
+    }
+  }
+  process.stdout.write(
+    table(
+      ['floor: 4 narrow rows per response into a plain rowid table, 1 row / INSERT, one transaction per batch', 'wall µs / response', 'CPU µs / response'],
+      [['(no index, no foreign key, commit included)', us(median(floorWall)), us(median(floorCpu))]],
+    ) + '\n\n',
+  );
   return {
+    floorUsPerResponse: { wall: (median(floorWall) * 1000) / BATCH, cpu: (median(floorCpu) * 1000) / BATCH },
     variants: variants.map((v) => ({ ...v, usPerResponse: (median(results.get(v.name)!.batchMs) * 1000) / BATCH, cpuUsPerResponse: (median(results.get(v.name)!.cpuMs) * 1000) / BATCH, steps: Object.fromEntries(stepNames.map((s) => [s, { wallUs: (median(results.get(v.name)!.stepMs[s]) * 1000) / BATCH, cpuUs: (median(results.get(v.name)!.stepCpu[s]) * 1000) / BATCH }])) })),
     hashUs: { createHash: (median(h1) * 1000) / BATCH, oneShot: (median(h2) * 1000) / BATCH },
   };
