@@ -16,9 +16,10 @@
  *   Classic (Fisher), as R's oneway.test(var.equal = TRUE) / anova(lm()):
  *     SS_between = Σ n_i (x̄_i − x̄)², SS_within = Σ (n_i − 1) s_i², F = [SS_b/(k − 1)] / [SS_w/(N − k)],
  *     df1 = k − 1, df2 = N − k.
- *     η² = SS_b / (SS_b + SS_w)  (Pearson 1905's correlation ratio; Cohen 1988 §8.2);
- *     ω² = (SS_b − (k − 1)·MS_w) / (SS_b + SS_w + MS_w)  (Hays 1963), floored at 0 is NOT applied: a
- *       negative estimate is reported as computed (it says the between-condition spread is below chance).
+ *     η² = SS_b / (SS_b + SS_w)  (Pearson's correlation ratio; Cohen 1988, ch. 8);
+ *     ω² = (SS_b − (k − 1)·MS_w) / (SS_b + SS_w + MS_w)  (Hays 1963). It is not floored at 0: a negative
+ *       estimate is reported as computed (the spread between conditions is below what chance alone gives).
+ *     These belong to the mean route as a whole (Welch's F has no agreed variance-explained measure of its own).
  *   F tail: P(F_{d1,d2} > f) = I_y(d2/2, d1/2) with y = d2/(d2 + d1·f) formed directly (no 1 − x), through
  *     the project's regularized incomplete beta (distributions.ts).
  *
@@ -29,7 +30,7 @@
  *   Hays, W. L. (1963). Statistics for Psychologists. Holt, Rinehart & Winston (ω²).
  *   Cohen, J. (1988). Statistical Power Analysis for the Behavioral Sciences, 2nd ed. Erlbaum (η²).
  *   Olejnik, S. & Algina, J. (2003). Generalized eta and omega squared statistics. Psychological Methods
- *     8(4), 434–447. doi:10.1037/1082-989X.8.4.434 (the ω² formula for a one-way design, their Table 2).
+ *     8(4), 434–447. doi:10.1037/1082-989X.8.4.434 (ω² for a one-way design between subjects).
  *
  * Cost: O(Σ K_i) for the moments (K_i distinct values of condition i); O(k) from moments.
  */

@@ -7,7 +7,7 @@
  * reported is two-sided, 2·P(Z > |z|) (packages differ on this: some report one-sided p = P(Z > |z|)).
  * The difference is i − j (first condition of the pair minus the second, in input order).
  *
- * Method (Dunn 1964, with the tie correction as in Dunn's paper and Hollander, Wolfe & Chicken 2014 §6.5)
+ * Method (Dunn 1964; the tie-corrected variance as given by Hollander, Wolfe & Chicken 2014)
  *   z_ij = (R̄_i − R̄_j) / √( [N(N + 1)/12 − Σ(t³ − t)/(12(N − 1))] · (1/n_i + 1/n_j) ),
  *   where the bracket equals Σ t(N − t)(N + t) / (12(N − 1)) (the form used here; no cancellation).
  *   p_ij = 2·Q(|z_ij|) by the normal tail (erfc-accurate, distributions.ts); Holm-adjusted over the

@@ -14,7 +14,7 @@
  *     t_upper = (d − m)/se, p_upper = P(T_ν < t_upper); ν the Welch–Satterthwaite df; the interval is
  *     Welch's two-sided (1 − 2α) interval for a − b. All through welch.ts (welchFromMoments on the means
  *     shifted by ±m, with alternative "greater" / "less").
- *   Rank TOST (Wellek 2010, ch. 6, the shift form): the rank-sum test of (a + m) against b with the
+ *   Rank TOST (Schuirmann's construction applied to the rank-sum test of a location shift, Bauer 1972): the rank-sum test of (a + m) against b with the
  *     alternative "greater" (lower test; equivalent to wilcox.test(a, b, mu = −m, alternative = "greater"))
  *     and of (a − m) against b with "less" (upper test; mu = +m). Each uses the project's rank-sum test
  *     (rank-sum.ts) on the shifted Sample with the same method rule as the ordinary comparison ("auto":
@@ -35,7 +35,10 @@
  *     doi:10.1007/BF01068419
  *   Lakens, D. (2017). Equivalence tests: a practical primer for t tests, correlations, and meta-analyses.
  *     Social Psychological and Personality Science 8(4), 355–362. doi:10.1177/1948550617697177
- *   Wellek, S. (2010). Testing Statistical Hypotheses of Equivalence and Noninferiority, 2nd ed. CRC Press.
+ *   Bauer, D. F. (1972). Constructing confidence sets using rank statistics. JASA 67(339), 687–690.
+ *     doi:10.1080/01621459.1972.10481279 (the rank-sum test of a shift μ: compare a − μ with b)
+ *   Wellek, S. (2010). Testing Statistical Hypotheses of Equivalence and Noninferiority, 2nd ed. CRC Press
+ *     (background on equivalence testing; its rank-based test is on the P(A > B) scale, not the one used here).
  *
  * Cost: Welch O(K_a + K_b); rank O(K_a + K_b) for the normal method, plus the exact distribution and the
  * Hodges–Lehmann interval where they are used (bounded as in rank-sum.ts and hodges-lehmann.ts).

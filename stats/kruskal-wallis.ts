@@ -15,7 +15,7 @@
  *       C = Σ t(N − t)(N + t) / (N³ − N) (no cancellation when most answers tie),
  *     H = H₀ / C,  df = k − 1,  p = P(χ²_{k−1} > H) (chi-square tail computed directly, distributions.ts).
  *   Effect size ε² = H / ((N² − 1)/(N + 1)) = H/(N − 1) (Kelley 1935's ε² in the rank form given by
- *   Tomczak & Tomczak 2014, eq. 7); 0 means no separation, 1 complete separation of the conditions.
+ *   Tomczak & Tomczak 2014); 0 means no separation, 1 complete separation of the conditions.
  *   The pooled ranks come from a k-way merge of the conditions' sorted distinct values, so a bounded
  *   integer item costs O(D · k) (D distinct pooled values) whatever the number of answers.
  *
