@@ -9,8 +9,8 @@
  *       `integrated` — the definition integrated independently with R's integrate() (QUADPACK QAGS, rel.tol 1e-13);
  *       `ptukey` / `ptukeyLower` — R's ptukey(q, k, df, lower.tail = FALSE / TRUE).
  * Tolerances (relative): 1e-8 against `integrated` on the upper tail wherever it is ≥ 1e-13 (the target of the
- * issue; the observed worst is printed by the failure message); against R's ptukey 1e-6 wherever its upper tail is
- * ≥ 1e-3 and ν ≥ 5 — at ν ≤ 3, and below 1e-3 everywhere, R's ptukey is itself inaccurate (e.g. P(Q > 1000; 10, 2) = 1.86e-13 from ptukey against
+ * issue; the observed worst is printed by the failure message); against R's ptukey 1e-4 (its own accuracy) wherever its upper tail
+ * is ≥ 1e-3 and ν ≥ 5 — at ν ≤ 3, and below 1e-3 everywhere, R's ptukey is itself inaccurate (e.g. P(Q > 1000; 10, 2) = 1.86e-13 from ptukey against
  * 1.01e-5 by the definition and by simulation), so the fixture's `integrated` value is the reference there.
  */
 import { describe, expect, it } from 'vitest';
@@ -70,15 +70,23 @@ describe('studentized range against R (r-ptukey.json)', () => {
     expect(worst, `worst relative error ${worst} at ${worstAt}; tolerance 1e-8`).toBeLessThanOrEqual(1e-8);
   });
 
-  it('upper tail and cdf within 1e-6 of R’s ptukey where its upper tail is ≥ 1e-3 and ν ≥ 5', () => {
-    // At ν = 2 and 3 R's ptukey is off by more than 1e-6 even at moderate q: at q = 0.1, k = 2, ν = 2 it gives
-    // 0.95006108 where the exact identity 2·P(T_2 > q/√2) = 0.95006238 (relative 1.4e-6) agrees with this module.
+  it('agrees with R’s ptukey to R’s own accuracy (relative 1e-4) where its upper tail is ≥ 1e-3 and ν ≥ 5', () => {
+    // R's ptukey is the looser of the two references: at q = 6.97576, k = 3, ν = 5 it gives 0.0099998033 where the
+    // integrated definition gives 0.0099998593 (this module agrees with the latter to 1e-8), and at ν = 2 and 3 it
+    // is off by more (q = 0.1, k = 2, ν = 2: 0.95006108 against the exact 2·P(T_2 > q/√2) = 0.95006238).
+    let worst = 0;
+    let worstAt = '';
     for (const p of fixture.points) {
       if (p.ptukey < 1e-3 || (p.df !== 'Infinity' && p.df < 5)) continue;
-      const what = `q = ${p.q}, k = ${p.k}, df = ${p.df}`;
-      expectRel(studentizedRangeUpperTail(p.q, p.k, dfOf(p)), p.ptukey, 1e-6, `${what} upper`);
-      if (p.ptukeyLower >= 1e-6) expectRel(studentizedRangeCdf(p.q, p.k, dfOf(p)), p.ptukeyLower, 1e-6, `${what} cdf`);
+      const upper = studentizedRangeUpperTail(p.q, p.k, dfOf(p));
+      const err = relErr(upper, p.ptukey);
+      if (err > worst) {
+        worst = err;
+        worstAt = `q = ${p.q}, k = ${p.k}, df = ${p.df}: ptukey ${p.ptukey}, integrated ${p.integrated}, actual ${upper}`;
+      }
+      if (p.ptukeyLower >= 1e-3) expectRel(studentizedRangeCdf(p.q, p.k, dfOf(p)), p.ptukeyLower, 1e-4, `q = ${p.q}, k = ${p.k}, df = ${p.df} cdf`);
     }
+    expect(worst, `worst relative error against ptukey ${worst} at ${worstAt}; tolerance 1e-4`).toBeLessThanOrEqual(1e-4);
   });
 
   it('cdf and upper tail add to 1 (within 1e-10 absolute: each is computed on its own to relative 1e-8 outer tolerance)', () => {
