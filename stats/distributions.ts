@@ -135,7 +135,7 @@ export function logGamma(x: number): number {
 }
 
 /** Stirling correction δ(x) = lnΓ(x) − [(x − ½) ln x − x + ½ ln 2π], x > 0. */
-function stirlingCorrection(x: number): number {
+export function stirlingCorrection(x: number): number {
   if (x >= 10) return stirlingSeries(x);
   return logGamma(x) - ((x - 0.5) * Math.log(x) - x + LN_SQRT_2PI);
 }
@@ -697,7 +697,7 @@ function kronrodPanel(f: (u: number) => number, a: number, b: number): Panel {
 }
 
 /** Adaptive Gauss–Kronrod over consecutive panels given by `breaks` (sorted); global relative tolerance. */
-function integrateAdaptive(f: (u: number) => number, breaks: number[], relTol: number, maxPanels = 2000): number {
+export function integrateAdaptive(f: (u: number) => number, breaks: number[], relTol: number, maxPanels = 2000): number {
   const panels: Panel[] = [];
   for (let i = 0; i + 1 < breaks.length; i++) {
     if (breaks[i + 1] > breaks[i]) panels.push(kronrodPanel(f, breaks[i], breaks[i + 1]));
@@ -721,7 +721,7 @@ function integrateAdaptive(f: (u: number) => number, breaks: number[], relTol: n
 }
 
 /** e^(2u) − 1 − 2u without cancellation near u = 0 (Taylor polynomial for |2u| < 0.05, error < 1e-19). */
-function expm1MinusLinear(u: number): number {
+export function expm1MinusLinear(u: number): number {
   const w = 2 * u;
   if (Math.abs(w) < 0.05) {
     // Σ_{k≥2} w^k / k!, terms up to w^9

@@ -27,6 +27,10 @@
  *   floor_ceiling      more than 15 % of a group's answers at the scale minimum or maximum      — Terwee et al. (2007) doi:10.1016/j.jclinepi.2006.03.012
  *   interim            a planned size exists and a group has fewer answers than planned         — Armitage, McPherson & Rowe (1969): nominal p is no stopping rule
  *   excluded           excluded responses were left out                                        — service bookkeeping
+ * Three or more conditions (computed by omnibus-flags.ts, same Flag shape):
+ *   omnibus_tests_disagree  one of Welch's ANOVA p and the Kruskal–Wallis p below alpha, the other not — service rule
+ *   one_condition_drives    an omnibus test below alpha, and leaving out exactly one condition (and no other)
+ *                           lifts it to alpha or above                                        — service rule (leave-one-condition-out)
  *
  * Cost: O(K_a + K_b) in the number of distinct values.
  */
@@ -53,7 +57,10 @@ export type FlagCode =
   // Weighted comparisons (computed by weight-flags.ts; thresholds and sources in its header).
   | 'unequal_weights'
   | 'dominant_weight'
-  | 'weighting_changes_conclusion';
+  | 'weighting_changes_conclusion'
+  // three or more conditions (omnibus-flags.ts)
+  | 'omnibus_tests_disagree'
+  | 'one_condition_drives';
 
 export interface Flag {
   code: FlagCode;

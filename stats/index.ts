@@ -13,6 +13,16 @@
  * compareSamples computes each group's moments once (scaledMoments in descriptives.ts) and passes them
  * to Welch's and Student's tests, the effect sizes and the group summaries (same numbers, fewer passes).
  *
+ * Three or more conditions (issue 16; types below, methods in anova.ts, kruskal-wallis.ts, games-howell.ts,
+ * dunn.ts, equivalence.ts, omnibus-flags.ts):
+ *   compareConditions(values[], options)          raw answers of each condition                    O(Σ n_i log n_i)
+ *   compareConditionCounts(counts[], options)     per-value counts of a bounded integer item       O(K · k) + pairs
+ *   compareConditionSamples(samples[], options)   already-built Samples
+ * All return a frozen `ConditionsComparison`: group summaries, Welch's and the classic ANOVA, the
+ * Kruskal–Wallis test, every pair (Games–Howell, Dunn; `equivalence` when a margin is given) and the
+ * omnibus flags. The single tests (welchAnova, classicAnova, kruskalWallis, gamesHowellPairs, dunnPairs,
+ * welchTost, rankTost, equivalence, studentizedRangeUpperTail) are exported too.
+ *
  * Options: alternative "two-sided" (default) | "less" | "greater"; confidenceLevel in (0, 1), default
  * 0.95; exact "auto" (default) | "always" | "never" for the rank-sum test (rule in rank-sum.ts).
  *
@@ -23,7 +33,14 @@
  * Covariate adjustment (block `adjusted`; covariate-adjustment.ts):
  *   covariateAdjusted({ outcome, inA, covariates }, options)   Lin (2013) with HC2, beside the unadjusted   O(n·p²)
  */
-import { describe, scaledMoments, type Moments } from './descriptives.js';
+import { classicAnovaFromMoments, welchAnovaFromMoments, type ClassicAnovaResult, type FTestResult } from './anova.js';
+import { describe, moments, scaledMoments, type Moments } from './descriptives.js';
+import { dunnPairs, type DunnPair } from './dunn.js';
+import { equivalence, type EquivalenceResult } from './equivalence.js';
+import type { Flag } from './flags.js';
+import { gamesHowellPairs, type GamesHowellPair } from './games-howell.js';
+import { kruskalWallisFromRanks, pooledRanks, type KruskalWallisResult } from './kruskal-wallis.js';
+import { omnibusFlags } from './omnibus-flags.js';
 import { effectSizes } from './effect-sizes.js';
 import { hodgesLehmann } from './hodges-lehmann.js';
 import { analyseRankSum, rankSumFromAnalysis } from './rank-sum.js';
@@ -35,6 +52,26 @@ import { freezeDeep } from './types.js';
 import { studentTest, welchTest } from './welch.js';
 
 export * from './types.js';
+export { classicAnova, fisherUpperTail, welchAnova, type ClassicAnovaResult, type FTestResult } from './anova.js';
+export { kruskalWallis, pooledRanks, type KruskalWallisResult, type PooledRanks } from './kruskal-wallis.js';
+export { gamesHowellPairs, type GamesHowellPair } from './games-howell.js';
+export { dunnPairs, type DunnPair } from './dunn.js';
+export { studentizedRangeCdf, studentizedRangeUpperTail } from './studentized-range.js';
+export {
+  equivalence,
+  equivalenceVerdict,
+  rankTost,
+  welchTost,
+  welchTostFromMoments,
+  type EquivalenceOptions,
+  type EquivalenceResult,
+  type EquivalenceVerdict,
+  type EquivalenceVerdictCode,
+  type RankOneSided,
+  type RankTostResult,
+  type WelchOneSided,
+  type WelchTostResult,
+} from './equivalence.js';
 export { fromCounts, fromSortedValues, fromValues, fromWeighted, expand, type Sample } from './sample.js';
 export {
   unweighted,
@@ -152,4 +189,107 @@ export function compareCounts(
   const { min = 0, ...rest } = options;
   resolveOptions(rest);
   return compareSamples(fromCounts(countsA, min, 'countsA'), fromCounts(countsB, min, 'countsB'), rest);
+}
+
+// ---------------------------------------------------------------------------------------------------
+// Three or more conditions
+// ---------------------------------------------------------------------------------------------------
+
+export interface ConditionsOptions {
+  /** Names of the conditions, for the pairs and the flag messages; default "1", "2", … */
+  labels?: readonly string[];
+  /** Significance level for the flags and the equivalence verdicts, in (0, 0.5); default 0.05. */
+  alpha?: number;
+  /** Rank-sum method rule for the rank-based equivalence tests (as for compare); default "auto". */
+  exact?: ExactMode;
+  /** Equivalence margin m > 0 on the item's scale; when given, every pair carries `equivalence`. */
+  equivalenceMargin?: number | null;
+}
+
+/** One pair of conditions i < j (input order); every difference is i − j (a = condition i, b = condition j). */
+export interface ConditionPair {
+  i: number;
+  j: number;
+  a: string;
+  b: string;
+  gamesHowell: Omit<GamesHowellPair, 'i' | 'j'>;
+  /** Dunn's test: two-sided p and Holm-adjusted two-sided p over all pairs. */
+  dunn: Omit<DunnPair, 'i' | 'j'>;
+  /** Both TOST routes with verdicts; null when no margin was given. */
+  equivalence: EquivalenceResult | null;
+}
+
+export interface ConditionsComparison {
+  labels: string[];
+  groups: GroupSummary[];
+  welchAnova: FTestResult;
+  classicAnova: ClassicAnovaResult;
+  kruskalWallis: KruskalWallisResult;
+  pairs: ConditionPair[];
+  flags: Flag[];
+  alpha: number;
+}
+
+function resolveConditionsOptions(k: number, options: ConditionsOptions): { labels: string[]; alpha: number; exact: ExactMode; margin: number | null } {
+  const labels = options.labels ? [...options.labels] : Array.from({ length: k }, (_, i) => String(i + 1));
+  if (labels.length !== k) throw new RangeError(`labels has ${labels.length} names for ${k} conditions`);
+  const alpha = options.alpha ?? 0.05;
+  if (typeof alpha !== 'number' || !(alpha > 0 && alpha < 0.5)) throw new RangeError(`alpha is ${String(alpha)}; a number in (0, 0.5) is required`);
+  const exact = options.exact ?? 'auto';
+  if (!EXACT_MODES.includes(exact)) throw new RangeError(`exact is "${String(exact)}"; use one of ${EXACT_MODES.join(', ')}`);
+  const margin = options.equivalenceMargin ?? null;
+  if (margin !== null && (typeof margin !== 'number' || !Number.isFinite(margin) || !(margin > 0))) {
+    throw new RangeError(`equivalenceMargin is ${String(margin)}; a finite number > 0 (or null) is required`);
+  }
+  return { labels, alpha, exact, margin };
+}
+
+/** Compare k ≥ 2 conditions given as Samples (the core the other two entry points run). */
+export function compareConditionSamples(samples: readonly Sample[], options: ConditionsOptions = {}): ConditionsComparison {
+  if (!Array.isArray(samples) || samples.length < 2) throw new RangeError('compareConditions needs at least two conditions');
+  const k = samples.length;
+  const { labels, alpha, exact, margin } = resolveConditionsOptions(k, options);
+  const ms = samples.map((s) => moments(s));
+  const ranks = pooledRanks(samples);
+  const welch = welchAnovaFromMoments(ms);
+  const kruskal = kruskalWallisFromRanks(ranks);
+  const gh = gamesHowellPairs(ms);
+  const dunn = dunnPairs(ranks);
+  const pairs: ConditionPair[] = gh.map((g, idx) => {
+    const { i, j, ...gamesHowell } = g;
+    const { i: _i, j: _j, ...d } = dunn[idx];
+    return {
+      i,
+      j,
+      a: labels[i],
+      b: labels[j],
+      gamesHowell,
+      dunn: d,
+      equivalence: margin === null ? null : equivalence(samples[i], samples[j], { margin, alpha, exact }),
+    };
+  });
+  const result: ConditionsComparison = {
+    labels,
+    groups: samples.map((s, i) => summarize(s, ms[i])),
+    welchAnova: welch,
+    classicAnova: classicAnovaFromMoments(ms),
+    kruskalWallis: kruskal,
+    pairs,
+    flags: [...omnibusFlags({ samples, moments: ms, labels, welch, kruskal, alpha })],
+    alpha,
+  };
+  return freezeDeep(result);
+}
+
+/** Compare k ≥ 2 conditions from their raw answers; NaN or ±Infinity throws a RangeError naming "conditions[i][j]". */
+export function compareConditions(values: readonly ArrayLike<number>[], options: ConditionsOptions = {}): ConditionsComparison {
+  if (!Array.isArray(values)) throw new RangeError('values must be an array with one array of answers per condition');
+  return compareConditionSamples(values.map((v, i) => fromValues(v, `conditions[${i}]`)), options);
+}
+
+/** Compare k ≥ 2 conditions of a bounded integer item from per-value counts (counts[i][m] answers of value min + m). */
+export function compareConditionCounts(counts: readonly ArrayLike<number>[], options: ConditionsOptions & { min?: number } = {}): ConditionsComparison {
+  if (!Array.isArray(counts)) throw new RangeError('counts must be an array with one array of counts per condition');
+  const { min = 0, ...rest } = options;
+  return compareConditionSamples(counts.map((c, i) => fromCounts(c, min, `counts[${i}]`)), rest);
 }
