@@ -83,6 +83,7 @@ const ACCESS: Record<string, Entry> = {
   'GET /v1/experiments/:id/comparisons/:measure/trajectory': { scopes: ['admin', 'read'], ok: [200, 409] },
   'GET /v1/experiments/:id/comparisons/:measure/trajectory.svg': { scopes: ['admin', 'read'], ok: [200, 409] },
   'GET /v1/experiments/:id/comparisons.csv': { scopes: ['read', 'admin'] },
+  'GET /v1/experiments/:id/omnibus.csv': { scopes: ['read', 'admin'] },
   'GET /v1/experiments/:id/responses.csv': { scopes: ['read', 'admin'] },
   'GET /v1/experiments/:id/responses.ndjson': { scopes: ['read', 'admin'] },
   'GET /v1/experiments/:id/events': { scopes: ['read', 'admin'], stream: true },

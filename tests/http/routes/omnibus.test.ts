@@ -146,6 +146,19 @@ describe('omnibus over HTTP against R', () => {
     expect(body.welchAnova.p.toExponential(3)).toBe('7.999e-12');
     expect(body.kruskalWallis.h.toFixed(3)).toBe('54.691');
     expect(body.kruskalWallis.p.toExponential(3)).toBe('1.511e-10');
+
+    // omnibus.csv: one row per pair (15), the omnibus numbers repeated, the same values as the JSON.
+    const csv = await t.request({ method: 'GET', url: '/v1/experiments/insect-sprays/omnibus.csv' });
+    expect(csv.statusCode).toBe(200);
+    const lines = csv.body.trim().split('\r\n').map((l) => l.split(','));
+    expect(lines).toHaveLength(16);
+    const head = lines[0];
+    const row = Object.fromEntries(head.map((h, i) => [h, lines[1][i]]));
+    expect(Number(row.welchF)).toBe(body.welchAnova.f);
+    expect(Number(row.kruskalP)).toBe(body.kruskalWallis.p);
+    expect([row.a, row.b]).toEqual(['a', 'b']);
+    expect(Number(row.dunnPHolm)).toBe(body.pairs[0].dunn.pHolm);
+    expect(row.equivalenceMargin).toBe('');
   });
 
   it('answers 304 to a current ETag and a new ETag after new data', async () => {
@@ -207,6 +220,14 @@ describe('equivalence margins', () => {
     const omni = (await t.request({ method: 'GET', url: '/v1/experiments/sleep-margin/comparisons/y/omnibus' })).json();
     expect(omni.margin).toBe(0.5);
     expectRel(omni.pairs[0].equivalence.welch.p, Math.max(w.pLower, w.pUpper), P, 'omnibus pair TOST p');
+    // comparisons.csv gains the equivalence columns.
+    const csv = (await t.request({ method: 'GET', url: '/v1/experiments/sleep-margin/comparisons.csv' })).body.trim().split('\r\n');
+    const [head, first] = csv.map((l) => l.split(','));
+    const row = Object.fromEntries(head.map((h, i) => [h, first[i]]));
+    expect(Number(row.equivalenceMargin)).toBe(0.5);
+    expect(Number(row.welchTostP)).toBe(eq.welch.p);
+    expect(row.welchTostVerdict).toBe(sleep.welch.verdict);
+    expect(row.rankTostVerdict).toBe(eq.rank.verdict.code);
   });
 
   it('no margin: equivalence is null; PATCH sets and removes a margin', async () => {
