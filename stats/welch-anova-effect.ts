@@ -6,16 +6,17 @@
  *
  * Method (plain text): with F Welch's statistic, df1 = k − 1 and N the number of answers,
  *   est. ω² = df1·(F − 1) / (df1·(F − 1) + N),
- * floored at 0 (F < 1 means no between-condition variance is estimated). For the classic F this is the usual
- * identity between ω² and F; applied to Welch's F it is the estimate recommended for Welch's test by Carroll &
- * Nordholm (1975) and used in the same way by Albers & Lakens (2018). There is no hypothesis of its own.
+ * floored at 0 (F < 1 means no between-condition variance is estimated). For the classic F this is an exact
+ * identity with Hays's ω² = (SS_b − (k − 1)·MS_w)/(SS_total + MS_w) (since SS_b = df1·F·MS_w and
+ * SS_total = SS_b + (N − k)·MS_w). Applied to Welch's F it is an approximation that carries the same
+ * reading over to unequal variances; no test of its own, and not a published estimator for Welch's test that
+ * this file could check against — the tests check the formula and the classic identity only.
  *
  * References
+ *   Hays, W. L. (1963). Statistics for Psychologists. Holt, Rinehart & Winston (ω²).
  *   Carroll, R. M. & Nordholm, L. A. (1975). Sampling characteristics of Kelley's ε and Hays' ω. Educational
- *     and Psychological Measurement 35(3), 541–554. doi:10.1177/001316447503500304
- *   Albers, C. & Lakens, D. (2018). When power analyses based on pilot data are biased: inaccurate effect size
- *     estimators and follow-up bias. Journal of Experimental Social Psychology 74, 187–195.
- *     doi:10.1016/j.jesp.2017.09.004
+ *     and Psychological Measurement 35(3), 541–554. doi:10.1177/001316447503500304 (the estimator's bias and
+ *     spread for the classic F).
  *
  * Cost: O(1).
  */
