@@ -29,12 +29,12 @@ import { createHash } from 'node:crypto';
 import { describe } from '../../../stats/descriptives.js';
 import { computeFlags, type FlagContext } from '../../../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../../../stats/adjust.js';
-import { compareSamples, fromCounts, type Alternative, type Sample } from '../../../stats/index.js';
+import { compareSamples, fromCounts, type Alternative, type ConditionsComparison, type Sample } from '../../../stats/index.js';
 import type { ComparisonStamp, ExperimentRecord, MeasureRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
 import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
-import { compareSorted, shareable, sharedComparePool, type ComparePool, type CompareResult } from './worker-pool.js';
+import { compareSorted, omnibusSorted, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
@@ -177,8 +177,22 @@ export class ComparisonService {
   async omnibus(e: ExperimentRecord, m: MeasureRecord, o: OmnibusOptions, stamp?: Stamp): Promise<{ body: OmnibusBody; etag: string }> {
     const s = stamp ?? (await this.stamp(e));
     const value = await this.cached(this.omnibusKey(e, m, o, s), async () => {
-      const { body, snapshot } = await computeOmnibus(this.store, e, m, o);
-      this.paths.inThreadComputes++;
+      let inWorker = false;
+      const runner = async (task: Omit<OmnibusTask, 'kind'>) => {
+        const total = task.groups.reduce((sum, g) => sum + g.length, 0);
+        if (total < this.workerMinValues) return omnibusSorted(task);
+        const groups = task.groups.map((g) => shareable(g));
+        let fellBack = false;
+        const r = await this.workerPool().runOr<ConditionsComparison>({ kind: 'omnibus', ...task, groups }, () => {
+          fellBack = true;
+          return omnibusSorted(task);
+        });
+        inWorker = !fellBack;
+        return r;
+      };
+      const { body, snapshot } = await computeOmnibus(this.store, e, m, o, runner);
+      if (inWorker) this.paths.workerComputes++;
+      else this.paths.inThreadComputes++;
       return { kind: 'omnibus', key: this.omnibusKey(e, m, o, snapshot), body };
     });
     if (value.kind !== 'omnibus') throw new Error('cache entry of the wrong kind');
