@@ -195,12 +195,16 @@ function patchedMargins(
   e: ExperimentRecord,
   patches: { id: string; min?: number; max?: number; equivalenceMargin?: number | null }[],
 ): Record<string, number> | null | undefined {
-  if (!patches.some((p) => p.equivalenceMargin !== undefined)) return undefined;
   const margins = { ...declaredMargins(e) };
   const errors: { path: string; message: string; value: unknown }[] = [];
   patches.forEach((p, i) => {
     const measure = e.measures.find((m) => m.id === p.id);
     const limits = { min: p.min ?? measure!.min, max: p.max ?? measure!.max };
+    if (p.equivalenceMargin === undefined && margins[p.id] !== undefined && limits.min < limits.max) {
+      // New limits must still leave room for the declared margin.
+      const problem = marginProblem(margins[p.id], limits);
+      if (problem) errors.push({ path: `measures[${i}].equivalenceMargin`, message: `the declared margin ${problem.replace(/^must/, 'must still')}`, value: margins[p.id] });
+    }
     if (p.equivalenceMargin === null) delete margins[p.id];
     else if (p.equivalenceMargin !== undefined) {
       const problem = limits.min < limits.max ? marginProblem(p.equivalenceMargin, limits) : null;
@@ -209,5 +213,6 @@ function patchedMargins(
     }
   });
   if (errors.length > 0) throw new RequestValidationError('body', errors);
+  if (!patches.some((p) => p.equivalenceMargin !== undefined)) return undefined;
   return Object.keys(margins).length > 0 ? margins : null;
 }

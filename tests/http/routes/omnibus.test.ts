@@ -237,6 +237,11 @@ describe('equivalence margins', () => {
     expect(set.statusCode, set.body).toBe(200);
     expect(set.json().measures[0].equivalenceMargin).toBe(1);
     expect((await t.request({ method: 'GET', url: '/v1/experiments/sleep-patch/comparisons/y' })).json().equivalence.margin).toBe(1);
+    // Limits that leave no room for the declared margin are refused (the measure has values, so use a fresh one).
+    await t.request({ method: 'POST', url: '/v1/experiments', payload: { id: 'narrow', title: 'narrow', conditions: [{ id: 'p' }, { id: 'q' }], measures: [{ id: 'y', min: 0, max: 10, equivalenceMargin: 2 }] } });
+    const narrow = await t.request({ method: 'PATCH', url: '/v1/experiments/narrow', payload: { measures: [{ id: 'y', max: 1 }] } });
+    expect(narrow.statusCode).toBe(422);
+    expect(narrow.json().errors[0]).toEqual({ path: 'measures[0].equivalenceMargin', message: "the declared margin must still be smaller than the scale's range (1 − 0 = 1); got 2", value: 2 });
     const off = await t.request({ method: 'PATCH', url: '/v1/experiments/sleep-patch', payload: { measures: [{ id: 'y', equivalenceMargin: null }] } });
     expect(off.json().measures[0].equivalenceMargin).toBeNull();
     const bad = await t.request({ method: 'PATCH', url: '/v1/experiments/sleep-patch', payload: { measures: [{ id: 'y', equivalenceMargin: 25 }] } });
