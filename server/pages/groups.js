@@ -127,6 +127,7 @@ export function omnibusBlock(ui, mid, omni, chart) {
         "Dunn's test with Holm's adjustment (for ranks). Every difference is the first condition minus the second.",
     ),
     pairs,
+    h('p', { class: 'explain pair-detail-note', text: 'Below: the pair chosen at the top of the page in detail, with both tests side by side.' }),
   );
 }
 

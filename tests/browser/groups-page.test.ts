@@ -157,6 +157,7 @@ describe.skipIf(!CHROMIUM)('results page with three conditions and a margin', ()
     expect(await page.locator('section.measure[data-measure="fair_price"] .equivalence-block').count()).toBe(0);
 
     await page.screenshot({ path: join(OUTPUT, 'results-page-groups.png'), fullPage: true });
+    await page.screenshot({ path: join(OUTPUT, 'results-page-groups-top.png'), clip: { x: 0, y: 0, width: 1280, height: 1700 }, fullPage: true });
     await page.locator('section.measure[data-measure="satisfaction"] .omnibus-block').screenshot({ path: join(OUTPUT, 'results-page-groups-omnibus.png') });
     await block.screenshot({ path: join(OUTPUT, 'results-page-groups-equivalence.png') });
     expect(problems).toEqual([]);
