@@ -6,7 +6,9 @@
  * rating?), posts a few hundred simulated answers from a seeded generator at a brisk pace — including impossible
  * values that the service rejects with 422 and a handful of extreme but valid fair-price answers — then prints
  * the comparisons as a terminal table (Welch's t-test and the rank-sum test side by side for every item, the
- * estimates, the flags in words) and the results page's address with a read key, and keeps serving until Ctrl-C.
+ * estimates, the equivalence verdicts against each item's margin, the flags in words) and the results page's address
+ * with a read key. A second invented study with three versions of a reminder letter shows the omnibus tests (Welch's
+ * ANOVA, Kruskal–Wallis) and every pair. Then it keeps serving until Ctrl-C.
  *
  *   npm run demo                  serve until Ctrl-C
  *   npm run demo -- --once        print and exit 0 (used by tests/cli/demo.test.ts)
@@ -33,13 +35,43 @@ export const DEMO_DEFINITION = {
     { id: 'service-first', label: 'Service questions first, bill afterwards' },
   ],
   measures: [
-    { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-    { id: 'trust', label: 'I trust the utility to charge fairly (1–7 agreement)', min: 1, max: 7, integer: true, required: true },
-    { id: 'fair_price', label: 'A fair monthly price (currency units, 0–200)', min: 0, max: 200, integer: false, required: true },
+    // Equivalence margins, chosen before any answer (invented): half a point on 0–10, half a point on 1–7, 5 units of price.
+    { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true, equivalenceMargin: 0.5 },
+    { id: 'trust', label: 'I trust the utility to charge fairly (1–7 agreement)', min: 1, max: 7, integer: true, required: true, equivalenceMargin: 0.5 },
+    { id: 'fair_price', label: 'A fair monthly price (currency units, 0–200)', min: 0, max: 200, integer: false, required: true, equivalenceMargin: 5 },
   ],
   plannedPerCondition: 400,
   alpha: 0.05,
 };
+
+/** The second invented study: the same utility's reminder letter in three versions (three conditions). */
+export const LETTER_ID = 'water-letter-2027';
+
+export const LETTER_DEFINITION = {
+  id: LETTER_ID,
+  title: 'Water utility reminder letter 2027: which of three versions? (invented data)',
+  conditions: [
+    { id: 'plain', label: 'Plain letter' },
+    { id: 'bill-chart', label: 'Letter with a chart of the bill' },
+    { id: 'neighbours', label: 'Letter comparing use with the neighbours' },
+  ],
+  measures: [{ id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true, equivalenceMargin: 0.5 }],
+  alpha: 0.05,
+};
+
+/** Invented answers of the letter study: the neighbour comparison a little lower, the other two alike. */
+export function simulateLetterAnswers(seed: number, perCondition: number): Record<string, unknown>[] {
+  const rand = seededRandom(seed + 1);
+  const centres = [6.8, 6.9, 6.2];
+  return Array.from({ length: 3 * perCondition }, (_, i) => {
+    const c = i % 3;
+    return {
+      responseId: `letter-${String(i + 1).padStart(4, '0')}`,
+      condition: LETTER_DEFINITION.conditions[c].id,
+      values: { satisfaction: Math.round(clamp(centres[c] + 1.9 * normal(rand), 0, 10)) },
+    };
+  });
+}
 
 /** mulberry32: a small seeded generator (public domain), enough for invented data. */
 export function seededRandom(seed: number): () => number {
@@ -178,10 +210,50 @@ export function renderComparisons(family: Json, definition: typeof DEMO_DEFINITI
       `  effect sizes: Hedges' g ${num(c.effectSizes.hedgesG)} ${ci(c.effectSizes.hedgesGCi)}, rank-biserial ${num(c.effectSizes.rankBiserial)}, ` +
         `P(a > b) + ½P(a = b) ${num(c.effectSizes.probabilityOfSuperiority)}`,
     );
+    if (c.equivalence) {
+      const eq = c.equivalence;
+      out.push(
+        `  equivalence within ±${eq.margin} (${Math.round((1 - 2 * eq.alpha) * 100)}% CI): means ${ci(eq.welch.ci)} TOST p ${pval(eq.welch.p)}; ` +
+          `ranks ${ci(eq.rank.ci)} TOST p ${pval(eq.rank.p)}`,
+      );
+      if (eq.welch.verdict) out.push(`  → ${eq.welch.verdict.words}`);
+    }
     const flags = (c.flags ?? []) as { code: string; severity: string; message: string }[];
     if (flags.length === 0) out.push('  flags: none');
     for (const f of flags) out.push(`  ${f.severity === 'warning' ? '⚠' : 'ℹ'} ${f.message} [${f.code}]`);
   }
+  return out.join('\n');
+}
+
+/** The omnibus reply of one item as a terminal block: the omnibus tests, the flags, then every pair. */
+export function renderOmnibus(o: Json): string {
+  const label = (id: string) => id;
+  const out: string[] = [];
+  out.push(
+    table([
+      ['test', 'statistic', 'p', 'effect size'],
+      ["Welch's ANOVA", `F = ${num(o.welchAnova.f)}, df = ${num(o.welchAnova.df1)} and ${num(o.welchAnova.df2)}`, pval(o.welchAnova.p), `est. ω² ${num(o.welchAnova.omegaSquared)}`],
+      ['Kruskal–Wallis', `H = ${num(o.kruskalWallis.h)}, df = ${num(o.kruskalWallis.df)}`, pval(o.kruskalWallis.p), `ε² ${num(o.kruskalWallis.epsilonSquared)}`],
+      ['classic ANOVA (reference)', `F = ${num(o.classicAnova.f)}, df = ${num(o.classicAnova.df1)} and ${num(o.classicAnova.df2)}`, pval(o.classicAnova.p), `η² ${num(o.classicAnova.etaSquared)}`],
+    ]),
+  );
+  const flags = (o.flags ?? []) as { code: string; severity: string; message: string }[];
+  if (flags.length === 0) out.push('  flags: none');
+  for (const f of flags) out.push(`  ${f.severity === 'warning' ? '⚠' : 'ℹ'} ${f.message} [${f.code}]`);
+  out.push('');
+  out.push(
+    table([
+      ['pair (a − b)', 'mean difference', 'Games–Howell p', 'Dunn z', 'Dunn p (Holm, two-sided)', `equivalence ±${o.margin ?? '—'}`],
+      ...(o.pairs as Json[]).map((p) => [
+        `${label(p.a)} − ${label(p.b)}`,
+        num(p.gamesHowell.meanDifference),
+        pval(p.gamesHowell.p),
+        num(p.dunn.z),
+        pval(p.dunn.pHolm),
+        p.equivalence?.welch?.verdict?.code ?? '—',
+      ]),
+    ]),
+  );
   return out.join('\n');
 }
 
@@ -289,6 +361,24 @@ export async function runDemo(argv: string[], io: DemoIo, stop?: Promise<unknown
     if (family.status !== 200) throw new Error(`reading the comparisons failed: ${family.status} ${JSON.stringify(family.body)}`);
     io.stdout.write(`\nComparisons (differences are a − b; p adjusted by Holm across the three items):\n`);
     io.stdout.write(`${renderComparisons(family.body, DEMO_DEFINITION)}\n\n`);
+
+    // The second invented study: three versions of a letter, so the omnibus tests come first, then the pairs.
+    const letter = await call('POST', '/v1/experiments', LETTER_DEFINITION);
+    if (letter.status !== 201) throw new Error(`creating the letter study failed: ${letter.status} ${JSON.stringify(letter.body)}`);
+    const letterAnswers = simulateLetterAnswers(seed, perCondition);
+    const letterPosted = await call('POST', `/v1/experiments/${LETTER_ID}/responses/batch`, { responses: letterAnswers });
+    if (letterPosted.status !== 201) throw new Error(`posting the letter answers failed: ${letterPosted.status} ${JSON.stringify(letterPosted.body)}`);
+    const omnibus = await call('GET', `/v1/experiments/${LETTER_ID}/comparisons/satisfaction/omnibus`);
+    if (omnibus.status !== 200) throw new Error(`reading the omnibus failed: ${omnibus.status} ${JSON.stringify(omnibus.body)}`);
+    io.stdout.write(
+      `Second study ${LETTER_ID}: ${letterAnswers.length} invented answers, three versions of a reminder letter (plain, bill-chart, neighbours).\n` +
+        'With three conditions the omnibus tests come first (do the versions differ at all?), then every pair with adjusted p-values:\n\n',
+    );
+    io.stdout.write(`Overall satisfaction (0–10), all three letters:\n${renderOmnibus(omnibus.body)}\n`);
+    const letterReadKey = generateSecret();
+    const letterKey = (await store.experiments.getBySlug(LETTER_ID))!.key;
+    await store.apiKeys.create({ hash: hashSecret(letterReadKey), scope: 'read', experimentKey: letterKey, label: 'demo letter read key', origin: 'cli', createdAt: now });
+    io.stdout.write(`Its results page: ${base}/experiments/${LETTER_ID}   read key: ${letterReadKey}\n\n`);
     io.stdout.write(`Results page: ${base}/experiments/${DEMO_ID}\nRead key (paste it into the page): ${readKey}\n`);
     io.stdout.write(`Live updates: curl -N -H "Authorization: Bearer ${readKey}" ${base}/v1/experiments/${DEMO_ID}/events\n`);
     io.stdout.write(`Admin key for this demo: ${adminKey}\n`);

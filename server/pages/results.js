@@ -23,6 +23,7 @@ import {
   formatPExact,
 } from './format.js';
 import { dataVersionOf, readEventStream } from './sse.js';
+import { equivalenceBlock, omnibusBlock } from './groups.js';
 
 const KEY_STORAGE = 'splitballot.readKey';
 const REFRESH_DEBOUNCE_MS = 400;
@@ -647,6 +648,9 @@ function renderMeasure(m, result) {
     ),
   );
   section.append(body);
+  const equivalence = equivalenceBlock(groupsUi(), mid, cmp);
+  if (equivalence) body.querySelector('.numbers').append(equivalence);
+  if (result.omnibus) section.insertBefore(omnibusBlock(groupsUi(), mid, result.omnibus, result.omnibusChart), body);
   const reasons = reasonsOf(cmp);
   if (reasons.length > 0) {
     section.append(h('div', { class: 'reasons' }, h('h4', { text: 'Why some numbers are missing' }), h('ul', {}, ...reasons.map((r) => h('li', { text: r })))));
@@ -679,19 +683,37 @@ async function loadMeasure(m) {
     if (isAuthError(err)) throw err;
     return { error: `This comparison could not be loaded: ${err.message}` };
   }
-  const [chart, trajectory] = await Promise.all([
+  const [chart, trajectory, omnibus] = await Promise.all([
     loadSvg(`${path}/chart.svg${q}`),
     cmp.monitoring && cmp.monitoring.anytimeValid ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve({ svg: null, error: '' }),
+    loadOmnibus(path),
   ]);
-  return { cmp, chart, trajectory };
+  return { cmp, chart, trajectory, ...omnibus };
+}
+
+/** The helpers the omnibus and equivalence blocks (groups.js) build with. */
+function groupsUi() {
+  return { h, num, pIs, chartFigure, flagList, conditionLabel };
+}
+
+/** With three or more conditions: the omnibus JSON and the chart of every condition (the block is left out when they fail). */
+async function loadOmnibus(path) {
+  if ((state.definition.conditions || []).length < 3) return {};
+  try {
+    const [omnibus, omnibusChart] = await Promise.all([(await api(`${path}/omnibus`)).json(), loadSvg(`${path}/omnibus/chart.svg`)]);
+    return { omnibus, omnibusChart };
+  } catch (err) {
+    if (isAuthError(err)) throw err;
+    return {};
+  }
 }
 
 /** Adjusted p-values across the family (only meaningful with several items or pairs); null when unavailable. */
 async function loadFamily(def) {
   if ((def.measures || []).length < 2) return null;
   try {
-    const q = state.pair ? `&a=${encodeURIComponent(state.pair.a)}&b=${encodeURIComponent(state.pair.b)}` : '';
-    const body = await (await api(`${base()}/comparisons?pairs=first&adjust=holm${q}`)).json();
+    // With more than two conditions the family is every pair (the route takes no a/b; the entry of the chosen pair is picked below).
+    const body = await (await api(`${base()}/comparisons?pairs=${state.pair ? 'all' : 'first'}&adjust=holm`)).json();
     const entries = Array.isArray(body) ? body : body.comparisons || body.items || body.results || [];
     return Array.isArray(entries) ? entries : null;
   } catch (err) {

@@ -6,6 +6,7 @@
  */
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
+import { EquivalenceSchema, MarginQuery } from './equivalence.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -135,6 +136,9 @@ const comparisonShape = {
   robust: RobustSchema,
   flags: z.array(FlagSchema),
   monitoring: MonitoringSchema.nullable().describe('Interim monitoring that stays valid however often you look'),
+  equivalence: EquivalenceSchema.nullable().describe(
+    "Two one-sided tests against the equivalence margin (?margin=, else the measure's equivalenceMargin); null when no margin is known",
+  ),
 };
 
 export const ComparisonSchema = z.object(comparisonShape).meta({
@@ -183,6 +187,7 @@ export const ComparisonQuery = z.strictObject({
   a: z.string().max(200).optional().describe('Condition id; defaults to the first condition when the experiment has exactly two'),
   b: z.string().max(200).optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
   ...commonQuery,
+  margin: MarginQuery,
 });
 
 export const ChartQuery = z.strictObject({

@@ -1,5 +1,6 @@
 /** Schemas of the experiment routes (request bodies and replies). */
 import { z } from 'zod';
+import { marginProblem } from './equivalence.js';
 import { RESERVED_MEASURE_IDS } from './responses.js';
 import { Slug } from './common.js';
 
@@ -22,6 +23,13 @@ const ConditionInput = z.strictObject({
   label: Label.optional().describe('Defaults to the id'),
 });
 
+const EquivalenceMarginInput = z
+  .number()
+  .describe(
+    "The smallest difference between conditions that matters, in the item's units (e.g. 0.5 on a 0–10 scale): positive and " +
+      'smaller than max − min. Choose it before seeing the data. When set, every pairwise comparison carries equivalence tests.',
+  );
+
 const MeasureInput = z
   .strictObject({
     id: Slug.refine((s) => !(RESERVED_MEASURE_IDS as readonly string[]).includes(s), {
@@ -32,11 +40,16 @@ const MeasureInput = z
     max: z.number().describe('Largest allowed value (finite, > min)'),
     integer: z.boolean().default(false).describe('Whole numbers only (default false)'),
     required: z.boolean().default(true).describe('Every response must answer it (default true)'),
+    equivalenceMargin: EquivalenceMarginInput.optional(),
   })
   .superRefine((m, ctx) => {
     if (!(m.min < m.max)) ctx.addIssue({ code: 'custom', path: ['max'], message: `must be greater than min (${m.min})` });
     else if (m.integer && (!Number.isInteger(m.min) || !Number.isInteger(m.max))) {
       ctx.addIssue({ code: 'custom', path: ['min'], message: 'an integer measure needs whole-number limits' });
+    }
+    if (m.min < m.max && m.equivalenceMargin !== undefined) {
+      const problem = marginProblem(m.equivalenceMargin, m);
+      if (problem) ctx.addIssue({ code: 'custom', path: ['equivalenceMargin'], message: problem });
     }
   });
 
@@ -133,6 +146,7 @@ export const ExperimentPatchSchema = z
           max: z.number().optional(),
           integer: z.boolean().optional(),
           required: z.boolean().optional(),
+          equivalenceMargin: EquivalenceMarginInput.nullable().optional().describe('New equivalence margin; null removes it'),
         }),
       )
       .max(500)
@@ -156,7 +170,15 @@ export const ExperimentSchema = z
     status: z.enum(['open', 'closed']),
     conditions: z.array(z.object({ id: z.string(), label: z.string() })),
     measures: z.array(
-      z.object({ id: z.string(), label: z.string(), min: z.number(), max: z.number(), integer: z.boolean(), required: z.boolean() }),
+      z.object({
+        id: z.string(),
+        label: z.string(),
+        min: z.number(),
+        max: z.number(),
+        integer: z.boolean(),
+        required: z.boolean(),
+        equivalenceMargin: z.number().nullable().describe('The declared equivalence margin (item units), or null'),
+      }),
     ),
     plannedPerCondition: z.number().int().nullable(),
     alpha: z.number(),

@@ -27,6 +27,15 @@ describe('npm run demo -- --once', () => {
     expect(r.stdout).toContain('120 stored, 10 refused with 422');
     expect(r.stdout.trimEnd().split('\n').at(-1)).toBe('demo: 120 answers stored, 10 refused, 3 comparisons printed; exiting (--once).');
     expect(r.stderr).toContain('posting answers: 130/130 (10 refused as impossible)');
+    // Every item has a margin: an equivalence line and a verdict in words each.
+    expect(r.stdout.match(/^ {2}equivalence within ±(0\.5|5) \(90% CI\): means \[/gm)).toHaveLength(3);
+    expect(r.stdout.match(/^ {2}→ (Equivalent|Different|Inconclusive)[^\n]*\.$/gm)).toHaveLength(3);
+    // The second invented study: three letters, the omnibus tests first, then the three pairs.
+    expect(r.stdout).toContain('Second study water-letter-2027: 180 invented answers');
+    expect(r.stdout).toMatch(/^ {2}Welch's ANOVA {2,}F = [\d.]+, df = 2 and [\d.]+ /m);
+    expect(r.stdout).toMatch(/^ {2}Kruskal–Wallis {2,}H = [\d.]+, df = 2 /m);
+    expect(r.stdout.match(/^ {2}(plain|bill-chart) − (bill-chart|neighbours) {2,}-?[\d.]+ /gm)).toHaveLength(3);
+    expect(r.stdout).toMatch(/experiments\/water-letter-2027 {3}read key: sb_[A-Za-z0-9_-]{43}\n/);
   }, 60_000);
 
   it('without --once it serves until told to stop', async () => {

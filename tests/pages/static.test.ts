@@ -21,6 +21,9 @@ describe('results page files', () => {
     expect(html).not.toMatch(/\son[a-z]+=/i);
     expect(js).not.toMatch(/\.innerHTML|outerHTML|insertAdjacentHTML|document\.write|\beval\(|new Function/);
     expect(js).not.toMatch(/setAttribute\(\s*['"]style['"]/);
+    const groups = read('groups.js');
+    expect(groups).not.toMatch(/\.innerHTML|outerHTML|insertAdjacentHTML|document\.write|\beval\(|new Function/);
+    expect(groups).not.toMatch(/style/);
   });
 
   it('loads nothing from another origin', () => {
@@ -37,7 +40,7 @@ describe('results page files', () => {
     expect(refs.sort()).toEqual(['/pages/icon.svg', '/pages/results.css', '/pages/results.js']);
     for (const r of refs) expect(existsSync(join(dir, r.replace('/pages/', ''))), r).toBe(true);
     const imports = [...js.matchAll(/from\s+'([^']+)'/g)].map((m) => m[1]);
-    expect(imports.sort()).toEqual(['./format.js', './sse.js']);
+    expect(imports.sort()).toEqual(['./format.js', './groups.js', './sse.js']);
     for (const i of imports) expect(existsSync(join(dir, i))).toBe(true);
   });
 

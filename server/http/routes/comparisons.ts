@@ -13,6 +13,8 @@ import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
 import { ExperimentParams } from '../../schemas/responses.js';
+import { OmnibusChartQuery, OmnibusQuery, OmnibusSchema } from '../../schemas/omnibus.js';
+import { requestMargin } from '../../services/comparisons/margin.js';
 import { notModified } from '../conditional.js';
 import { SVG_CONTENT_TYPE } from '../page-assets.js';
 
@@ -68,7 +70,9 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
         description:
           'Welch and pooled t-tests, the Wilcoxon–Mann–Whitney rank-sum test, the Hodges–Lehmann shift, effect sizes, ' +
           'Brunner–Munzel and Yuen–Welch, every difference a − b, plus quality flags in plain words and the interim ' +
-          'monitoring block. With exactly two conditions a and b default to the first and second. ' +
+          'monitoring block. With exactly two conditions a and b default to the first and second. When an equivalence margin is ' +
+          "known (`?margin=`, else the measure's `equivalenceMargin`), `equivalence` holds the Welch and the rank-based two " +
+          'one-sided tests (TOST) with a verdict in words. ' +
           POLLING,
         params: ComparisonParams,
         querystring: ComparisonQuery,
@@ -79,6 +83,7 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const e = await loadExperiment(store, request.params.id);
       const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
       const options = toOptions(request.query);
+      if (request.query.margin !== undefined) options.margin = requestMargin(e, target.measure, request.query.margin);
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.etagOf(service.comparisonKey(target, options, stamp)))) return reply;
       const { body, etag } = await service.comparison(target, options, stamp);
@@ -114,6 +119,70 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.etagOf(service.chartKey(target, includeExcluded, stamp)))) return reply;
       const { svg, etag } = await service.chart(target, includeExcluded, stamp);
+      return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
+    },
+  );
+
+  app.get(
+    '/v1/experiments/:id/comparisons/:measure/omnibus',
+    {
+      config: ACCESS,
+      schema: {
+        tags: ['comparisons'],
+        summary: "All conditions on one measure: Welch's ANOVA, Kruskal–Wallis, then every pair (Games–Howell, Dunn)",
+        description:
+          "Welch's ANOVA (F, df1, df2, p, est. ω²), the classic ANOVA for reference (η², ω²) and the Kruskal–Wallis test (H with " +
+          'the tie correction, ε²), then every pair i < j in definition order: Games–Howell (mean difference a − b, Welch t and df, ' +
+          "p from the studentized range) and Dunn's test (z, two-sided p, two-sided Holm-adjusted p), plus `equivalence` per pair " +
+          "when a margin is known (`?margin=`, else the measure's `equivalenceMargin`). Group summaries per condition, and the " +
+          'omnibus flags (omnibus_tests_disagree, one_condition_drives). Integer items are computed from the per-value counts ' +
+          '(O(distinct values × conditions)), continuous items from the sorted values. ' +
+          POLLING,
+        params: ComparisonParams,
+        querystring: OmnibusQuery,
+        response: { 200: OmnibusSchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 422, 500) },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const measure = resolveMeasure(e, request.params.measure);
+      const options = {
+        includeExcluded: request.query.includeExcluded === 'true',
+        margin: requestMargin(e, measure, request.query.margin),
+      };
+      const stamp = await service.stamp(e);
+      if (notModified(request, reply, service.etagOf(service.omnibusKey(e, measure, options, stamp)))) return reply;
+      const { body, etag } = await service.omnibus(e, measure, options, stamp);
+      reply.header('etag', etag);
+      return body;
+    },
+  );
+
+  app.get(
+    '/v1/experiments/:id/comparisons/:measure/omnibus/chart.svg',
+    {
+      config: ACCESS,
+      schema: {
+        tags: ['comparisons'],
+        summary: 'Box plot with every answer of every condition on one measure, side by side (SVG)',
+        description: 'As the pairwise chart, with one box per condition in definition order. Same cache and ETag rules as the omnibus.',
+        params: ComparisonParams,
+        querystring: OmnibusChartQuery,
+        produces: ['image/svg+xml'],
+        response: {
+          200: { description: 'An SVG image', content: { 'image/svg+xml': { schema: z.string() } } },
+          304: NOT_MODIFIED,
+          ...problems(400, 401, 403, 404, 500),
+        },
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const measure = resolveMeasure(e, request.params.measure);
+      const includeExcluded = request.query.includeExcluded === 'true';
+      const stamp = await service.stamp(e);
+      if (notModified(request, reply, service.etagOf(service.omnibusChartKey(e, measure, includeExcluded, stamp)))) return reply;
+      const { svg, etag } = await service.omnibusChart(e, measure, includeExcluded, stamp);
       return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
     },
   );

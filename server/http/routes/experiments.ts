@@ -10,6 +10,8 @@ import { problems } from '../../schemas/common.js';
 import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+import { declaredMargin, declaredMargins, MARGINS_OPTION } from '../../services/comparisons/margin.js';
+import { marginProblem } from '../../schemas/equivalence.js';
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -23,7 +25,15 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
     title: e.title,
     status: e.status,
     conditions: e.conditions.map((c) => ({ id: c.id, label: c.label })),
-    measures: e.measures.map((m) => ({ id: m.id, label: m.label, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+    measures: e.measures.map((m) => ({
+      id: m.id,
+      label: m.label,
+      min: m.min,
+      max: m.max,
+      integer: m.integer,
+      required: m.required,
+      equivalenceMargin: declaredMargin(e, m),
+    })),
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
     thankYouUrl: e.thankYouUrl,
@@ -70,6 +80,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
           ...(b.flagThresholds ? { flagThresholds: b.flagThresholds } : {}),
           ...(b.monitoring ? { monitoring: b.monitoring } : {}),
           ...(b.allocation ? { allocation: b.allocation } : {}),
+          ...marginsOption(b.measures),
         },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);
@@ -132,9 +143,15 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         .map(({ m, i }) => ({ path: `measures[${i}].id`, message: `is not a measure of this experiment`, value: m.id }));
       if (unknown.length > 0) throw new RequestValidationError('body', unknown);
       const { flagThresholds, ...rest } = patch;
+      const margins = patchedMargins(e, patch.measures ?? []);
+      if (rest.measures) rest.measures = rest.measures.map(({ equivalenceMargin: _margin, ...m }) => m);
+      const options = {
+        ...(flagThresholds !== undefined ? { flagThresholds } : {}),
+        ...(margins !== undefined ? { [MARGINS_OPTION]: margins } : {}),
+      };
       const result = await store.experiments.update(
         e.key,
-        { ...rest, ...(flagThresholds !== undefined ? { options: { flagThresholds } } : {}) },
+        { ...rest, ...(Object.keys(options).length > 0 ? { options } : {}) },
         new Date().toISOString(),
       );
       switch (result.kind) {
@@ -161,4 +178,41 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
       }
     },
   );
+}
+
+/** The options entry that keeps the declared equivalence margins by measure id (none when no measure declares one). */
+function marginsOption(measures: { id: string; equivalenceMargin?: number }[]): Record<string, Record<string, number>> {
+  const margins: Record<string, number> = {};
+  for (const m of measures) if (m.equivalenceMargin !== undefined) margins[m.id] = m.equivalenceMargin;
+  return Object.keys(margins).length > 0 ? { [MARGINS_OPTION]: margins } : {};
+}
+
+/**
+ * The margins after a PATCH (undefined when the patch names none): a number sets, null removes. Each is checked
+ * against the measure's limits after the patch (422 naming the field when unusable).
+ */
+function patchedMargins(
+  e: ExperimentRecord,
+  patches: { id: string; min?: number; max?: number; equivalenceMargin?: number | null }[],
+): Record<string, number> | null | undefined {
+  const margins = { ...declaredMargins(e) };
+  const errors: { path: string; message: string; value: unknown }[] = [];
+  patches.forEach((p, i) => {
+    const measure = e.measures.find((m) => m.id === p.id);
+    const limits = { min: p.min ?? measure!.min, max: p.max ?? measure!.max };
+    if (p.equivalenceMargin === undefined && margins[p.id] !== undefined && limits.min < limits.max) {
+      // New limits must still leave room for the declared margin.
+      const problem = marginProblem(margins[p.id], limits);
+      if (problem) errors.push({ path: `measures[${i}].equivalenceMargin`, message: `the declared margin ${problem.replace(/^must/, 'must still')}`, value: margins[p.id] });
+    }
+    if (p.equivalenceMargin === null) delete margins[p.id];
+    else if (p.equivalenceMargin !== undefined) {
+      const problem = limits.min < limits.max ? marginProblem(p.equivalenceMargin, limits) : null;
+      if (problem) errors.push({ path: `measures[${i}].equivalenceMargin`, message: problem, value: p.equivalenceMargin });
+      else margins[p.id] = p.equivalenceMargin;
+    }
+  });
+  if (errors.length > 0) throw new RequestValidationError('body', errors);
+  if (!patches.some((p) => p.equivalenceMargin !== undefined)) return undefined;
+  return Object.keys(margins).length > 0 ? margins : null;
 }

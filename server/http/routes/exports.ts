@@ -5,6 +5,7 @@
  *   GET /v1/experiments/{id}/responses.csv     RFC 4180 CSV (csv-stringify): one row per response
  *   GET /v1/experiments/{id}/responses.ndjson  one JSON object per line
  *   GET /v1/experiments/{id}/comparisons.csv   one row per measure and pair: headline numbers and flag codes
+ *   GET /v1/experiments/{id}/omnibus.csv       one row per measure and pair: the omnibus tests, then the pair's
  *
  * Columns of responses.csv: responseId, condition, respondent, one column per measure id (empty = not
  * answered), submittedAt, receivedAt, excluded (true/false), excludedReason. The file can be imported again
@@ -22,6 +23,8 @@ import { FamilyQuery } from '../../schemas/comparisons.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { loadExperiment } from '../../services/targets.js';
+import { declaredMargin } from '../../services/comparisons/margin.js';
+import type { EquivalenceBody } from '../../schemas/equivalence.js';
 
 export const EXPORT_PAGE_ROWS = 1000;
 
@@ -169,7 +172,9 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
         summary: 'The comparisons as CSV: one row per measure and pair',
         description:
           `Columns: ${COMPARISON_CSV_COLUMNS.join(', ')}. Differences are a − b. p-values are given unadjusted and adjusted ` +
-          '(Holm across the measures and pairs of this file by default; `adjust=bh` or `none`). flags lists the quality-flag codes separated by spaces. An empty cell ' +
+          '(Holm across the measures and pairs of this file by default; `adjust=bh` or `none`). flags lists the quality-flag codes separated by spaces. ' +
+          "The equivalence columns (two one-sided tests against the measure's equivalenceMargin, intervals at 1 − 2α, verdict codes " +
+          'equivalent, trivial, different or inconclusive) are empty for a measure without a margin. An empty cell ' +
           'means the quantity is not defined for these data (see the JSON comparison for the reason).',
         params: ExperimentParams,
         querystring: ComparisonsCsvQuery,
@@ -178,7 +183,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
           'text/csv',
           `${COMPARISON_CSV_COLUMNS.join(',')}\r\n` +
             'satisfaction,bill-first,service-first,212,205,6.61,2.02,7.12,1.94,7,3,7,2,-0.51,-0.895,-0.125,-2.6,414.8,0.0097,0.029,' +
-            '19188,0.011,0.033,-1,-1,0,-0.257,-0.117,0.95,holm,heavy_ties,431\r\n',
+            '19188,0.011,0.033,-1,-1,0,-0.257,-0.117,0.95,holm,heavy_ties,431,0.5,0.21,-0.83,-0.19,inconclusive,0.25,-1,0,inconclusive\r\n',
         ),
       },
     },
@@ -196,6 +201,37 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
       return reply.send(csvStream([...COMPARISON_CSV_COLUMNS], rows) as unknown as string);
     },
   );
+
+  app.get(
+    '/v1/experiments/:id/omnibus.csv',
+    {
+      config: { access: { ...READ, scopes: [...READ.scopes] } },
+      schema: {
+        tags: ['exports'],
+        summary: 'The omnibus comparisons as CSV: one row per measure and pair of conditions',
+        description:
+          `Columns: ${OMNIBUS_CSV_COLUMNS.join(', ')}. The omnibus numbers of a measure (Welch's ANOVA, the classic ANOVA, ` +
+          'Kruskal–Wallis, flag codes) repeat on each of its pairs; then the pair: Games–Howell (difference a − b, t, df, p) and ' +
+          "Dunn (z, two-sided p, two-sided Holm-adjusted p), and the equivalence tests when the measure has a margin. Same numbers " +
+          'as GET …/comparisons/{measure}/omnibus, from the same cache.',
+        params: ExperimentParams,
+        querystring: z.strictObject({ includeExcluded: FamilyQuery.shape.includeExcluded }),
+        response: fileResponse(
+          'CSV file',
+          'text/csv',
+          `${OMNIBUS_CSV_COLUMNS.join(',')}\r\n` +
+            'satisfaction,3,630,4.2,2,410.3,0.016,0.01,4.1,0.017,0.013,8.3,2,0.016,0.013,,bill-first,service-first,-0.51,-2.6,414.8,0.027,' +
+            '-2.5,0.012,0.037,0.5,0.21,inconclusive,0.25,inconclusive,431\r\n',
+        ),
+      },
+    },
+    async (request, reply) => {
+      const e = await loadExperiment(store, request.params.id);
+      const rows = await omnibusRows(opts.comparisons, e, request.query.includeExcluded === 'true');
+      download(reply, 'text/csv; charset=utf-8', `${e.id}-omnibus.csv`);
+      return reply.send(csvStream([...OMNIBUS_CSV_COLUMNS], rows) as unknown as string);
+    },
+  );
 }
 
 // ---------------------------------------------------------------------------------------------------------
@@ -207,7 +243,76 @@ export const COMPARISON_CSV_COLUMNS = [
   'meanDifference', 'meanDifferenceLower', 'meanDifferenceUpper', 'welchT', 'welchDf', 'welchP', 'welchPAdjusted',
   'mannWhitneyU', 'mannWhitneyP', 'mannWhitneyPAdjusted', 'hodgesLehmann', 'hodgesLehmannLower', 'hodgesLehmannUpper',
   'hedgesG', 'rankBiserial', 'confidenceLevel', 'adjust', 'flags', 'dataVersion',
+  // Equivalence (empty when the measure has no margin): both TOSTs, their (1 − 2α) intervals and verdict codes.
+  'equivalenceMargin', 'welchTostP', 'welchTostLower', 'welchTostUpper', 'welchTostVerdict',
+  'rankTostP', 'rankTostLower', 'rankTostUpper', 'rankTostVerdict',
 ] as const;
+
+export const OMNIBUS_CSV_COLUMNS = [
+  'measure', 'conditions', 'n', 'welchF', 'welchDf1', 'welchDf2', 'welchP', 'welchOmegaSquared',
+  'classicF', 'classicP', 'etaSquared', 'kruskalH', 'kruskalDf', 'kruskalP', 'epsilonSquared', 'omnibusFlags',
+  'a', 'b', 'meanDifference', 'gamesHowellT', 'gamesHowellDf', 'gamesHowellP', 'dunnZ', 'dunnP', 'dunnPHolm',
+  'equivalenceMargin', 'welchTostP', 'welchTostVerdict', 'rankTostP', 'rankTostVerdict', 'dataVersion',
+] as const;
+
+/** One row per measure and pair: the omnibus numbers of the measure (repeated on each of its pairs), then the pair's. */
+export async function omnibusRows(service: ComparisonService, e: ExperimentRecord, includeExcluded: boolean): Promise<(string | number)[][]> {
+  const rows: (string | number)[][] = [];
+  for (const m of e.measures) {
+    const { body: o } = await service.omnibus(e, m, { includeExcluded, margin: declaredMargin(e, m) });
+    const head = [
+      o.measure,
+      o.conditions.length,
+      o.groups.reduce((s, g) => s + g.n, 0),
+      cell(o.welchAnova.f),
+      cell(o.welchAnova.df1),
+      cell(o.welchAnova.df2),
+      cell(o.welchAnova.p),
+      cell(o.welchAnova.omegaSquared),
+      cell(o.classicAnova.f),
+      cell(o.classicAnova.p),
+      cell(o.classicAnova.etaSquared),
+      cell(o.kruskalWallis.h),
+      cell(o.kruskalWallis.df),
+      cell(o.kruskalWallis.p),
+      cell(o.kruskalWallis.epsilonSquared),
+      o.flags.map((f) => f.code).join(' '),
+    ];
+    for (const p of o.pairs) {
+      rows.push([
+        ...head,
+        p.a,
+        p.b,
+        cell(p.gamesHowell.meanDifference),
+        cell(p.gamesHowell.t),
+        cell(p.gamesHowell.df),
+        cell(p.gamesHowell.p),
+        cell(p.dunn.z),
+        cell(p.dunn.p),
+        cell(p.dunn.pHolm),
+        ...equivalenceCells(p.equivalence).filter((_, i) => [0, 1, 4, 5, 8].includes(i)),
+        o.dataVersion,
+      ]);
+    }
+  }
+  return rows;
+}
+
+/** The nine equivalence cells of comparisons.csv (all empty without a margin). */
+function equivalenceCells(eq: EquivalenceBody | null): (string | number)[] {
+  if (!eq) return Array.from({ length: 9 }, () => '');
+  return [
+    eq.margin,
+    cell(eq.welch.p),
+    cell(eq.welch.ci.lower),
+    cell(eq.welch.ci.upper),
+    eq.welch.verdict?.code ?? '',
+    cell(eq.rank.p),
+    cell(eq.rank.ci.lower),
+    cell(eq.rank.ci.upper),
+    eq.rank.verdict?.code ?? '',
+  ];
+}
 
 /** Numbers as CSV cells: null (undefined quantity) → empty. */
 function cell(v: number | null | undefined): number | string {
@@ -249,5 +354,6 @@ export async function comparisonRows(service: ComparisonService, e: ExperimentRe
     c.adjusted.method,
     c.flags.map((f) => f.code).join(' '),
     c.dataVersion,
+    ...equivalenceCells(c.equivalence),
   ]);
 }

@@ -37,6 +37,7 @@ export function comparisonBody(
     robust: cmp.robust,
     flags: flags as ComparisonBody['flags'],
     monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
+    equivalence: null,
   };
 }
 

@@ -29,21 +29,30 @@ import { createHash } from 'node:crypto';
 import { describe } from '../../../stats/descriptives.js';
 import { computeFlags, type FlagContext } from '../../../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../../../stats/adjust.js';
-import { compareSamples, fromCounts, type Alternative, type Sample } from '../../../stats/index.js';
-import type { ComparisonStamp, ExperimentRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
+import { compareSamples, fromCounts, type Alternative, type ConditionsComparison, type Sample } from '../../../stats/index.js';
+import type { ComparisonStamp, ExperimentRecord, MeasureRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
 import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
-import { compareSorted, shareable, sharedComparePool, type ComparePool, type CompareResult } from './worker-pool.js';
+import { compareSorted, omnibusSorted, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { comparisonBody, flagContext } from './reply.js';
+import { computeOmnibus, renderOmnibusChart, type OmnibusOptions } from './omnibus.js';
+import { declaredMargin } from './margin.js';
+import type { OmnibusBody } from '../../schemas/omnibus.js';
+import { equivalence } from '../../../stats/equivalence.js';
+
+/** The margin a pairwise comparison uses: the checked override when given, else the measure's declared margin. */
+function effectiveMargin(t: ComparisonTarget, o: ComparisonOptions): number | null {
+  return o.margin !== undefined ? o.margin : declaredMargin(t.experiment, t.measure);
+}
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
-export const CACHE_FORMAT = 1;
+export const CACHE_FORMAT = 2;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
@@ -66,6 +75,8 @@ export interface ComparisonOptions {
   alternative: Alternative;
   confidenceLevel: number;
   includeExcluded: boolean;
+  /** Equivalence margin: a checked `?margin=` override; undefined means the measure's declared margin (if any). */
+  margin?: number | null;
 }
 
 export const DEFAULT_COMPARISON_OPTIONS: Readonly<ComparisonOptions> = Object.freeze({
@@ -86,7 +97,10 @@ type Stamp = ComparisonStamp;
 // ---------------------------------------------------------------------------------------------------------
 
 /** `key` is the key the value was really computed for (its dataVersion may be newer than the one asked for). */
-type CachedValue = { kind: 'comparison'; key: string; body: ComparisonBody } | { kind: 'chart'; key: string; svg: string };
+type CachedValue =
+  | { kind: 'comparison'; key: string; body: ComparisonBody }
+  | { kind: 'chart'; key: string; svg: string }
+  | { kind: 'omnibus'; key: string; body: OmnibusBody };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -146,7 +160,54 @@ export class ComparisonService {
       s.dataVersion,
       s.rejectedTotal,
       s.looks,
+      effectiveMargin(t, o) ?? '',
     ].join('|');
+  }
+
+  /** Everything an omnibus reply depends on (the definition, the measure, the options, the data). */
+  omnibusKey(e: ExperimentRecord, m: MeasureRecord, o: OmnibusOptions, s: Pick<Stamp, 'dataVersion'>): string {
+    return ['omni', CACHE_FORMAT, e.key, e.updatedAt, m.key, o.includeExcluded ? 1 : 0, o.margin ?? '', s.dataVersion].join('|');
+  }
+
+  omnibusChartKey(e: ExperimentRecord, m: MeasureRecord, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>): string {
+    return ['omni-svg', CACHE_FORMAT, e.key, e.updatedAt, m.key, includeExcluded ? 1 : 0, s.dataVersion].join('|');
+  }
+
+  /** Every condition on one measure (omnibus tests, then every pair), from the cache or computed. */
+  async omnibus(e: ExperimentRecord, m: MeasureRecord, o: OmnibusOptions, stamp?: Stamp): Promise<{ body: OmnibusBody; etag: string }> {
+    const s = stamp ?? (await this.stamp(e));
+    const value = await this.cached(this.omnibusKey(e, m, o, s), async () => {
+      let inWorker = false;
+      const runner = async (task: Omit<OmnibusTask, 'kind'>) => {
+        const total = task.groups.reduce((sum, g) => sum + g.length, 0);
+        if (total < this.workerMinValues) return omnibusSorted(task);
+        const groups = task.groups.map((g) => shareable(g));
+        let fellBack = false;
+        const r = await this.workerPool().runOr<ConditionsComparison>({ kind: 'omnibus', ...task, groups }, () => {
+          fellBack = true;
+          return omnibusSorted(task);
+        });
+        inWorker = !fellBack;
+        return r;
+      };
+      const { body, snapshot } = await computeOmnibus(this.store, e, m, o, runner);
+      if (inWorker) this.paths.workerComputes++;
+      else this.paths.inThreadComputes++;
+      return { kind: 'omnibus', key: this.omnibusKey(e, m, o, snapshot), body };
+    });
+    if (value.kind !== 'omnibus') throw new Error('cache entry of the wrong kind');
+    return { body: value.body, etag: tagOf(value.key) };
+  }
+
+  /** The box plot of every condition on one measure (SVG). */
+  async omnibusChart(e: ExperimentRecord, m: MeasureRecord, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
+    const s = stamp ?? (await this.stamp(e));
+    const value = await this.cached(this.omnibusChartKey(e, m, includeExcluded, s), async () => {
+      const { svg, snapshot } = await renderOmnibusChart(this.store, e, m, includeExcluded);
+      return { kind: 'chart', key: this.omnibusChartKey(e, m, includeExcluded, snapshot), svg };
+    });
+    if (value.kind !== 'chart') throw new Error('cache entry of the wrong kind');
+    return { svg: value.svg, etag: tagOf(value.key) };
   }
 
   chartKey(t: ComparisonTarget, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>): string {
@@ -352,6 +413,12 @@ export class ComparisonService {
       includeExcluded: o.includeExcluded,
     });
     const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
+    const margin = effectiveMargin(t, o);
+    if (margin !== null) {
+      // The two TOSTs read the same snapshot (O(distinct values) for counts; the sorted values otherwise).
+      const { a, b } = samplesOf(m, snapshot);
+      body.equivalence = equivalence(a, b, { margin, alpha: e.alpha }) as ComparisonBody['equivalence'];
+    }
     return { body, snapshot };
   }
 }

@@ -9,7 +9,8 @@
  *            on the thread's own read-only connection, in ONE read transaction with the dataVersion and counters);
  *            the arrays live on SharedArrayBuffers, so the main thread keeps them in the engine's cache without a
  *            copy. The module is named by the store at run time, so this file knows no engine;
- *   compare  fromSortedValues on the two groups, compareSamples and computeFlags: pure stats/, plain objects back.
+ *   compare  fromSortedValues on the two groups, compareSamples and computeFlags: pure stats/, plain objects back;
+ *   omnibus  fromSortedValues on every condition and compareConditionSamples (the omnibus route, omnibus.ts).
  * The main thread decides what goes to a worker (service.ts: runs of at least the configured minimum of values);
  * small comparisons stay in-thread, where posting a message would cost more than the work.
  *
@@ -22,7 +23,14 @@ import os from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { isMainThread, parentPort, Worker, workerData } from 'node:worker_threads';
 import { computeFlags, type Flag, type FlagContext } from '../../../stats/flags.js';
-import { compareSamples, fromSortedValues, type Alternative, type Comparison } from '../../../stats/index.js';
+import {
+  compareConditionSamples,
+  compareSamples,
+  fromSortedValues,
+  type Alternative,
+  type Comparison,
+  type ConditionsComparison,
+} from '../../../stats/index.js';
 import type { RunsSnapshot } from '../../store/types.js';
 
 export interface ReadTask {
@@ -49,7 +57,16 @@ export interface CompareResult {
   flags: readonly Flag[];
 }
 
-type Task = ReadTask | CompareTask;
+/** Every condition of a continuous measure at once (the omnibus route; omnibus.ts). */
+export interface OmnibusTask {
+  kind: 'omnibus';
+  groups: Float64Array[];
+  labels: string[];
+  alpha: number;
+  margin: number | null;
+}
+
+type Task = ReadTask | CompareTask | OmnibusTask;
 
 /** The same values on a SharedArrayBuffer (as they are when already shared), so a worker reads them without a copy. O(n). */
 export function shareable(x: Float64Array): Float64Array {
@@ -59,6 +76,12 @@ export function shareable(x: Float64Array): Float64Array {
   return out;
 }
 type Reply = { id: number; ok: true; result: unknown } | { id: number; ok: false; message: string };
+
+/** The stats part of an omnibus comparison of sorted values (also what the main thread runs in-thread). */
+export function omnibusSorted(task: Omit<OmnibusTask, 'kind'>): ConditionsComparison {
+  const samples = task.groups.map((g, i) => fromSortedValues(g, task.labels[i]));
+  return compareConditionSamples(samples, { labels: task.labels, alpha: task.alpha, equivalenceMargin: task.margin });
+}
 
 /** The stats part of a comparison (also what the main thread runs in-thread). */
 export function compareSorted(task: Omit<CompareTask, 'kind'>): CompareResult {
@@ -89,7 +112,11 @@ if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_M
     try {
       const t = msg.task;
       const result: unknown =
-        t.kind === 'read' ? (await readerFor(t.module))(t.source, t.measureKey, t.conditionKeys, t.includeExcluded) : compareSorted(t);
+        t.kind === 'read'
+          ? (await readerFor(t.module))(t.source, t.measureKey, t.conditionKeys, t.includeExcluded)
+          : t.kind === 'omnibus'
+            ? omnibusSorted(t)
+            : compareSorted(t);
       reply = { id: msg.id, ok: true, result };
     } catch (err) {
       reply = { id: msg.id, ok: false, message: err instanceof Error ? `${err.name}: ${err.message}` : String(err) };
@@ -134,6 +161,7 @@ export class ComparePool {
   /** Run a task in a worker; rejects when no worker can run it (the caller then runs it in-thread). */
   run(task: ReadTask): Promise<RunsSnapshot>;
   run(task: CompareTask): Promise<CompareResult>;
+  run(task: OmnibusTask): Promise<ConditionsComparison>;
   run(task: Task): Promise<unknown> {
     const slot = this.slot();
     if (!slot) return Promise.reject(new Error('no comparison worker available'));

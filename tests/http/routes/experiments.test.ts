@@ -21,9 +21,9 @@ describe('POST /v1/experiments', () => {
         { id: 'service-first', label: 'The service questions come first' },
       ],
       measures: [
-        { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
-        { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true },
-        { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true },
+        { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true, equivalenceMargin: null },
+        { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true, required: true, equivalenceMargin: null },
+        { id: 'fair_price', label: 'Fair monthly price in euros', min: 0, max: 200, integer: false, required: true, equivalenceMargin: null },
       ],
       plannedPerCondition: 400,
       alpha: 0.05,
