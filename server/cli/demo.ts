@@ -35,7 +35,7 @@ export const DEMO_DEFINITION = {
   measures: [
     { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true },
     { id: 'trust', label: 'I trust the utility to charge fairly (1–7 agreement)', min: 1, max: 7, integer: true, required: true },
-    { id: 'fair_price', label: 'A fair monthly price (currency units, 0–200)', min: 0, max: 200, integer: false, required: true },
+    { id: 'fair_price', label: 'Fair monthly price (EUR)', min: 0, max: 200, integer: false, required: true },
   ],
   plannedPerCondition: 400,
   alpha: 0.05,
