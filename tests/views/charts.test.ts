@@ -423,22 +423,26 @@ describe('renderTrajectoryChart', () => {
     expect(renderTrajectoryChart({ alpha: 0.05, points: Object.freeze(flagged), floorPerCondition: 30 })).toBe(svg);
   });
 
-  it('marks the planned size and the recorded looks; the axis reaches the planned size', () => {
+  it('marks the planned size and the recorded looks; the axis reaches a near planned size', () => {
     const svg = renderTrajectoryChart({
       alpha: 0.05,
       points: Object.freeze(trajectory()),
-      plannedTotal: 800,
+      plannedTotal: 500,
       looks: Object.freeze([{ number: 1, n: 200 }, { number: 2, n: 400 }]),
     });
     assertWellFormed(svg);
-    expect(svg).toContain('planned 800');
+    expect(svg).toContain('>planned 500<');
     expect(count(svg, 'class="look-mark"')).toBe(2);
     expect(svg).toContain('>look 2<');
     const ticks = [...svg.matchAll(/class="axis axis-n"[\s\S]*?<\/g>/g)][0][0];
     const labels = [...ticks.matchAll(/class="tick-label">([^<]+)</g)].map((m) => Number(m[1].replace(/[\s,\u202f]/g, '')));
-    expect(Math.max(...labels)).toBe(800);
+    expect(Math.max(...labels)).toBe(500);
     const desc = svg.match(/<desc[^>]*>([^<]*)<\/desc>/)![1];
-    expect(desc).toContain('Planned: 800 answers. Recorded looks: 1 at 200, 2 at 400 answers.');
+    expect(desc).toContain('Planned: 500 answers (400 so far). Recorded looks: 1 at 200, 2 at 400 answers.');
+    // Far beyond the data (over 1.5 × the answers so far), the axis ends at the data and a label points right.
+    const far = renderTrajectoryChart({ alpha: 0.05, points: Object.freeze(trajectory()), plannedTotal: 5000 });
+    expect(far).not.toContain('class="planned-line"');
+    expect(far).toContain('planned 5,000 →');
   });
 
   it('breaks the band where bounds are missing in the middle', () => {

@@ -3,8 +3,8 @@
  *
  * Main panel: the current estimate of mean a − mean b as a line, and the running anytime-valid interval (the
  * intersection of the confidence sequence from the floor on, which never widens) as a step band: each step holds
- * what was known at one checkpoint until the next. The planned size and every recorded look are marked on the
- * answers axis. Points before the floor of answers per condition are drawn grey (estimate only) in a shaded
+ * what was known at one checkpoint until the next. The planned size (in place when it is near; otherwise a label
+ * pointing right) and every recorded look are marked on the answers axis. Points before the floor of answers per condition are drawn grey (estimate only) in a shaded
  * "too early" zone: no interval, no p, no crossing is shown for them.
  * Strip below, titled "How the evidence accumulated": the running anytime-valid p on a log scale with the α line,
  * and the first point where it reached α (never before the floor).
@@ -164,7 +164,7 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
     if (firstCounted) {
       desc.push(firstBelow ? `It first reached α = ${alphaText} after ${formatCount(firstBelow.n)} answers.` : `It has not reached α = ${alphaText}.`);
     }
-    if (planned !== null) desc.push(`Planned: ${formatCount(planned)} answers.`);
+    if (planned !== null) desc.push(`Planned: ${formatCount(planned)} answers${last.n < planned ? ` (${formatCount(last.n)} so far)` : ''}.`);
     if (looks.length > 0) desc.push(`Recorded looks: ${looks.map((l) => `${l.number} at ${formatCount(l.n)}`).join(', ')} answers.`);
   }
 
@@ -175,7 +175,11 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
 
   // x scale, shared; it reaches the planned size when there is one.
   const nMin = 0;
-  const nMax = Math.max(1, last ? last.n : 1, planned ?? 0, ...looks.map((l) => l.n));
+  // The planned size is drawn in place when it lies within half as much again as the answers so far; further out
+  // it would squeeze the data into a corner, so the axis ends at the data and a label points to the right.
+  const lastN = Math.max(1, last ? last.n : 1, ...looks.map((l) => l.n));
+  const plannedInView = planned !== null && planned <= 1.5 * lastN;
+  const nMax = plannedInView ? Math.max(lastN, planned) : lastN;
   const x = (n: number): number => left + ((n - nMin) / (nMax - nMin)) * (plotRight - left);
   const xTicks = niceTicks(nMin, nMax, 5, true);
   const xStep = xTicks.length > 2 ? xTicks[2] - xTicks[1] : nMax - nMin;
@@ -214,8 +218,8 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
     const edge = firstCounted ? x(firstCounted.n) : x(last!.n);
     if (edge > left + 1) {
       out.push(`<rect class="early-zone" x="${left}" y="${top1}" width="${c(edge - left)}" height="${h1}" fill="${EARLY}"/>`);
-      if (edge - left >= 70) {
-        out.push(text(left + 6, top1 + 16, 'too early', { 'font-size': 12, fill: MUTED, class: 'early-label' }));
+      if (edge - left >= 60) {
+        out.push(text(left + 6, top1 + 16, edge - left >= 110 ? 'too early to read' : 'too early', { 'font-size': 12, fill: MUTED, class: 'early-label' }));
       }
     }
   }
@@ -258,16 +262,22 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
   // Planned size and recorded looks: vertical marks through both panels, labelled above the main panel.
   out.push(`<g class="marks" font-size="12" fill="${INK}">`);
   const markBottom = top2 + strip;
-  if (planned !== null) {
+  if (planned !== null && plannedInView) {
     const px = x(planned);
     out.push(`<line class="planned-line" x1="${c(px)}" x2="${c(px)}" y1="${top1 - 6}" y2="${markBottom}" stroke="${INK}" stroke-width="1.25" stroke-dasharray="2 3"/>`);
     out.push(text(px - 4, top1 - 10, `planned ${formatCount(planned)}`, { 'text-anchor': 'end', class: 'planned-label' }));
+  } else if (planned !== null) {
+    out.push(text(plotRight, top1 - 10, `planned ${formatCount(planned)} →`, { 'text-anchor': 'end', class: 'planned-label planned-beyond' }));
   }
   for (const l of looks) {
     const lx = x(l.n);
+    // A line through both panels, a small upward triangle under the main panel and its number beside it.
+    const nearRight = plotRight - lx < 40;
     out.push(`<line class="look-line" x1="${c(lx)}" x2="${c(lx)}" y1="${top1}" y2="${markBottom}" stroke="${RUST}" stroke-width="1" stroke-opacity="0.8"/>`);
-    out.push(`<path class="look-mark" d="M${c(lx - 5)},${top1 - 9} L${c(lx + 5)},${top1 - 9} L${c(lx)},${top1 - 1} Z" fill="${RUST}"/>`);
-    out.push(text(lx, top1 + h1 + 14, `look ${l.number}`, { 'text-anchor': 'middle', 'font-size': 11, fill: RUST, class: 'look-label' }));
+    out.push(`<path class="look-mark" d="M${c(lx)},${top1 + h1 + 2} L${c(lx + 5)},${top1 + h1 + 10} L${c(lx - 5)},${top1 + h1 + 10} Z" fill="${RUST}"/>`);
+    out.push(
+      text(nearRight ? lx - 8 : lx + 8, top1 + h1 + 11, `look ${l.number}`, { 'text-anchor': nearRight ? 'end' : 'start', 'font-size': 11, fill: RUST, class: 'look-label' }),
+    );
   }
   out.push('</g>');
 
@@ -293,10 +303,12 @@ export function renderTrajectoryChart(input: TrajectoryChartInput): string {
     const fx = x(firstBelow.n);
     const fy = yP(firstBelow.p as number);
     out.push(`<circle class="first-crossing" cx="${c(fx)}" cy="${c(fy)}" r="4.5" fill="#ffffff" stroke="${INK}" stroke-width="2"/>`);
-    const labelLeft = fx - left > 170;
+    // A running p only falls: below-left of the point (where it came from, above) and above-right (where it goes,
+    // below) are empty. Below-left when there is room on both counts, else above-right.
+    const belowLeft = fx - left > 170 && fy + 16 <= top2 + strip - 4;
     out.push(
-      text(labelLeft ? fx - 9 : fx + 9, fy - 8 >= top2 + 10 ? fy - 8 : fy + 16, `reached α at ${formatCount(firstBelow.n)} answers`, {
-        'text-anchor': labelLeft ? 'end' : 'start',
+      text(belowLeft ? fx - 9 : fx + 9, belowLeft ? fy + 16 : Math.max(top2 + 12, fy - 8), `reached α at ${formatCount(firstBelow.n)} answers`, {
+        'text-anchor': belowLeft ? 'end' : 'start',
         'font-size': 12,
         fill: INK,
         class: 'first-crossing-label',

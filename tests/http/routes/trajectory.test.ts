@@ -106,8 +106,8 @@ describe('trajectory: cache and ETag', () => {
     expect(svgTag).toMatch(/^"[\w-]+"$/);
     expect(svgTag).not.toBe(etag);
     expect((await t.request({ method: 'GET', url: `${TRAJ}.svg`, headers: { 'if-none-match': svgTag } })).statusCode).toBe(304);
-    // The planned size (2 × 100) is marked on the chart.
-    expect(svg.body).toContain('planned 200');
+    // The planned size (2 × 100, beyond 1.5 × the 70 answers so far) is named on the chart.
+    expect(svg.body).toContain('planned 200 →');
 
     await post(prices(5, 100, 12));
     const changed = await t.request({ method: 'GET', url: TRAJ, headers: { 'if-none-match': etag } });
