@@ -6,6 +6,8 @@
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import { startTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
+import { sharedComparePool } from '../../../server/services/comparisons/worker-pool.js';
+import { computeTrajectory } from '../../../server/services/monitoring/trajectory.js';
 
 const TRAJ = `/v1/experiments/${WATER_ID}/comparisons/fair_price/trajectory`;
 
@@ -128,6 +130,18 @@ describe('trajectory: cache and ETag', () => {
     expect(new Set(replies.map((r) => r.headers.etag)).size).toBe(1);
     // One computation; the three other requests waited for it.
     expect(service.paths.trajectories - computedBefore).toBe(1);
+    // On a database file it ran in the worker pool (read and pass), and gives exactly what the in-thread code gives.
+    const pool = sharedComparePool();
+    const tasksBefore = pool.stats.tasks;
+    const fallbacksBefore = pool.stats.fallbacks;
+    const e = (await t.store.experiments.getBySlug(WATER_ID))!;
+    const target = { experiment: e, measure: e.measures.find((m) => m.id === 'fair_price')!, a: e.conditions[0], b: e.conditions[1] };
+    const inWorker = await computeTrajectory(t.store, target, pool);
+    expect(pool.stats.tasks - tasksBefore).toBe(1);
+    expect(pool.stats.fallbacks - fallbacksBefore).toBe(0);
+    const inThread = await computeTrajectory(t.store, target, null);
+    expect(inWorker).toEqual(inThread);
+    expect(inWorker).toEqual(replies[0].json());
 
     const before = await t.request({ method: 'GET', url: `${TRAJ}.svg` });
     const recorded = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/looks`, payload: { measure: 'fair_price' } });
