@@ -25,6 +25,7 @@
  */
 import { anytimeValid } from '../../../stats/sequential.js';
 import type { SpendingName } from '../../store/monitoring-types.js';
+import { FLOOR_PER_CONDITION } from './trajectory-points.js';
 import { gsMethod, informationFraction, lookView, monitoringOption, type LookView } from './looks.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 
@@ -47,8 +48,8 @@ export interface MonitoringInput {
   recordHistory?: boolean;
 }
 
-/** Answers per condition below which a point is left out of the running minimum / intersection. */
-export const MIN_RUNNING_PER_CONDITION = 30;
+/** Answers per condition below which a point is left out of the running minimum / intersection (trajectory-points.ts). */
+export const MIN_RUNNING_PER_CONDITION = FLOOR_PER_CONDITION;
 
 export interface IntervalView {
   level: number;

@@ -19,6 +19,12 @@
  */
 import { anytimeValid } from '../../../stats/sequential.js';
 
+/**
+ * Answers per condition before a point counts as evidence: the floor of the running values, here and in the
+ * monitoring block of a comparison (interim.ts MIN_RUNNING_PER_CONDITION).
+ */
+export const FLOOR_PER_CONDITION = 30;
+
 export interface ArrivalArrays {
   /** 0 for condition a, 1 for condition b (parallel to values). */
   group: Uint8Array;

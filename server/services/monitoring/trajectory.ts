@@ -16,8 +16,7 @@
 import { anytimeValid, DEFAULT_TARGET_PER_CONDITION } from '../../../stats/sequential.js';
 import type { ExperimentRecord, MeasureRecord, Store } from '../../store/types.js';
 import type { ComparePool } from '../comparisons/worker-pool.js';
-import { MIN_RUNNING_PER_CONDITION } from './interim.js';
-import { trajectoryPoints, type TrajectoryOptions, type TrajectoryPointView } from './trajectory-points.js';
+import { FLOOR_PER_CONDITION, trajectoryPoints, type TrajectoryOptions, type TrajectoryPointView } from './trajectory-points.js';
 
 export type { TrajectoryPointView } from './trajectory-points.js';
 
@@ -25,7 +24,7 @@ export type { TrajectoryPointView } from './trajectory-points.js';
 export const TRAJECTORY_POINTS = 60;
 
 /** Answers per condition before a trajectory point counts as evidence (the monitoring block's floor). */
-export const TRAJECTORY_FLOOR_PER_CONDITION = MIN_RUNNING_PER_CONDITION;
+export const TRAJECTORY_FLOOR_PER_CONDITION = FLOOR_PER_CONDITION;
 
 export interface TrajectoryBody {
   experiment: string;
