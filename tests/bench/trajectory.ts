@@ -18,7 +18,10 @@
  *   4 at once    one new answer arrives (a new dataVersion), then 4 identical requests at the same time: the
  *                wall time until all four answered, and the slowest single one
  *   event loop   the server's largest event-loop delay while `first` and `4 at once` ran (prom-client's
- *                nodejs_eventloop_lag_max_seconds from GET /metrics, reset at every scrape)
+ *                nodejs_eventloop_lag_max_seconds from GET /metrics, reset at every scrape), and over 3 s with no
+ *                request at all (a control: on a busy machine the process alone is sometimes not scheduled)
+ *   /healthz     a client asking GET /healthz one request after another during `first` and `4 at once`: the
+ *                slowest answer is how long the server could answer nothing else
  *   memory       the server's peak resident memory (VmHWM) after all of it, and its resident memory before the first request
  */
 import { existsSync, mkdirSync, readFileSync, writeFileSync } from 'node:fs';
@@ -43,6 +46,26 @@ async function eventLoopMaxMs(s: RunningServer, key: string): Promise<number | n
   if (!r.ok) return null;
   const m = (await r.text()).match(/^nodejs_eventloop_lag_max_seconds(?:\{[^}]*\})?\s+([0-9.eE+-]+)/m);
   return m ? Number(m[1]) * 1000 : null;
+}
+
+/** A client asking GET /healthz one request after another until stopped; the slowest answer (ms) says how long the server could not answer anything. */
+function healthProbe(s: RunningServer): { stop(): Promise<{ maxMs: number; requests: number }> } {
+  let running = true;
+  const ms: number[] = [];
+  const loop = (async () => {
+    while (running) {
+      const t0 = performance.now();
+      await fetch(`${s.url}/healthz`).then((r) => r.text());
+      ms.push(performance.now() - t0);
+    }
+  })();
+  return {
+    async stop() {
+      running = false;
+      await loop;
+      return { maxMs: Math.max(...ms), requests: ms.length };
+    },
+  };
 }
 
 async function load(s: RunningServer, key: string): Promise<void> {
@@ -92,9 +115,17 @@ async function main(): Promise<void> {
       s = await startService(env);
     } else log(`reusing ${env.dbPath}`);
     const rssBefore = rssOf(s.pid);
+    // Controls: one cheap read route first (so the first trajectory does not also pay for the first use of the
+    // routing and schema code), then the event-loop delay over 3 s of doing nothing (what the machine alone costs).
+    expectStatus(await api(s.url, 'GET', `/v1/experiments/${EXPERIMENT.id}`, key), [200], 'definition');
+    await eventLoopMaxMs(s, key);
+    await new Promise((r) => setTimeout(r, 3000));
+    const lagIdle = await eventLoopMaxMs(s, key);
 
     await eventLoopMaxMs(s, key);
+    const probeFirst = healthProbe(s);
     const first = await api<{ points: unknown[]; dataVersion: number }>(s.url, 'GET', PATH, key);
+    const healthFirst = await probeFirst.stop();
     expectStatus(first, [200], 'first trajectory');
     const lagFirst = await eventLoopMaxMs(s, key);
     const etag = first.headers.get('etag');
@@ -120,9 +151,11 @@ async function main(): Promise<void> {
       'one more answer',
     );
     await eventLoopMaxMs(s, key);
+    const probeFour = healthProbe(s);
     const t0 = performance.now();
     const four = await Promise.all([0, 1, 2, 3].map(() => api(s.url, 'GET', PATH, key)));
     const fourWall = performance.now() - t0;
+    const healthFour = await probeFour.stop();
     for (const r of four) expectStatus(r, [200], '4 at once');
     const lagFour = await eventLoopMaxMs(s, key);
     const mem = rssOf(s.pid);
@@ -132,8 +165,11 @@ async function main(): Promise<void> {
       ['repeat (median of 5)', `${median(repeats).toFixed(1)} ms`, `min ${Math.min(...repeats).toFixed(1)} ms`],
       ['revalidate (median of 5)', `${median(revalidations.map((r) => r.ms)).toFixed(1)} ms`, `status ${[...new Set(revalidations.map((r) => r.status))].join('/')}`],
       ['4 at once after new data', `${fmt.int(fourWall)} ms wall`, `slowest ${fmt.int(Math.max(...four.map((r) => r.ms)))} ms`],
+      ['event loop, 3 s idle (control)', lagIdle === null ? 'n/a' : `${lagIdle.toFixed(1)} ms max`, 'no request running'],
       ['event loop, first request', lagFirst === null ? 'n/a' : `${lagFirst.toFixed(1)} ms max`, ''],
       ['event loop, 4 at once', lagFour === null ? 'n/a' : `${lagFour.toFixed(1)} ms max`, ''],
+      ['GET /healthz during first request', `${fmt.int(healthFirst.maxMs)} ms slowest`, `${healthFirst.requests} requests one after another`],
+      ['GET /healthz during 4 at once', `${fmt.int(healthFour.maxMs)} ms slowest`, `${healthFour.requests} requests one after another`],
       ['server memory', mem ? `${fmt.int(mem.peakMb)} MB peak` : 'n/a', rssBefore ? `${fmt.int(rssBefore.currentMb)} MB resident before the first request` : ''],
     ];
     process.stdout.write(`\nTrajectory route, 2 × ${fmt.int(N)} answers (continuous item), ${PATH}\n`);
