@@ -39,7 +39,7 @@
  *        ρ² = (−2 ln α + ln(1 − 2 ln α)) / t*,  t* = planned answers per condition, or 500 by default
  *      (the sequence is tightest near t*; its width changes slowly away from it). With x = ρ² t:
  *        confidence sequence: θ̂ ± √( V · (x + 1)/x · (ln(x + 1) − 2 ln α) )
- *        always-valid p:      p = min(1, √(x + 1) · exp(−x z² / (2 (x + 1))))
+ *        anytime-valid p:     p = min(1, √(x + 1) · exp(−x z² / (2 (x + 1))))
  *      p is the reciprocal of the normal-mixture likelihood ratio at θ = 0; "p ≤ α" is exactly "0 is outside
  *      the level 1 − α sequence". This is the same statistic as the normal-mixture mSPRT of Johari, Koomen,
  *      Pekelis & Walsh (2022) with mixing variance τ² = ρ² (s_a² + s_b²). By Ville's inequality, P(p_t ≤ α at any t) ≤ α
@@ -58,6 +58,8 @@
  *     asymptotic confidence sequences. arXiv:2103.06476; Annals of Statistics (2024).
  *   Robbins H (1970). Statistical methods related to the law of the iterated logarithm. Annals of Mathematical
  *     Statistics 41:1397–1409. doi:10.1214/aoms/1177696786
+ *   Howard SR, Ramdas A, McAuliffe J, Sekhon J (2021). Time-uniform, nonparametric, nonasymptotic confidence
+ *     sequences. Annals of Statistics 49:1055–1080. doi:10.1214/20-AOS1991
  *   Johari R, Koomen P, Pekelis L, Walsh D (2022). Always valid inference: continuous monitoring of A/B tests.
  *     Operations Research 70:1806–1821. doi:10.1287/opre.2021.2135 (first circulated 2015/2017 as Johari,
  *     Pekelis & Walsh, "Always valid inference").
@@ -445,7 +447,7 @@ export interface TwoSampleMoments {
 
 export interface AnytimeValidResult {
   method: string;
-  /** Always-valid p-value for H0: mean a = mean b (two-sided). */
+  /** Anytime-valid p-value for H0: mean a = mean b (two-sided). */
   p: number | null;
   /** Level 1 − α confidence sequence for mean a − mean b at this moment. */
   ci: Interval;
@@ -479,7 +481,7 @@ function checkFiniteOrNull(x: number, name: string, nonNegative = false): void {
 }
 
 /**
- * Always-valid p-value and confidence sequence for mean a − mean b from the running moments of each group.
+ * Anytime-valid p-value and confidence sequence for mean a − mean b from the running moments of each group.
  * Valid however often it is checked (asymptotically). O(1).
  */
 export function anytimeValid(stats: TwoSampleMoments, opts: { alpha: number; plannedPerCondition?: number | null }): AnytimeValidResult {
@@ -493,7 +495,8 @@ export function anytimeValid(stats: TwoSampleMoments, opts: { alpha: number; pla
   const alpha = opts.alpha;
   const target = planned ?? DEFAULT_TARGET_PER_CONDITION;
   const rho = mixingForTarget(alpha, target);
-  const method = 'asymptotic confidence sequence (Gaussian mixture, Waudby-Smith et al. 2021) for the difference in means';
+  const method =
+    'asymptotic confidence sequence of normal-mixture type (Robbins 1970; Howard et al. 2021; Waudby-Smith et al. 2024) for the difference in means';
   const level = 1 - alpha;
   const base = { method, mixing: rho, targetPerCondition: target };
   const undefinedResult = (reason: string, estimate: number | null): AnytimeValidResult =>

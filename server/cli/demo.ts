@@ -38,7 +38,7 @@ export const DEMO_DEFINITION = {
     // Equivalence margins, chosen before any answer (invented): half a point on 0–10, half a point on 1–7, 5 units of price.
     { id: 'satisfaction', label: 'Overall satisfaction (0–10)', min: 0, max: 10, integer: true, required: true, equivalenceMargin: 0.5 },
     { id: 'trust', label: 'I trust the utility to charge fairly (1–7 agreement)', min: 1, max: 7, integer: true, required: true, equivalenceMargin: 0.5 },
-    { id: 'fair_price', label: 'A fair monthly price (currency units, 0–200)', min: 0, max: 200, integer: false, required: true, equivalenceMargin: 5 },
+    { id: 'fair_price', label: 'Fair monthly price (EUR)', min: 0, max: 200, integer: false, required: true, equivalenceMargin: 5 },
   ],
   plannedPerCondition: 400,
   alpha: 0.05,

@@ -184,7 +184,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(responseRoutes, { store });
   app.register(comparisonRoutes, { store, comparisons });
   app.register(exclusionRoutes, { store });
-  app.register(lookRoutes, { store });
+  app.register(lookRoutes, { store, comparisons });
   app.register(planningRoutes, { store });
   app.register(assignmentRoutes, { store });
   app.register(eventRoutes, { store });

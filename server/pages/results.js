@@ -545,17 +545,17 @@ function interimBlock(mid, cmp, trajectory) {
       h(
         'dl',
         { class: 'facts interim-facts' },
-        h('dt', {}, 'Always-valid ', h('em', { text: 'p' }), h('span', { class: 'help', text: 'may be checked after every answer' })),
+        h('dt', {}, 'Anytime-valid ', h('em', { text: 'p' }), h('span', { class: 'help', text: 'may be checked after every answer' })),
         h('dd', {}, n('monitoring.anytimeValid.p', 'p')),
-        h('dt', {}, 'Confidence sequence for a − b', h('span', { class: 'help', text: 'valid at every look' })),
+        h('dt', {}, 'Anytime-valid interval for a − b', h('span', { class: 'help', text: 'a confidence sequence: valid at every look' })),
         h('dd', {}, n('monitoring.anytimeValid.ci.level', 'level'), ' ', n('monitoring.anytimeValid.ci', 'interval')),
       ),
     );
     if (av.reason) parts.push(h('p', { class: 'muted', text: av.reason }));
     if (av.method) parts.push(h('p', { class: 'method', text: `Method: ${av.method}.` }));
-    parts.push(chartFigure('trajectory', 'The confidence sequence and the always-valid p as answers arrived', trajectory));
+    parts.push(chartFigure('trajectory', 'How the estimate and its anytime-valid interval developed as answers arrived', trajectory));
   } else {
-    parts.push(h('p', { class: 'muted', text: 'The always-valid p-value is not available for this comparison.' }));
+    parts.push(h('p', { class: 'muted', text: 'The anytime-valid p-value is not available for this comparison.' }));
   }
   const gs = mon.groupSequential;
   if (gs && Array.isArray(gs.looks)) {

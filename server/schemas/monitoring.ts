@@ -40,15 +40,15 @@ export const MonitoringSchema = z
     anytimeValid: z
       .object({
         method: z.string(),
-        p: z.number().nullable().describe('Always-valid p now (two-sided; H0: equal means)'),
-        ci: MonitoringIntervalSchema.describe('Confidence sequence for mean a − mean b now'),
+        p: z.number().nullable().describe('Anytime-valid p now (two-sided; H0: equal means)'),
+        ci: MonitoringIntervalSchema.describe('Anytime-valid interval (confidence sequence) for mean a − mean b now'),
         estimate: z.number().nullable(),
         mixing: z.number().describe('Mixing parameter ρ of the normal mixture (standardised scale)'),
         targetPerCondition: z.number().describe('Answers per condition where the sequence is tightest (planned size, or 500)'),
         running: z
           .object({
-            p: z.number().nullable().describe('Running minimum of the always-valid p over the recorded history: read this one'),
-            ci: MonitoringIntervalSchema.describe('Running intersection of the confidence sequence'),
+            p: z.number().nullable().describe('Running minimum of the anytime-valid p over the recorded history: read this one'),
+            ci: MonitoringIntervalSchema.describe('Running intersection of the anytime-valid interval (confidence sequence)'),
             points: z.number().int(),
             minPerCondition: z.number().int().describe('Points with fewer answers in a condition are left out'),
             reason: z.string().optional(),
@@ -129,15 +129,24 @@ export const TrajectorySchema = z
     method: z.string(),
     mixing: z.number(),
     targetPerCondition: z.number(),
+    plannedPerCondition: z.number().int().nullable().describe('Planned answers per condition, or null when none is declared'),
+    floorPerCondition: z.number().int().describe('Answers per condition before a point counts as evidence'),
     points: z.array(
       z.object({
         n: z.number().int().describe('Answers so far (both conditions)'),
         nA: z.number().int(),
         nB: z.number().int(),
-        p: z.number().nullable().describe('Always-valid p at that moment'),
-        lower: z.number().nullable().describe('Confidence sequence for a − b at that moment'),
+        provisional: z.boolean().describe('A condition has fewer answers than floorPerCondition: read as provisional, not as evidence'),
+        p: z.number().nullable().describe('Anytime-valid p at that moment'),
+        lower: z.number().nullable().describe('Anytime-valid interval (confidence sequence) for a − b at that moment: lower bound'),
         upper: z.number().nullable(),
         estimate: z.number().nullable().describe('Mean a − mean b at that moment'),
+        runningP: z.number().nullable().describe('Minimum of the anytime-valid p from the floor to this point; null before the floor'),
+        runningLower: z
+          .number()
+          .nullable()
+          .describe('Running (never-widening) anytime-valid interval: intersection from the floor to this point; null before the floor'),
+        runningUpper: z.number().nullable(),
       }),
     ),
   })

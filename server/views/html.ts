@@ -36,7 +36,11 @@ function page(title: string, bodyHtml: string): string {
 }
 
 export function thankYouPage(): string {
-  return page('Thank you', '<p>Your answers have been recorded. You can close this page now.</p>');
+  return page(
+    'Thank you for taking part',
+    '<p>Your answers reached the study team safely. There is nothing more you need to do.</p>' +
+      '<p class="small">You may close this tab or window whenever you like.</p>',
+  );
 }
 
 export interface HtmlProblem {
@@ -56,8 +60,8 @@ export function errorPage(problem: HtmlProblem): string {
     title = 'Some answers could not be accepted';
     advice = 'Nothing was saved. Please go back with your browser’s Back button, correct the answers listed below and send the form again.';
   } else if (slug === 'experiment-closed') {
-    title = 'This survey is closed';
-    advice = 'It no longer accepts answers. Thank you for your interest.';
+    title = 'This study has finished';
+    advice = 'It has finished collecting answers, so nothing you entered was saved. Thank you for wanting to take part.';
   } else if (slug === 'response-conflict') {
     title = 'These answers were already sent';
     advice = 'Answers with this identifier were already recorded, with different content. Nothing new was saved.';

@@ -72,9 +72,12 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
 
   beforeAll(async () => {
     t = await startTestApp({ config: { logLevel: 'warn' } });
-    expect((await t.createWater()).statusCode).toBe(201);
+    expect((await t.createWater({ monitoring: { spending: 'obrien-fleming' } })).statusCode).toBe(201);
     const batch = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, payload: { responses: seedResponses(160) } });
     expect(batch.statusCode, batch.body).toBe(201);
+    // One recorded interim look of satisfaction, so the trajectory chart has a look to mark.
+    const look = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/looks`, payload: { measure: 'satisfaction' } });
+    expect(look.statusCode, look.body).toBe(201);
     readKey = await t.key('read', WATER_ID, 'browser test');
     await t.app.listen({ port: 0, host: '127.0.0.1' });
     const addr = t.app.server.address();
@@ -175,6 +178,30 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
     await page.screenshot({ path: README_SCREENSHOT, clip: { x: 0, y: 0, width: 1280, height: 1500 }, fullPage: true });
     expect(problems).toEqual([]);
   }, 60_000);
+
+  it('the trajectory figure: estimate and running interval, the too-early zone, the look, the evidence strip; our own words', async () => {
+    const figure = page.locator('section.measure[data-measure="satisfaction"] figure.figure-trajectory');
+    await figure.locator('svg').waitFor({ timeout: 15_000 });
+    const svg = (await figure.locator('svg').evaluate((el) => el.outerHTML)) as string;
+    expect(svg).toContain('How the difference (a − b) developed');
+    expect(svg).toContain('How the evidence accumulated');
+    expect(svg).toContain('class="early-zone"'); // 160 answers: the first points have fewer than 30 per condition
+    expect(svg).toContain('class="band"');
+    expect(svg).toContain('class="estimate"');
+    expect(svg).toContain('class="look-mark"');
+    expect(svg).toContain('planned 800 →');
+    // The chart is drawn at a readable size.
+    const box = await figure.locator('svg').boundingBox();
+    expect(box!.width).toBeGreaterThan(400);
+    expect(await figure.locator('figcaption').textContent()).toBe('How the estimate and its anytime-valid interval developed as answers arrived');
+    // The page's words: anytime-valid, and nothing about what the software lacks.
+    const interim = (await page.locator('section.measure[data-measure="satisfaction"] section.interim').textContent()) ?? '';
+    expect(interim).toContain('Anytime-valid p');
+    expect(interim).toContain('Anytime-valid interval for a − b');
+    expect(interim).not.toMatch(/always-valid|not implemented/i);
+    await figure.screenshot({ path: join(OUTPUT, 'results-page-trajectory.png') });
+    expect(problems).toEqual([]);
+  }, 30_000);
 
   it('a response posted now appears through the event stream, without reloading', async () => {
     await page.locator('#live-status').filter({ hasText: 'Live: connected' }).waitFor({ timeout: 10_000 });

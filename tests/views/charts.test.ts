@@ -362,14 +362,24 @@ function trajectory(): TrajectoryPoint[] {
 }
 
 describe('renderTrajectoryChart', () => {
-  it('skips null bounds early on and draws the band, the zero line, the p line and the alpha line', () => {
+  it('skips null bounds early on and draws the step band, the zero line, the p line and the alpha line', () => {
     const points = Object.freeze(trajectory());
     const svg = renderTrajectoryChart({ alpha: 0.05, points, measureLabel: 'Satisfaction' });
     assertWellFormed(svg);
     expect(svg).toContain('role="img"');
     expect(count(svg, '<polygon class="band"')).toBe(1);
     const band = svg.match(/<polygon class="band" points="([^"]+)"/)![1].split(' ');
-    expect(band.length).toBe(2 * points.filter((p) => p.lower !== null).length);
+    // A step outline: k defined points give 2k − 1 corners on each edge.
+    const k = points.filter((p) => p.lower !== null).length;
+    expect(band.length).toBe(2 * (2 * k - 1));
+    // Every step is horizontal then vertical: corner 2i+1 has the x of corner 2i+2 and the y of corner 2i.
+    const xy = band.slice(0, 2 * k - 1).map((s) => s.split(',').map(Number));
+    for (let i = 0; i + 2 < xy.length; i += 2) {
+      expect(xy[i + 1][1]).toBe(xy[i][1]);
+      expect(xy[i + 1][0]).toBe(xy[i + 2][0]);
+    }
+    // The running interval never widens: the upper edge never rises on screen… (y grows downwards)
+    for (let i = 2; i < xy.length; i += 2) expect(xy[i][1]).toBeGreaterThanOrEqual(xy[i - 2][1]);
     expect(svg).toContain('class="zero-line"');
     expect(svg).toContain('class="alpha-line"');
     expect(count(svg, '<polyline class="p-line"')).toBe(1);
@@ -378,9 +388,61 @@ describe('renderTrajectoryChart', () => {
     expect(svg).not.toMatch(/\sstyle=|<style/);
     const desc = svg.match(/<desc[^>]*>([^<]*)<\/desc>/)![1];
     // 4·exp(−n/80) ≤ 0.05 first at n = 360 (hand computation: 80·ln 80 = 350.6)
-    expect(desc).toContain('first fell to α = 0.05 or below after 360 answers');
-    expect(desc).toContain('After 400 answers the 95% confidence sequence');
+    expect(desc).toContain('It first reached α = 0.05 after 360 answers');
+    expect(desc).toContain('After 400 answers the running 95% anytime-valid interval');
+    expect(svg).toContain('How the evidence accumulated');
+    expect(svg).not.toMatch(/always-valid/i);
     expect(svg).toContain('class="first-crossing"');
+  });
+
+  it('before the floor of answers per condition: grey estimate, no band, no p and no crossing, however small p is', () => {
+    // Early points (fewer than 30 per condition) with p = 1e-30, as a tiny early sample can give; later ones ordinary.
+    const pts: TrajectoryPoint[] = [];
+    for (let n = 4; n <= 200; n += 4) {
+      const half = n / 2;
+      const early = half < 30;
+      pts.push({ n, nA: half, nB: half, p: early ? 1e-30 : 0.4, lower: early ? -3.1 : -1, upper: early ? -3 : 1, estimate: early ? -3.05 : 0.1 });
+    }
+    const svg = renderTrajectoryChart({ alpha: 0.05, points: Object.freeze(pts), floorPerCondition: 30 });
+    assertWellFormed(svg);
+    expect(svg).not.toContain('class="first-crossing"');
+    expect(svg).toContain('class="early-zone"');
+    expect(count(svg, 'class="estimate estimate-early"')).toBe(1);
+    const desc = svg.match(/<desc[^>]*>([^<]*)<\/desc>/)![1];
+    expect(desc).toContain('Points before 60 answers, with fewer than 30 answers in a condition, are shown grey');
+    expect(desc).toContain('It has not reached α = 0.05.');
+    // The band and the p line start at the first counted point (n = 60), which is the right edge of the early zone.
+    const zone = svg.match(/<rect class="early-zone" x="([\d.]+)" y="[\d.]+" width="([\d.]+)"/)!;
+    const zoneEnd = Number(zone[1]) + Number(zone[2]);
+    const bandStart = Number(svg.match(/<polygon class="band" points="([\d.]+),/)![1]);
+    const pStart = Number(svg.match(/<polyline class="p-line" points="([\d.]+),/)![1]);
+    expect(bandStart).toBeCloseTo(zoneEnd, 1);
+    expect(pStart).toBeCloseTo(zoneEnd, 1);
+    // The same points with provisional given explicitly (and no answers per condition) draw the same picture.
+    const flagged = pts.map(({ nA, nB, ...p }) => ({ ...p, provisional: (nA as number) < 30 && (nB as number) < 30 }));
+    expect(renderTrajectoryChart({ alpha: 0.05, points: Object.freeze(flagged), floorPerCondition: 30 })).toBe(svg);
+  });
+
+  it('marks the planned size and the recorded looks; the axis reaches a near planned size', () => {
+    const svg = renderTrajectoryChart({
+      alpha: 0.05,
+      points: Object.freeze(trajectory()),
+      plannedTotal: 500,
+      looks: Object.freeze([{ number: 1, n: 200 }, { number: 2, n: 400 }]),
+    });
+    assertWellFormed(svg);
+    expect(svg).toContain('>planned 500<');
+    expect(count(svg, 'class="look-mark"')).toBe(2);
+    expect(svg).toContain('>look 2<');
+    const ticks = [...svg.matchAll(/class="axis axis-n"[\s\S]*?<\/g>/g)][0][0];
+    const labels = [...ticks.matchAll(/class="tick-label">([^<]+)</g)].map((m) => Number(m[1].replace(/[\s,\u202f]/g, '')));
+    expect(Math.max(...labels)).toBe(500);
+    const desc = svg.match(/<desc[^>]*>([^<]*)<\/desc>/)![1];
+    expect(desc).toContain('Planned: 500 answers (400 so far). Recorded looks: 1 at 200, 2 at 400 answers.');
+    // Far beyond the data (over 1.5 × the answers so far), the axis ends at the data and a label points right.
+    const far = renderTrajectoryChart({ alpha: 0.05, points: Object.freeze(trajectory()), plannedTotal: 5000 });
+    expect(far).not.toContain('class="planned-line"');
+    expect(far).toContain('planned 5,000 →');
   });
 
   it('breaks the band where bounds are missing in the middle', () => {

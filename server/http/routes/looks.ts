@@ -2,9 +2,10 @@
  * Interim monitoring routes:
  *   POST /v1/experiments/{id}/looks                                   record a group-sequential look (admin)
  *   GET  /v1/experiments/{id}/looks                                   list recorded looks (read)
- *   GET  /v1/experiments/{id}/comparisons/{measure}/trajectory        always-valid p and confidence sequence over time (read)
+ *   GET  /v1/experiments/{id}/comparisons/{measure}/trajectory        anytime-valid p and interval over time (read)
  *   GET  /v1/experiments/{id}/comparisons/{measure}/trajectory.svg    the same as a chart (read)
- * Thin: resolve experiment, measure and pair → services/monitoring/looks.ts, trajectory.ts → reply.
+ * Thin: resolve experiment, measure and pair → services/monitoring/looks.ts; the trajectory through the comparison
+ * service (cached per dataVersion, strong ETag, 304 on If-None-Match from the cheap stamp).
  */
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
@@ -12,8 +13,9 @@ import { z } from 'zod';
 import type { LookRecord } from '../../store/monitoring-types.js';
 import type { ConditionRecord, ExperimentRecord, Store } from '../../store/types.js';
 import { lookMessage, lookView, monitoringOption, recordLook } from '../../services/monitoring/looks.js';
-import { trajectory } from '../../services/monitoring/trajectory.js';
-import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
+import type { ComparisonService } from '../../services/comparisons/service.js';
+import { TRAJECTORY_FLOOR_PER_CONDITION, TRAJECTORY_POINTS } from '../../services/monitoring/trajectory.js';
+import { notModified } from '../conditional.js';
 import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { LookInputSchema, LookListQuery, LookListSchema, LookSchema, MeasureParams, PairQuery, TrajectorySchema } from '../../schemas/monitoring.js';
@@ -48,9 +50,11 @@ function lookBody(e: ExperimentRecord, l: LookRecord) {
 
 const READ = { scopes: ['admin', 'read'] as const, experimentParam: 'id' };
 
-export async function lookRoutes(base: FastifyInstance, opts: { store: Store }): Promise<void> {
+const NOT_MODIFIED = z.null().describe('Not modified: the If-None-Match tag is current (no body)');
+
+export async function lookRoutes(base: FastifyInstance, opts: { store: Store; comparisons: ComparisonService }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
-  const { store } = opts;
+  const { store, comparisons } = opts;
 
   app.post(
     '/v1/experiments/:id/looks',
@@ -116,12 +120,12 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
     },
   );
 
-  async function loadTrajectory(id: string, measureId: string, a: string | undefined, b: string | undefined) {
+  async function trajectoryTarget(id: string, measureId: string, a: string | undefined, b: string | undefined) {
     const e = await loadExperiment(store, id);
     const measure = resolveMeasure(e, measureId, { listMeasures: false });
     const pair = lookPair(e, a, b, 'querystring');
-    const t = await trajectory(store, e, measure, [pair[0].key, pair[1].key]);
-    return { e, measure, pair, t };
+    const target = { experiment: e, measure, a: pair[0], b: pair[1] };
+    return { target, stamp: await comparisons.stamp(e) };
   }
 
   app.get(
@@ -130,29 +134,24 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       config: { access: READ },
       schema: {
         tags: ['monitoring'],
-        summary: 'Always-valid p and confidence sequence over the course of the study',
+        summary: 'Anytime-valid p and interval (confidence sequence) over the course of the study',
         description:
-          'Recomputed at up to 60 evenly spaced prefixes of the answers in arrival order (excluded responses left out), with ' +
-          'the current planned size and alpha. Each point is what the sequence said after that many answers.',
+          `Computed at up to ${TRAJECTORY_POINTS} evenly spaced prefixes of the answers in arrival order (excluded responses left out), with ` +
+          'the current planned size and alpha. Each point is what the sequence said after that many answers. Points where a ' +
+          `condition has fewer than ${TRAJECTORY_FLOOR_PER_CONDITION} answers are \`provisional\` (the variance estimate is still unstable): ` +
+          'they do not enter the running values (`runningP`, `runningLower`, `runningUpper`: minimum and intersection from the ' +
+          'floor on, never widening). Cached per (experiment, measure, pair, dataVersion) with a strong `ETag`; send ' +
+          '`If-None-Match` to get 304 while nothing changed.',
         params: MeasureParams,
         querystring: PairQuery,
-        response: { 200: TrajectorySchema, ...problems(400, 401, 403, 404, 500) },
+        response: { 200: TrajectorySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 500) },
       },
     },
-    async (request) => {
-      const { e, measure, pair, t } = await loadTrajectory(request.params.id, request.params.measure, request.query.a, request.query.b);
-      return {
-        experiment: e.id,
-        measure: measure.id,
-        a: pair[0].id,
-        b: pair[1].id,
-        dataVersion: t.dataVersion,
-        alpha: e.alpha,
-        method: t.method,
-        mixing: t.mixing,
-        targetPerCondition: t.targetPerCondition,
-        points: t.points,
-      };
+    async (request, reply) => {
+      const { target, stamp } = await trajectoryTarget(request.params.id, request.params.measure, request.query.a, request.query.b);
+      if (notModified(request, reply, comparisons.etagOf(comparisons.trajectoryKey(target, stamp)))) return reply;
+      const { body, etag } = await comparisons.trajectory(target, stamp);
+      return reply.header('etag', etag).send(body);
     },
   );
 
@@ -162,27 +161,21 @@ export async function lookRoutes(base: FastifyInstance, opts: { store: Store }):
       config: { access: READ },
       schema: {
         tags: ['monitoring'],
-        summary: 'Chart of the confidence sequence and always-valid p over the course of the study (SVG)',
+        summary: 'Chart of the estimate and its anytime-valid interval over the course of the study, with the evidence strip (SVG)',
         params: MeasureParams,
         querystring: PairQuery,
         response: {
           200: { description: 'SVG image', content: { 'image/svg+xml': { schema: z.string() } } },
+          304: NOT_MODIFIED,
           ...problems(400, 401, 403, 404, 500),
         },
       },
     },
     async (request, reply) => {
-      const { e, measure, pair, t } = await loadTrajectory(request.params.id, request.params.measure, request.query.a, request.query.b);
-      const span = measure.max - measure.min;
-      const svg = renderTrajectoryChart({
-        alpha: e.alpha,
-        points: t.points,
-        measureLabel: `${measure.label} (${pair[0].id} − ${pair[1].id})`,
-        differenceLimits: { lower: -span, upper: span },
-        id: `sb-traj-${measure.id}`,
-      });
-      reply.type(SVG_CONTENT_TYPE).header('cache-control', 'no-cache');
-      return svg;
+      const { target, stamp } = await trajectoryTarget(request.params.id, request.params.measure, request.query.a, request.query.b);
+      if (notModified(request, reply, comparisons.etagOf(comparisons.trajectoryChartKey(target, stamp)))) return reply;
+      const { svg, etag } = await comparisons.trajectoryChart(target, stamp);
+      return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
     },
   );
 }

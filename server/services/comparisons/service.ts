@@ -36,6 +36,8 @@ import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
 import { compareSorted, omnibusSorted, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
+import { computeTrajectory, type TrajectoryBody } from '../monitoring/trajectory.js';
+import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
@@ -100,7 +102,9 @@ type Stamp = ComparisonStamp;
 type CachedValue =
   | { kind: 'comparison'; key: string; body: ComparisonBody }
   | { kind: 'chart'; key: string; svg: string }
-  | { kind: 'omnibus'; key: string; body: OmnibusBody };
+  | { kind: 'omnibus'; key: string; body: OmnibusBody }
+  | { kind: 'trajectory'; key: string; body: TrajectoryBody }
+  | { kind: 'trajectory-chart'; key: string; svg: string };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -119,7 +123,7 @@ export class ComparisonService {
   private readonly pool: ComparePool | null;
   private readonly onComparison: (event: ComparisonEvent) => void;
   /** Where the heavy steps ran (tests and benchmarks). */
-  readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0 };
+  readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0, trajectories: 0 };
 
   constructor(
     private readonly store: Store,
@@ -215,8 +219,57 @@ export class ComparisonService {
     return ['svg', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, includeExcluded ? 1 : 0, s.dataVersion].join('|');
   }
 
+  /** The trajectory depends on the definition (alpha, planned size), the measure, the pair and the dataVersion. */
+  trajectoryKey(t: ComparisonTarget, s: Pick<Stamp, 'dataVersion'>): string {
+    const e = t.experiment;
+    return ['trajectory', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, s.dataVersion].join('|');
+  }
+
+  /** Its chart also marks the recorded looks, so their number is part of the key. */
+  trajectoryChartKey(t: ComparisonTarget, s: Pick<Stamp, 'dataVersion' | 'looks'>): string {
+    return ['trajectory-svg', this.trajectoryKey(t, s), s.looks].join('|');
+  }
+
   etagOf(key: string): string {
     return tagOf(key);
+  }
+
+  /**
+   * The trajectory of the anytime-valid p and interval (services/monitoring/trajectory.ts), cached per dataVersion;
+   * the read and the O(n) pass run in the worker pool when the engine allows it.
+   */
+  async trajectory(t: ComparisonTarget, stamp?: Stamp): Promise<{ body: TrajectoryBody; etag: string }> {
+    const s = stamp ?? (await this.stamp(t.experiment));
+    const value = await this.cached(this.trajectoryKey(t, s), async () => {
+      this.paths.trajectories++;
+      const body = await computeTrajectory(this.store, t, this.workerPool());
+      return { kind: 'trajectory', key: this.trajectoryKey(t, body), body };
+    });
+    if (value.kind !== 'trajectory') throw new Error('cache entry of the wrong kind');
+    return { body: value.body, etag: tagOf(value.key) };
+  }
+
+  /** The trajectory chart (SVG): the cached trajectory plus the recorded looks of the pair. */
+  async trajectoryChart(t: ComparisonTarget, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
+    const s = stamp ?? (await this.stamp(t.experiment));
+    const value = await this.cached(this.trajectoryChartKey(t, s), async () => {
+      const { body } = await this.trajectory(t, s);
+      const looks = await this.store.looks.list(t.experiment.key, t.measure.key, [t.a.key, t.b.key]);
+      const span = t.measure.max - t.measure.min;
+      const svg = renderTrajectoryChart({
+        alpha: body.alpha,
+        points: body.points,
+        floorPerCondition: body.floorPerCondition,
+        plannedTotal: body.plannedPerCondition === null ? null : 2 * body.plannedPerCondition,
+        looks: looks.map((l) => ({ number: l.number, n: l.nA + l.nB })),
+        measureLabel: `${t.measure.label} (${t.a.id} − ${t.b.id})`,
+        differenceLimits: { lower: -span, upper: span },
+        id: `sb-traj-${t.measure.id}`,
+      });
+      return { kind: 'trajectory-chart', key: this.trajectoryChartKey(t, { dataVersion: body.dataVersion, looks: s.looks }), svg };
+    });
+    if (value.kind !== 'trajectory-chart') throw new Error('cache entry of the wrong kind');
+    return { svg: value.svg, etag: tagOf(value.key) };
   }
 
   /** The comparison for a target, from the cache or computed (and cached). `stamp` defaults to a fresh one. */
@@ -314,7 +367,7 @@ export class ComparisonService {
         const started = performance.now();
         const value = await compute();
         this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
-        const bytes = value.kind === 'chart' ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
+        const bytes = 'svg' in value ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
       } finally {

@@ -11,6 +11,9 @@
  *            copy. The module is named by the store at run time, so this file knows no engine;
  *   compare  fromSortedValues on the two groups, compareSamples and computeFlags: pure stats/, plain objects back;
  *   omnibus  fromSortedValues on every condition and compareConditionSamples (the omnibus route, omnibus.ts).
+ *   trajectory  one measure's answers in arrival order, read by the engine's worker module (readArrivalInWorker) on
+ *            the thread's own connection, turned into the few trajectory points there (monitoring/trajectory-points.ts),
+ *            so neither the read nor the arrays ever reach the main thread.
  * The main thread decides what goes to a worker (service.ts: runs of at least the configured minimum of values);
  * small comparisons stay in-thread, where posting a message would cost more than the work.
  *
@@ -32,6 +35,7 @@ import {
   type ConditionsComparison,
 } from '../../../stats/index.js';
 import type { RunsSnapshot } from '../../store/types.js';
+import { trajectoryPoints, type ArrivalArrays, type TrajectoryOptions, type TrajectoryPointView } from '../monitoring/trajectory-points.js';
 
 export interface ReadTask {
   kind: 'read';
@@ -66,7 +70,22 @@ export interface OmnibusTask {
   margin: number | null;
 }
 
-type Task = ReadTask | CompareTask | OmnibusTask;
+export interface TrajectoryTask {
+  kind: 'trajectory';
+  /** The engine's worker module (a file URL exporting readArrivalInWorker) and the source it opens. */
+  module: string;
+  source: string;
+  measureKey: number;
+  conditionKeys: [number, number];
+  options: TrajectoryOptions;
+}
+
+export interface TrajectoryResult {
+  dataVersion: number;
+  points: TrajectoryPointView[];
+}
+
+type Task = ReadTask | CompareTask | OmnibusTask | TrajectoryTask;
 
 /** The same values on a SharedArrayBuffer (as they are when already shared), so a worker reads them without a copy. O(n). */
 export function shareable(x: Float64Array): Float64Array {
@@ -98,14 +117,23 @@ const WORKER_MARK = 'splitballot-compare-worker';
 
 if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_MARK) {
   type ReadRuns = (source: string, measureKey: number, conditionKeys: number[], includeExcluded: boolean) => RunsSnapshot;
-  const readers = new Map<string, Promise<ReadRuns>>();
-  const readerFor = (module: string): Promise<ReadRuns> => {
-    let r = readers.get(module);
+  type ReadArrival = (source: string, measureKey: number, conditionKeys: [number, number]) => ArrivalArrays & { dataVersion: number };
+  type EngineModule = { readRunsInWorker: ReadRuns; readArrivalInWorker?: ReadArrival };
+  const modules = new Map<string, Promise<EngineModule>>();
+  const moduleFor = (module: string): Promise<EngineModule> => {
+    let r = modules.get(module);
     if (!r) {
-      r = import(module).then((m: { readRunsInWorker: ReadRuns }) => m.readRunsInWorker);
-      readers.set(module, r);
+      r = import(module) as Promise<EngineModule>;
+      modules.set(module, r);
     }
     return r;
+  };
+  const readerFor = async (module: string): Promise<ReadRuns> => (await moduleFor(module)).readRunsInWorker;
+  const trajectoryIn = async (t: TrajectoryTask): Promise<TrajectoryResult> => {
+    const read = (await moduleFor(t.module)).readArrivalInWorker;
+    if (!read) throw new Error('the store engine reads no arrival order in a worker');
+    const arrival = read(t.source, t.measureKey, t.conditionKeys);
+    return { dataVersion: arrival.dataVersion, points: trajectoryPoints(arrival, t.options) };
   };
   parentPort!.on('message', async (msg: { id: number; task: Task }) => {
     let reply: Reply;
@@ -116,7 +144,9 @@ if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_M
           ? (await readerFor(t.module))(t.source, t.measureKey, t.conditionKeys, t.includeExcluded)
           : t.kind === 'omnibus'
             ? omnibusSorted(t)
-            : compareSorted(t);
+            : t.kind === 'trajectory'
+              ? await trajectoryIn(t)
+              : compareSorted(t);
       reply = { id: msg.id, ok: true, result };
     } catch (err) {
       reply = { id: msg.id, ok: false, message: err instanceof Error ? `${err.name}: ${err.message}` : String(err) };
@@ -162,6 +192,7 @@ export class ComparePool {
   run(task: ReadTask): Promise<RunsSnapshot>;
   run(task: CompareTask): Promise<CompareResult>;
   run(task: OmnibusTask): Promise<ConditionsComparison>;
+  run(task: TrajectoryTask): Promise<TrajectoryResult>;
   run(task: Task): Promise<unknown> {
     const slot = this.slot();
     if (!slot) return Promise.reject(new Error('no comparison worker available'));
@@ -177,7 +208,7 @@ export class ComparePool {
   /** Run in a worker, or in-thread with `fallback` when the worker fails. */
   async runOr<T>(task: Task, fallback: () => T): Promise<T> {
     try {
-      return (await this.run(task as ReadTask & CompareTask)) as T;
+      return (await this.run(task as ReadTask & CompareTask & TrajectoryTask)) as T;
     } catch {
       this.stats.fallbacks++;
       return fallback();

@@ -5,8 +5,8 @@
  * The statistics are in stats/sequential.ts (see its header for formulas and references); this file reads the
  * store, calls stats, and shapes the result:
  *
- *  - anytimeValid: the always-valid p and confidence sequence for mean a − mean b (asymptotic confidence
- *    sequence of Waudby-Smith et al. 2021 = normal-mixture mSPRT of Johari et al.), tuned to the planned size per
+ *  - anytimeValid: the anytime-valid p and interval (confidence sequence) for mean a − mean b (Robbins' 1970
+ *    normal mixture; Howard et al. 2021; asymptotic version of Waudby-Smith et al.), tuned to the planned size per
  *    condition (or 500). It may be read after every answer. Besides the current value, the running minimum of p
  *    and the running intersection of the intervals over the recorded history are reported (`running`): they
  *    are just as valid and never move back. History: one row per (experiment, measure, pair, α, target,
@@ -25,6 +25,7 @@
  */
 import { anytimeValid } from '../../../stats/sequential.js';
 import type { SpendingName } from '../../store/monitoring-types.js';
+import { FLOOR_PER_CONDITION } from './trajectory-points.js';
 import { gsMethod, informationFraction, lookView, monitoringOption, type LookView } from './looks.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 
@@ -47,8 +48,8 @@ export interface MonitoringInput {
   recordHistory?: boolean;
 }
 
-/** Answers per condition below which a point is left out of the running minimum / intersection. */
-export const MIN_RUNNING_PER_CONDITION = 30;
+/** Answers per condition below which a point is left out of the running minimum / intersection (trajectory-points.ts). */
+export const MIN_RUNNING_PER_CONDITION = FLOOR_PER_CONDITION;
 
 export interface IntervalView {
   level: number;
@@ -59,7 +60,7 @@ export interface IntervalView {
 
 export interface AnytimeValidBlock {
   method: string;
-  /** Always-valid p now (two-sided, H0: mean a = mean b). */
+  /** Anytime-valid p now (two-sided, H0: mean a = mean b). */
   p: number | null;
   /** Confidence sequence for mean a − mean b now. */
   ci: IntervalView;
@@ -121,15 +122,14 @@ function withPendingPoint(
 }
 
 export const CAVEAT =
-  'While the study runs, read the running always-valid p-value and its confidence sequence: they may be checked ' +
-  'after every answer without inflating false positives, and they never move back. The ordinary Welch and rank-sum ' +
-  'p-values are valid only once, at the planned size. The always-valid p and confidence sequence are for the difference in ' +
-  'means (the Welch setting) and use the asymptotic normal-mixture sequence for every item, continuous or bounded ' +
-  'integer; the betting confidence sequence for bounded items (Waudby-Smith & Ramdas 2024) is not implemented. ' +
+  'While the study runs, read the running anytime-valid p-value and the anytime-valid interval (confidence sequence): ' +
+  'they may be checked after every answer without inflating false positives, and they never move back. The ordinary ' +
+  'Welch and rank-sum p-values are valid only once, at the planned size. The anytime-valid p and interval are for the ' +
+  'difference in means (the Welch setting), from the asymptotic normal-mixture confidence sequence, for every item. ' +
   'Group-sequential looks are valid only if the study stops at the first crossed boundary and looks no more often ' +
   'than it records.';
 
-const EARLY_CAVEAT = ` Fewer than ${MIN_RUNNING_PER_CONDITION} answers in a condition: the variance estimate is still unstable, so treat the current always-valid p as provisional (the running values ignore such points).`;
+const EARLY_CAVEAT = ` Fewer than ${MIN_RUNNING_PER_CONDITION} answers in a condition: the variance estimate is still unstable, so treat the current anytime-valid p as provisional (the running values ignore such points).`;
 
 /** The monitoring block of a comparison of one measure between two conditions. */
 export async function computeMonitoring(input: MonitoringInput): Promise<Monitoring | null> {

@@ -1,6 +1,6 @@
 /**
  * Server-rendered SVG figures for the results page: a box plot with every answer drawn as a point
- * (one per condition) and the interim-monitoring trajectory (confidence sequence and always-valid p).
+ * (one per condition) and the interim-monitoring trajectory (estimate and anytime-valid interval, with the p strip).
  *
  * Pure: strings in, strings out. No I/O, no globals, no dependencies, no clock, no randomness (the jitter
  * is a hash of each answer's value and its rank among equal answers, so the picture is the same for the
@@ -75,19 +75,37 @@ export interface DistributionChartInput {
 export interface TrajectoryPoint {
   /** Answers so far (both conditions together). */
   n: number;
-  /** Always-valid p-value at that moment, in [0, 1]; null when not yet defined. */
+  /** Anytime-valid p-value at that moment, in [0, 1]; null when not yet defined. */
   p: number | null;
-  /** Confidence sequence for mean a − mean b at that moment; null early on (skipped). */
+  /** Anytime-valid interval (confidence sequence) for mean a − mean b at that moment; null early on (skipped). */
   lower: number | null;
   upper: number | null;
   /** Mean a − mean b at that moment (optional; drawn as a line when present). */
   estimate?: number | null;
+  /** Answers per condition at that moment (optional; with `floorPerCondition` they decide `provisional`). */
+  nA?: number;
+  nB?: number;
+  /** Before the floor of answers per condition: drawn grey, never as evidence (default: from nA, nB and the floor). */
+  provisional?: boolean;
+  /**
+   * The running (never-widening) interval and the running minimum of p from the floor on. When a point carries
+   * none of them, the chart takes them from lower, upper and p of the non-provisional points so far.
+   */
+  runningLower?: number | null;
+  runningUpper?: number | null;
+  runningP?: number | null;
 }
 
 export interface TrajectoryChartInput {
-  /** Two-sided significance level of the sequence (the band is the 1 − α confidence sequence). */
+  /** Two-sided significance level of the sequence (the band is the 1 − α anytime-valid interval). */
   alpha: number;
   points: readonly TrajectoryPoint[];
+  /** Answers per condition before a point counts (default 0: every point counts unless marked provisional). */
+  floorPerCondition?: number;
+  /** Planned answers, both conditions together (marked on the answers axis); null or absent when none. */
+  plannedTotal?: number | null;
+  /** Recorded group-sequential looks: their number and the answers (both conditions) they were recorded at. */
+  looks?: readonly { number: number; n: number }[];
   /** Shown in the title and description (escaped). */
   measureLabel?: string;
   /** Clip the difference axis to this range (e.g. ±(max − min) of the item, beyond which no difference exists). */

@@ -149,7 +149,9 @@ describe('form posts from browsers (HTML answers)', () => {
     expect(page.statusCode).toBe(200);
     expect(page.headers['content-type']).toBe('text/html; charset=utf-8');
     expect(page.headers['content-security-policy']).toMatch(/^default-src 'none'; style-src 'sha256-[A-Za-z0-9+/=]+'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'$/);
-    expect(page.body).toContain('Your answers have been recorded.');
+    expect(page.body).toContain('<html lang="en">');
+    expect(page.body).toContain('<h1>Thank you for taking part</h1>');
+    expect(page.body).toContain('Your answers reached the study team safely. There is nothing more you need to do.');
     expect(page.body).not.toContain('<script');
   });
 
@@ -182,7 +184,9 @@ describe('form posts from browsers (HTML answers)', () => {
     await t.request({ method: 'PATCH', url: `/v1/experiments/${WATER_ID}`, payload: { status: 'closed' } });
     const closed = await postForm({ ...GOOD, ingestKey: ingest }, { accept: BROWSER_ACCEPT });
     expect(closed.statusCode).toBe(409);
-    expect(closed.body).toContain('<h1>This survey is closed</h1>');
+    expect(closed.body).toContain('<h1>This study has finished</h1>');
+    expect(closed.body).toContain('It has finished collecting answers, so nothing you entered was saved.');
+    expect(closed.body).not.toContain('<script');
     const missing = await t.request({ method: 'POST', url: '/v1/experiments/nope/responses', payload: form(GOOD), headers: { ...FORM, accept: BROWSER_ACCEPT } });
     expect(missing.statusCode).toBe(404);
     expect(missing.headers['content-type']).toBe('text/html; charset=utf-8');
