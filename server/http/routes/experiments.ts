@@ -10,6 +10,12 @@ import { problems } from '../../schemas/common.js';
 import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+import { DEFAULT_MAX_WEIGHT, weightsOf } from '../../schemas/weights.js';
+
+function weightsView(e: ExperimentRecord): { weights: ExperimentView['weights']; maxWeight: number | null } {
+  const w = weightsOf(e.options);
+  return { weights: w.weights, maxWeight: w.weights === 'none' ? null : w.maxWeight };
+}
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -23,13 +29,14 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
     title: e.title,
     status: e.status,
     conditions: e.conditions.map((c) => ({ id: c.id, label: c.label })),
-    measures: e.measures.map((m) => ({ id: m.id, label: m.label, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+    measures: e.measures.map((m) => ({ id: m.id, label: m.label, min: m.min, max: m.max, integer: m.integer, required: m.required, role: m.role })),
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
     thankYouUrl: e.thankYouUrl,
     flagThresholds: (e.options.flagThresholds as ExperimentView['flagThresholds']) ?? null,
     monitoring: (e.options.monitoring as ExperimentView['monitoring']) ?? null,
     allocation: (e.options.allocation as ExperimentView['allocation']) ?? null,
+    ...weightsView(e),
     dataVersion: e.dataVersion,
     createdAt: e.createdAt,
     updatedAt: e.updatedAt,
@@ -62,7 +69,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         id: b.id,
         title: b.title,
         conditions: b.conditions.map((c) => ({ id: c.id, label: c.label ?? c.id })),
-        measures: b.measures.map((m) => ({ id: m.id, label: m.label ?? m.id, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+        measures: b.measures.map((m) => ({ id: m.id, label: m.label ?? m.id, min: m.min, max: m.max, integer: m.integer, required: m.required, role: m.role })),
         plannedPerCondition: b.plannedPerCondition ?? null,
         alpha: b.alpha,
         thankYouUrl: b.thankYouUrl ?? null,
@@ -70,6 +77,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
           ...(b.flagThresholds ? { flagThresholds: b.flagThresholds } : {}),
           ...(b.monitoring ? { monitoring: b.monitoring } : {}),
           ...(b.allocation ? { allocation: b.allocation } : {}),
+          ...(b.weights !== 'none' ? { weights: b.weights, maxWeight: b.maxWeight ?? DEFAULT_MAX_WEIGHT } : {}),
         },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);

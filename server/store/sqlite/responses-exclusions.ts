@@ -17,6 +17,7 @@ export class SqliteExclusionWriter {
   private readonly bumpVersion;
   private readonly responseForExclusion;
   private readonly integerValuesOf;
+  private readonly weightOf;
   private readonly setResponseExcluded;
   private readonly setValuesExcluded;
   private readonly decrementCount;
@@ -51,17 +52,27 @@ export class SqliteExclusionWriter {
          WHERE v.response_id = ? AND m.is_integer = 1`,
       )
       .raw();
+    this.weightOf = db.prepare<[number], number | null>(`SELECT weight FROM responses WHERE id = ?`).pluck();
     this.setResponseExcluded = db.prepare<[number, string | null, number]>(`UPDATE responses SET excluded = ?, excluded_reason = ? WHERE id = ?`);
     this.setValuesExcluded = db.prepare<[number, number]>(`UPDATE response_values SET excluded = ? WHERE response_id = ?`);
-    this.decrementCount = db.prepare<[number, number, number, number, number]>(
-      `UPDATE value_counts SET count = count - ? WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ?`,
+    // One answer leaves a row: its count, and (when its response carries a weight) the weighted count and sums. The
+    // sums of a row left with no weighted answer are set to exactly 0, so rounding never leaves a residue behind.
+    this.decrementCount = db.prepare<[{ n: number; wn: number; ws: number; wq: number; measure: number; condition: number; excluded: number; value: number }]>(
+      `UPDATE value_counts SET count = count - @n, weighted_count = weighted_count - @wn,
+         weight_sum = CASE WHEN weighted_count - @wn = 0 THEN 0 ELSE max(weight_sum - @ws, 0) END,
+         weight_square_sum = CASE WHEN weighted_count - @wn = 0 THEN 0 ELSE max(weight_square_sum - @wq, 0) END
+       WHERE measure_id = @measure AND condition_id = @condition AND excluded = @excluded AND value = @value`,
     );
     this.deleteEmptyCount = db.prepare<[number, number, number, number]>(
       `DELETE FROM value_counts WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND count = 0`,
     );
-    this.incrementCount = db.prepare<[number, number, number, number, number]>(
-      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, ?, ?, ?)
-       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
+    this.incrementCount = db.prepare<[number, number, number, number, number, number, number, number]>(
+      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count, weighted_count, weight_sum, weight_square_sum)
+       VALUES (?, ?, ?, ?, ?, ?, ?, ?)
+       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count,
+         weighted_count = value_counts.weighted_count + excluded.weighted_count,
+         weight_sum = value_counts.weight_sum + excluded.weight_sum,
+         weight_square_sum = value_counts.weight_square_sum + excluded.weight_square_sum`,
     );
     this.bumpExcluded = db.prepare<[number, number]>(`UPDATE conditions SET excluded_count = excluded_count + ? WHERE id = ?`);
     this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
@@ -94,7 +105,8 @@ export class SqliteExclusionWriter {
         const reason = change.excluded ? change.reason : null;
         this.setResponseExcluded.run(target, reason, row.id);
         this.setValuesExcluded.run(target, row.id);
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, from, target);
+        const weight = this.weightOf.get(row.id) ?? null;
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, from, target);
         this.bumpExcluded.run(change.excluded ? 1 : -1, row.condition_id);
         const dataVersion = this.bumpVersion.get(experimentKey) as number;
         this.audit.record({
@@ -118,7 +130,8 @@ export class SqliteExclusionWriter {
       const rows = this.responsesOfRespondent.all(experimentKey, respondent);
       const perCondition = new Map<number, { responses: number; excluded: number }>();
       for (const row of rows) {
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, row.excluded as 0 | 1, null);
+        const weight = this.weightOf.get(row.id) ?? null;
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
         this.deleteValuesOf.run(row.id);
         this.deleteResponse.run(row.id);
         this.audit.redactResponse(experimentKey, row.response_id);
@@ -139,13 +152,16 @@ export class SqliteExclusionWriter {
 
   /**
    * Move one answer's per-value count from excluded = `from` to excluded = `to` (null: remove it, for erasure).
-   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values.
+   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values. `weight` is the
+   * response's weight (null: none), moved with the answer in the weighted count and sums.
    */
-  private moveCount(measureKey: number, conditionKey: number, value: number, from: 0 | 1, to: 0 | 1 | null): void {
-    const changed = this.decrementCount.run(1, measureKey, conditionKey, from, value).changes;
+  private moveCount(measureKey: number, conditionKey: number, value: number, weight: number | null, from: 0 | 1, to: 0 | 1 | null): void {
+    const w = weight ?? 0;
+    const weighted = weight === null ? 0 : 1;
+    const changed = this.decrementCount.run({ n: 1, wn: weighted, ws: w, wq: w * w, measure: measureKey, condition: conditionKey, excluded: from, value }).changes;
     if (changed !== 1) throw new Error(`value_counts has no row for measure ${measureKey}, condition ${conditionKey}, excluded ${from}, value ${value}`);
     this.deleteEmptyCount.run(measureKey, conditionKey, from, value);
-    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1);
+    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1, weighted, w, w * w);
   }
 
   async setExcluded(
