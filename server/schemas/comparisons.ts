@@ -6,6 +6,7 @@
  */
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
+import { AdjustedBlockSchema, WeightedBlockSchema } from './weighted.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -112,6 +113,10 @@ export const FlagSchema = z
       'floor_ceiling',
       'interim',
       'excluded',
+      // survey weights (stats/weight-flags.ts)
+      'unequal_weights',
+      'dominant_weight',
+      'weighting_changes_conclusion',
     ]),
     severity: z.enum(['info', 'warning']),
     message: z.string().describe('One to three plain sentences: what was seen and what it means for which test'),
@@ -135,9 +140,13 @@ const comparisonShape = {
   robust: RobustSchema,
   flags: z.array(FlagSchema),
   monitoring: MonitoringSchema.nullable().describe('Interim monitoring that stays valid however often you look'),
+  weighted: WeightedBlockSchema.nullable().describe('The comparison with survey weights (experiments with weights); null otherwise'),
 };
 
-export const ComparisonSchema = z.object(comparisonShape).meta({
+export const ComparisonSchema = z.object({
+  ...comparisonShape,
+  adjusted: AdjustedBlockSchema.optional().describe('Covariate-adjusted difference (only when ?covariates= asks for it)'),
+}).meta({
   id: 'Comparison',
   description: 'Both tests, estimates, effect sizes and quality flags for one measure and one pair of conditions',
 });

@@ -41,9 +41,10 @@ import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { comparisonBody, flagContext } from './reply.js';
+import { computeWeighted } from './weighted.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
-export const CACHE_FORMAT = 1;
+export const CACHE_FORMAT = 2;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
@@ -332,11 +333,27 @@ export class ComparisonService {
     return { ...compareSorted(task), a: null, b: null };
   }
 
+  /**
+   * The comparison, with the weighted block of an experiment with weights. The weighted answers are read in their own
+   * read transaction; when data arrived in between (another dataVersion) the whole computation starts again (at
+   * most 3 times), so every number of a reply belongs to one dataVersion.
+   */
   private async computeComparison(t: ComparisonTarget, o: ComparisonOptions): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot }> {
+    let last = await this.computeOnce(t, o);
+    for (let attempt = 1; attempt < 3 && !last.consistent; attempt++) last = await this.computeOnce(t, o);
+    return { body: last.body, snapshot: last.snapshot };
+  }
+
+  private async computeOnce(
+    t: ComparisonTarget,
+    o: ComparisonOptions,
+  ): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot; consistent: boolean }> {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
-    const { cmp, flags } = await this.compareAndFlag(t, o, snapshot);
+    const { cmp, flags: unweightedFlags } = await this.compareAndFlag(t, o, snapshot);
+    const weighted = await computeWeighted(this.store, t, o, cmp);
+    const flags = weighted ? [...unweightedFlags, ...weighted.flags] : unweightedFlags;
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
     const monitoring = await computeMonitoring({
@@ -351,8 +368,8 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
-    return { body, snapshot };
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring, weighted?.block ?? null);
+    return { body, snapshot, consistent: weighted === null || weighted.dataVersion === snapshot.dataVersion };
   }
 }
 
