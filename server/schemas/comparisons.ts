@@ -192,6 +192,11 @@ export const ComparisonQuery = z.strictObject({
   a: z.string().max(200).optional().describe('Condition id; defaults to the first condition when the experiment has exactly two'),
   b: z.string().max(200).optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
   ...commonQuery,
+  covariates: z
+    .string()
+    .max(2000)
+    .optional()
+    .describe('Comma-separated ids of measures declared as covariates: adds the `adjusted` block (Lin 2013, HC2); an unknown or non-covariate id → 422'),
 });
 
 export const ChartQuery = z.strictObject({
@@ -204,6 +209,10 @@ export const FamilyQuery = z.strictObject({
   pairs: z.enum(['first', 'all']).default('first').describe('first: the first two conditions; all: every pair of conditions'),
   adjust: z.enum(['holm', 'bh', 'none']).default('holm').describe('holm (Holm 1979, default), bh (Benjamini–Hochberg 1995) or none'),
   ...commonQuery,
+  includeCovariates: z
+    .enum(['true', 'false'])
+    .default('false')
+    .describe('true: compare the measures declared as covariates too (default false: outcomes only)'),
 });
 
 export type ComparisonBody = z.infer<typeof ComparisonSchema>;

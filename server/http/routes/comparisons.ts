@@ -9,6 +9,7 @@ import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
 import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
+import { resolveCovariates } from '../../services/comparisons/adjusted.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
@@ -49,7 +50,7 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
     async (request, reply) => {
       const e = await loadExperiment(store, request.params.id);
       const q = request.query;
-      const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust };
+      const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust, includeCovariates: q.includeCovariates === 'true' };
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.familyEtagFromStamp(e, options, stamp))) return reply;
       const { body, etag } = await service.family(e, options, stamp);
@@ -68,7 +69,9 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
         description:
           'Welch and pooled t-tests, the Wilcoxon–Mann–Whitney rank-sum test, the Hodges–Lehmann shift, effect sizes, ' +
           'Brunner–Munzel and Yuen–Welch, every difference a − b, plus quality flags in plain words and the interim ' +
-          'monitoring block. With exactly two conditions a and b default to the first and second. ' +
+          'monitoring block. With exactly two conditions a and b default to the first and second. In an experiment with survey ' +
+          'weights the `weighted` block (design-based t and rank tests, weighted summaries) is added; `covariates=` adds the ' +
+          '`adjusted` block (Lin 2013 with the HC2 standard error). ' +
           POLLING,
         params: ComparisonParams,
         querystring: ComparisonQuery,
@@ -79,9 +82,13 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const e = await loadExperiment(store, request.params.id);
       const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
       const options = toOptions(request.query);
+      const covariates = request.query.covariates === undefined ? null : resolveCovariates(e, target.measure, request.query.covariates);
       const stamp = await service.stamp(e);
-      if (notModified(request, reply, service.etagOf(service.comparisonKey(target, options, stamp)))) return reply;
-      const { body, etag } = await service.comparison(target, options, stamp);
+      const key = covariates ? service.adjustedKey(target, options, covariates, stamp) : service.comparisonKey(target, options, stamp);
+      if (notModified(request, reply, service.etagOf(key))) return reply;
+      const { body, etag } = covariates
+        ? await service.comparisonWithAdjustment(target, options, covariates, stamp)
+        : await service.comparison(target, options, stamp);
       reply.header('etag', etag);
       return body;
     },

@@ -42,6 +42,9 @@ import { experimentNotFound, familyTargets, type ComparisonTarget } from '../tar
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { comparisonBody, flagContext } from './reply.js';
 import { computeWeighted } from './weighted.js';
+import { computeAdjusted } from './adjusted.js';
+import type { AdjustedBlock } from '../../schemas/weighted.js';
+import type { MeasureRecord } from '../../store/types.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 2;
@@ -78,6 +81,8 @@ export const DEFAULT_COMPARISON_OPTIONS: Readonly<ComparisonOptions> = Object.fr
 export interface FamilyOptions extends ComparisonOptions {
   pairs: 'first' | 'all';
   adjust: AdjustMethod;
+  /** Compare covariates too (default false: a family lists outcomes only). */
+  includeCovariates?: boolean;
 }
 
 type Stamp = ComparisonStamp;
@@ -87,7 +92,10 @@ type Stamp = ComparisonStamp;
 // ---------------------------------------------------------------------------------------------------------
 
 /** `key` is the key the value was really computed for (its dataVersion may be newer than the one asked for). */
-type CachedValue = { kind: 'comparison'; key: string; body: ComparisonBody } | { kind: 'chart'; key: string; svg: string };
+type CachedValue =
+  | { kind: 'comparison'; key: string; body: ComparisonBody }
+  | { kind: 'chart'; key: string; svg: string }
+  | { kind: 'adjusted'; key: string; dataVersion: number; block: AdjustedBlock };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -170,6 +178,32 @@ export class ComparisonService {
     return { body: value.body, etag: tagOf(value.key) };
   }
 
+  adjustedKey(t: ComparisonTarget, o: ComparisonOptions, covariates: MeasureRecord[], s: Stamp): string {
+    return [this.comparisonKey(t, o, s), 'adj', ...covariates.map((c) => c.key)].join('|');
+  }
+
+  /**
+   * The comparison with the covariate-adjusted block (?covariates=): both cached by dataVersion; when data arrived
+   * between the two reads, both are taken again from a fresh stamp (at most 3 times), so the reply belongs to one
+   * dataVersion.
+   */
+  async comparisonWithAdjustment(t: ComparisonTarget, o: ComparisonOptions, covariates: MeasureRecord[], stamp?: Stamp): Promise<ComparisonReply> {
+    let s = stamp ?? (await this.stamp(t.experiment));
+    let reply: ComparisonReply | null = null;
+    for (let attempt = 0; attempt < 3; attempt++) {
+      if (attempt > 0) s = await this.stamp(t.experiment);
+      const base = await this.comparison(t, o, s);
+      const value = await this.cached(this.adjustedKey(t, o, covariates, s), async () => {
+        const r = await computeAdjusted(this.store, t, covariates, o);
+        return { kind: 'adjusted', key: this.adjustedKey(t, o, covariates, { ...s, dataVersion: r.dataVersion }), dataVersion: r.dataVersion, block: r.block };
+      });
+      if (value.kind !== 'adjusted') throw new Error('cache entry of the wrong kind');
+      reply = { body: { ...base.body, adjusted: value.block }, etag: tagOf(value.key) };
+      if (value.dataVersion === base.body.dataVersion) break;
+    }
+    return reply!;
+  }
+
   /** The distribution chart (SVG) of a target. */
   async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(t.experiment));
@@ -195,7 +229,7 @@ export class ComparisonService {
    */
   async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string }> {
     let s = stamp ?? (await this.stamp(experiment));
-    const targets = familyTargets(experiment, options.pairs);
+    const targets = familyTargets(experiment, options.pairs, options.includeCovariates ?? false);
     let entries: ComparisonReply[] = [];
     let consistent = false;
     for (let attempt = 0; attempt < 3 && !consistent; attempt++) {
@@ -236,7 +270,7 @@ export class ComparisonService {
 
   /** The family's ETag from the stamp alone (for the 304 check before anything is computed). */
   familyEtagFromStamp(experiment: ExperimentRecord, options: FamilyOptions, s: Stamp): string {
-    const keys = familyTargets(experiment, options.pairs).map((t) => this.comparisonKey(t, options, s));
+    const keys = familyTargets(experiment, options.pairs, options.includeCovariates ?? false).map((t) => this.comparisonKey(t, options, s));
     return tagOf(['family', options.pairs, options.adjust, ...keys].join('\n'));
   }
 
@@ -254,7 +288,7 @@ export class ComparisonService {
         const started = performance.now();
         const value = await compute();
         this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
-        const bytes = value.kind === 'chart' ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
+        const bytes = value.kind === 'chart' ? value.svg.length * 2 : JSON.stringify(value.kind === 'adjusted' ? value.block : value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
       } finally {

@@ -80,6 +80,7 @@ const CONTRACT_KEYS = [
   'robust',
   'flags',
   'monitoring',
+  'weighted',
 ];
 
 function valuesOf(responses: ReturnType<typeof waterData>, measure: 'satisfaction' | 'trust' | 'fair_price', condition: string): number[] {
