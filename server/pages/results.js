@@ -823,7 +823,7 @@ async function loadMeasure(m) {
 
 /** Adjusted p-values across the family (only meaningful with several items or pairs); null when unavailable. */
 async function loadFamily(def) {
-  if ((def.measures || []).length < 2) return null;
+  if (outcomeMeasures(def).length < 2) return null;
   try {
     const q = state.pair ? `&a=${encodeURIComponent(state.pair.a)}&b=${encodeURIComponent(state.pair.b)}` : '';
     const body = await (await api(`${base()}/comparisons?pairs=first&adjust=holm${q}`)).json();
