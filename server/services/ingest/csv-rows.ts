@@ -4,7 +4,7 @@
  * with their one-line description. Used by csv-import.ts.
  */
 import { type Options as CsvParseOptions } from 'csv-parse';
-import type { ExperimentRecord, RejectedIncrement, ValidResponse } from '../../store/types.js';
+import type { ExperimentRecord, RejectedIncrement, RejectedWeightIncrement, ValidResponse } from '../../store/types.js';
 import { checkItem, formToItem, type CheckResult } from './validate.js';
 import { WEIGHT_FIELD, weightsOf } from '../../schemas/weights.js';
 
@@ -91,7 +91,9 @@ export class LineTracker {
   }
 }
 
-export type RowResult = { ok: true; item: ValidResponse } | { ok: false; problems: ImportProblem[]; rejected: RejectedIncrement[] };
+export type RowResult =
+  | { ok: true; item: ValidResponse }
+  | { ok: false; problems: ImportProblem[]; rejected: RejectedIncrement[]; rejectedWeights?: RejectedWeightIncrement[] };
 
 /**
  * Reads the header and checks rows of one experiment. Stateless between rows (no per-file memory), so pass 1
@@ -185,7 +187,7 @@ export class CsvRowChecker {
       if (value !== undefined) problem.value = value;
       problems.push(problem);
     }
-    if (problems.length > 0) return { ok: false, problems, rejected: out.rejected };
+    if (problems.length > 0) return { ok: false, problems, rejected: out.rejected, rejectedWeights: out.rejectedWeights };
     return { ok: true, item: out.valid[0] };
   }
 }

@@ -63,12 +63,15 @@ describe('weights in the CSV files', () => {
     expect(b.weighted).toEqual(a.weighted);
   });
 
-  it('a bad weight in an imported row is refused with the row and column named', async () => {
+  it('a bad weight in an imported row is refused with the row and column named, and counted', async () => {
     await create('w3');
     const body = 'responseId,condition,prior_trust,satisfaction,weight\r\nx1,bill-first,3,4,0\r\n';
     const res = await t.request({ method: 'POST', url: '/v1/experiments/w3/responses/import', headers: { 'content-type': 'text/csv' }, payload: body });
     expect(res.statusCode).toBe(422);
     expect(res.body).toContain('0 is not a valid weight: a weight must be greater than 0 and at most 1000000');
+    const e = (await t.store.experiments.getBySlug('w3'))!;
+    expect(await t.store.responses.getRejectedWeightCounts(e.key)).toEqual([{ reason: 'out_of_range', count: 1 }]);
+    expect(t.store.db.prepare(`SELECT count(*) FROM responses`).pluck().get()).toBe(0);
   });
 
   it('comparisons.csv appends the weighted and the adjusted columns; covariates get no row of their own', async () => {
