@@ -6,7 +6,9 @@
 --                            all answers: weighted_count, the answers whose response carries a weight, and the sum of
 --                            their weights (weight_sum) and of their squared weights (weight_square_sum), kept in the
 --                            same transactions as count, so weighted comparisons of bounded items cost O(distinct
---                            values). When weighted_count is 0 both sums are 0.
+--                            values). When weighted_count is 0 both sums are 0. Ingest adds to the sums; exclusion,
+--                            restoration and erasure recompute the sums of the rows they touch from response rows
+--                            (subtracting a large weight from a running sum would leave a rounding residue).
 --  measures.role             'outcome' (default) or 'covariate' (asked before the treatment; used for adjustment).
 --  rejected_weight_counts    weights refused at ingest, per experiment and reason (like rejected_value_counts).
 --

@@ -1,6 +1,8 @@
 /**
  * Exclusion, restoration and erasure of responses in SQLite, each ONE write transaction that keeps the invariants
- * (value_counts moved or decremented, condition counters, dataVersion + 1, an audit row). Part of the response
+ * (value_counts moved or decremented, condition counters, dataVersion + 1, an audit row). The weighted columns of
+ * value_counts (migration 0005) move with the answer: the weighted count by ±1, the sums of weights and squared
+ * weights of every touched row recomputed from its response rows (never by subtraction). Part of the response
  * repository (responses.ts is the facade).
  */
 import { AuditWriter } from './audit.js';
@@ -23,6 +25,7 @@ export class SqliteExclusionWriter {
   private readonly decrementCount;
   private readonly deleteEmptyCount;
   private readonly incrementCount;
+  private readonly recomputeWeightSums;
   private readonly bumpExcluded;
   private readonly responsesOfRespondent;
   private readonly deleteValuesOf;
@@ -73,6 +76,20 @@ export class SqliteExclusionWriter {
          weighted_count = value_counts.weighted_count + excluded.weighted_count,
          weight_sum = value_counts.weight_sum + excluded.weight_sum,
          weight_square_sum = value_counts.weight_square_sum + excluded.weight_square_sum`,
+    );
+    // Removing a weight from a running sum can cancel catastrophically (a weight of 1e4 leaves an error near 1e-12 in
+    // Σw and 1e-8 in Σw² of the small weights that remain), so a row that loses or gains a weighted answer through an
+    // exclusion, restoration or erasure gets its sums recomputed from its rows (run after the rows changed):
+    // O(answers sharing that value in that condition), through the index response_values_scan.
+    this.recomputeWeightSums = db.prepare<[{ measure: number; condition: number; excluded: number; value: number }]>(
+      `UPDATE value_counts SET
+         weight_sum = coalesce((SELECT sum(r.weight) FROM response_values v JOIN responses r ON r.id = v.response_id
+                                WHERE v.measure_id = @measure AND v.condition_id = @condition AND v.excluded = @excluded AND v.value = @value
+                                  AND r.weight IS NOT NULL), 0),
+         weight_square_sum = coalesce((SELECT sum(r.weight * r.weight) FROM response_values v JOIN responses r ON r.id = v.response_id
+                                WHERE v.measure_id = @measure AND v.condition_id = @condition AND v.excluded = @excluded AND v.value = @value
+                                  AND r.weight IS NOT NULL), 0)
+       WHERE measure_id = @measure AND condition_id = @condition AND excluded = @excluded AND value = @value`,
     );
     this.bumpExcluded = db.prepare<[number, number]>(`UPDATE conditions SET excluded_count = excluded_count + ? WHERE id = ?`);
     this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
@@ -131,9 +148,11 @@ export class SqliteExclusionWriter {
       const perCondition = new Map<number, { responses: number; excluded: number }>();
       for (const row of rows) {
         const weight = this.weightOf.get(row.id) ?? null;
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
+        const integerValues = this.integerValuesOf.all(row.id);
+        // Rows first, counts after: a weighted row's sums are recomputed from what remains (see recomputeWeightSums).
         this.deleteValuesOf.run(row.id);
         this.deleteResponse.run(row.id);
+        for (const [measureKey, value] of integerValues) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
         this.audit.redactResponse(experimentKey, row.response_id);
         const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
         c.responses += 1;
@@ -162,6 +181,11 @@ export class SqliteExclusionWriter {
     if (changed !== 1) throw new Error(`value_counts has no row for measure ${measureKey}, condition ${conditionKey}, excluded ${from}, value ${value}`);
     this.deleteEmptyCount.run(measureKey, conditionKey, from, value);
     if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1, weighted, w, w * w);
+    if (weight !== null) {
+      // The response's rows already carry their new state (exclusion) or are gone (erasure).
+      this.recomputeWeightSums.run({ measure: measureKey, condition: conditionKey, excluded: from, value });
+      if (to !== null) this.recomputeWeightSums.run({ measure: measureKey, condition: conditionKey, excluded: to, value });
+    }
   }
 
   async setExcluded(

@@ -231,3 +231,64 @@ describe('migration 0005 on a database made by the schema before it', () => {
     db.close();
   });
 });
+
+describe('a random sequence of ingests, exclusions, restorations and erasures', () => {
+  it('keeps the weight sums equal to the rows (check) and the weighted block equal to stats/ on the remaining answers', async () => {
+    const { Rng } = await import('../../helpers/rng.js');
+    const { compareWeighted } = await import('../../../stats/weighted-comparison.js');
+    const { weightedFromPairs } = await import('../../../stats/weighted-sample.js');
+    await create('optional', { maxWeight: 1e4 });
+    const rng = new Rng(20271203);
+    const live = new Map<string, { respondent: string; condition: string; weight: number | null; satisfaction: number; excluded: boolean }>();
+    let next = 0;
+    for (let step = 0; step < 120; step++) {
+      const r = rng.uniform();
+      if (r < 0.6 || live.size < 5) {
+        const id = `r${next++}`;
+        const respondent = `p${Math.floor(rng.uniform() * 40)}`;
+        const condition = rng.uniform() < 0.5 ? 'bill-first' : 'service-first';
+        // weights spread over five orders of magnitude, so rounding in the sums would show
+        const weight = rng.uniform() < 0.15 ? null : Math.exp(rng.uniform() * 11.5 - 2.3);
+        const satisfaction = Math.floor(rng.uniform() * 11);
+        const res = await post({ responseId: id, respondent, condition, ...(weight === null ? {} : { weight }), values: { prior_trust: 4, satisfaction } });
+        expect(res.statusCode, res.body).toBe(201);
+        live.set(id, { respondent, condition, weight, satisfaction, excluded: false });
+      } else if (r < 0.85) {
+        const ids = [...live.keys()];
+        const id = ids[Math.floor(rng.uniform() * ids.length)];
+        const row = live.get(id)!;
+        const res = row.excluded
+          ? await t.request({ method: 'DELETE', url: `/v1/experiments/${ID}/responses/${id}/exclusion` })
+          : await t.request({ method: 'POST', url: `/v1/experiments/${ID}/responses/${id}/exclusion`, payload: { reason: 'random check' } });
+        expect(res.statusCode, res.body).toBe(200);
+        row.excluded = !row.excluded;
+      } else {
+        const ids = [...live.keys()];
+        const respondent = live.get(ids[Math.floor(rng.uniform() * ids.length)])!.respondent;
+        const res = await t.request({ method: 'DELETE', url: `/v1/experiments/${ID}/respondents/${respondent}` });
+        expect(res.statusCode, res.body).toBe(200);
+        for (const [id, row] of [...live]) if (row.respondent === respondent) live.delete(id);
+      }
+    }
+    expect(checkDatabase(t.store.db).problems).toEqual([]);
+    const res = await t.request({ method: 'GET', url: `/v1/experiments/${ID}/comparisons/satisfaction` });
+    expect(res.statusCode, res.body).toBe(200);
+    const w = res.json().weighted;
+    const kept = [...live.values()].filter((x) => !x.excluded && x.weight !== null);
+    const group = (c: string) => {
+      const rows = kept.filter((x) => x.condition === c);
+      return weightedFromPairs(rows.map((x) => x.satisfaction), rows.map((x) => x.weight as number));
+    };
+    const direct = compareWeighted(group('bill-first'), group('service-first'));
+    // The stored sums were added and subtracted in another order than the raw pairs: relative 1e-9.
+    for (const k of ['meanDifference', 'se', 't'] as const) {
+      const expected = direct.tTest[k] as number;
+      const rel = Math.abs(w.tTest[k] - expected) / Math.abs(expected);
+      expect(rel, `${k}: expected ${expected}, actual ${w.tTest[k]}, tolerance 1e-9 (relative)`).toBeLessThanOrEqual(1e-9);
+    }
+    expect(w.groups.a.n).toBe(direct.groups.a.n);
+    expect(w.groups.b.n).toBe(direct.groups.b.n);
+    const withoutWeight = [...live.values()].filter((x) => !x.excluded && x.weight === null && x.condition === 'bill-first').length;
+    expect(w.groups.a.withoutWeight).toBe(withoutWeight);
+  });
+});
