@@ -645,6 +645,7 @@ function renderMeasure(m, result) {
       effectList(mid, cmp),
       h('h4', { text: 'Robust checks' }),
       robustList(mid, cmp),
+      ...surveyBlocks(mid, cmp),
     ),
   );
   section.append(body);
@@ -670,6 +671,140 @@ function renderMeasure(m, result) {
 }
 
 // ---------------------------------------------------------------------------------------------------------
+// Survey weights and covariates (the `weighted` and `adjusted` blocks of a comparison)
+// ---------------------------------------------------------------------------------------------------------
+
+/** The measures compared on the page: every measure not declared as a covariate. */
+function outcomeMeasures(def) {
+  return (def.measures || []).filter((m) => m.role !== 'covariate');
+}
+
+/** The study's covariates (asked before the split), listed apart. */
+function covariateIds() {
+  const def = state.definition;
+  return def ? (def.measures || []).filter((m) => m.role === 'covariate').map((m) => m.id) : [];
+}
+
+/** `covariates=…` added to a comparison query when the study declares covariates ("" otherwise). */
+function covariateQuery(q) {
+  const ids = covariateIds();
+  if (ids.length === 0) return '';
+  return `${q ? '&' : '?'}covariates=${ids.map(encodeURIComponent).join(',')}`;
+}
+
+/** The weighted and the adjusted blocks of one comparison, when the reply has them. */
+function surveyBlocks(mid, cmp) {
+  return [weightedSection(mid, cmp), adjustedSection(mid, cmp)].filter((x) => x !== null);
+}
+
+function weightedSection(mid, cmp) {
+  const w = cmp.weighted;
+  if (!w) return null;
+  const n = (field, kind) => num(mid, field, kind, readPathLocal(cmp, field));
+  const la = conditionLabel(cmp.a);
+  const lb = conditionLabel(cmp.b);
+  const group = (key, label) =>
+    h(
+      'tr',
+      {},
+      h('th', { scope: 'row', text: label }),
+      h('td', {}, n(`weighted.groups.${key}.mean`, 'number')),
+      h('td', {}, n(`weighted.groups.${key}.sd`, 'number')),
+      h('td', {}, n(`weighted.groups.${key}.median`, 'number'), ' (', n(`weighted.groups.${key}.q1`, 'number'), '–', n(`weighted.groups.${key}.q3`, 'number'), ')'),
+      h('td', {}, n(`weighted.groups.${key}.n`, 'count'), ' (effective ', n(`weighted.groups.${key}.effectiveN`, 'number'), ')'),
+    );
+  const left = (w.groups.a.withoutWeight || 0) + (w.groups.b.withoutWeight || 0);
+  return h(
+    'section',
+    { class: 'weighted-block' },
+    h('h4', { text: 'With survey weights' }),
+    h(
+      'p',
+      { class: 'muted' },
+      'These numbers estimate the population the weights stand for, not only the people who answered; the flags below say when weighting changes the conclusion.',
+    ),
+    h(
+      'div',
+      { class: 'table-scroll', tabindex: '0' },
+      h(
+        'table',
+        { class: 'weighted-table' },
+        h('thead', {}, h('tr', {}, h('th', { scope: 'col', text: 'Condition' }), h('th', { scope: 'col', text: 'Weighted mean' }), h('th', { scope: 'col', text: 'SD' }), h('th', { scope: 'col', text: 'Median (quartiles)' }), h('th', { scope: 'col', text: 'Answers' }))),
+        h('tbody', {}, group('a', la), group('b', lb)),
+      ),
+    ),
+    h(
+      'p',
+      { class: 'line' },
+      h('span', { class: 'term', text: 'Weighted mean difference ' }),
+      n('weighted.tTest.meanDifference', 'number'), ', ', n('weighted.tTest.ci.level', 'level'), ' CI ', n('weighted.tTest.ci', 'interval'),
+      '; design-based t = ', n('weighted.tTest.t', 'number'), ', df = ', n('weighted.tTest.df', 'number'), ', ', h('em', { text: 'p' }), ...pIs(n('weighted.tTest.p', 'p')),
+    ),
+    h(
+      'p',
+      { class: 'line' },
+      h('span', { class: 'term', text: 'Design-based rank test ' }),
+      'difference in mean rank score ', n('weighted.rankTest.estimate', 'number'), ', ', h('em', { text: 'p' }), ...pIs(n('weighted.rankTest.p', 'p')),
+    ),
+    left > 0 ? h('p', { class: 'muted', text: `${formatCount(left)} answers without a weight are left out of these numbers.` }) : null,
+    h('p', { class: 'muted', text: w.monitoring }),
+  );
+}
+
+function adjustedSection(mid, cmp) {
+  const adj = cmp.adjusted;
+  if (!adj) return null;
+  const n = (field, kind) => num(mid, field, kind, readPathLocal(cmp, field));
+  const row = (label, key) =>
+    h(
+      'tr',
+      {},
+      h('th', { scope: 'row', text: label }),
+      h('td', {}, n(`adjusted.${key}.estimate`, 'number')),
+      h('td', {}, n(`adjusted.${key}.ci`, 'interval')),
+      h('td', {}, n(`adjusted.${key}.se`, 'number')),
+      h('td', {}, h('em', { text: 'p' }), ...pIs(n(`adjusted.${key}.p`, 'p'))),
+    );
+  const dropped = adj.missing && adj.missing.droppedRows > 0 ? ` ${formatCount(adj.missing.droppedRows)} answers with a covariate missing are left out of both.` : '';
+  return h(
+    'section',
+    { class: 'adjusted-block' },
+    h('h4', { text: `Adjusted for ${adj.covariates.join(', ')}` }),
+    h(
+      'div',
+      { class: 'table-scroll', tabindex: '0' },
+      h(
+        'table',
+        { class: 'adjusted-table' },
+        h('thead', {}, h('tr', {}, h('th', { scope: 'col', text: 'Difference a − b' }), h('th', { scope: 'col', text: 'Estimate' }), h('th', { scope: 'col', text: 'Interval' }), h('th', { scope: 'col', text: 'Standard error (HC2)' }), h('th', { scope: 'col', text: 'Test' }))),
+        h('tbody', {}, row('Unadjusted', 'unadjusted'), row('Adjusted', 'adjusted')),
+      ),
+    ),
+    h('p', {}, 'Adjustment narrowed the interval by ', n('adjusted.narrowingPercent', 'number'), ' %, on ', n('adjusted.n', 'count'), ' answers.', dropped),
+    h(
+      'p',
+      { class: 'muted' },
+      'Adjusting for answers given before the split removes noise they explain, so the estimate is usually more precise; it does not remove bias, and it cannot rescue a comparison whose conditions were not randomly assigned.',
+    ),
+  );
+}
+
+/** The covariates, listed apart from the compared items. */
+function covariateSection(def) {
+  const cov = (def.measures || []).filter((m) => m.role === 'covariate');
+  if (cov.length === 0) return [];
+  return [
+    h(
+      'section',
+      { class: 'covariates panel', id: 'covariates' },
+      h('h2', { text: 'Asked before the split (covariates)' }),
+      h('p', { class: 'muted', text: 'These questions came before the conditions differed; they are used to adjust the comparisons above, not compared themselves.' }),
+      h('ul', {}, ...cov.map((m) => h('li', { 'data-covariate': m.id }, `${m.label || m.id} (scale ${scaleText(measureScale(m))})`))),
+    ),
+  ];
+}
+
+// ---------------------------------------------------------------------------------------------------------
 // Loading
 // ---------------------------------------------------------------------------------------------------------
 
@@ -678,7 +813,7 @@ async function loadMeasure(m) {
   const q = pairQuery();
   let cmp;
   try {
-    cmp = await (await api(path + q)).json();
+    cmp = await (await api(path + q + covariateQuery(q))).json();
   } catch (err) {
     if (isAuthError(err)) throw err;
     return { error: `This comparison could not be loaded: ${err.message}` };
@@ -710,7 +845,7 @@ async function loadOmnibus(path) {
 
 /** Adjusted p-values across the family (only meaningful with several items or pairs); null when unavailable. */
 async function loadFamily(def) {
-  if ((def.measures || []).length < 2) return null;
+  if (outcomeMeasures(def).length < 2) return null;
   try {
     // With more than two conditions the family is every pair (the route takes no a/b; the entry of the chosen pair is picked below).
     const body = await (await api(`${base()}/comparisons?pairs=${state.pair ? 'all' : 'first'}&adjust=holm`)).json();
@@ -737,7 +872,7 @@ async function refresh() {
     if (generation !== state.generation) return;
     state.definition = def;
     renderPairPicker(def);
-    const measures = def.measures || [];
+    const measures = outcomeMeasures(def);
     const [results, family] = await Promise.all([Promise.all(measures.map(loadMeasure)), loadFamily(def)]);
     if (generation !== state.generation) return;
     const versions = results.map((r) => (r.cmp && typeof r.cmp.dataVersion === 'number' ? r.cmp.dataVersion : null)).filter((v) => v !== null);
@@ -756,7 +891,7 @@ async function refresh() {
       const entry = family ? family.find((e) => e && e.measure === m.id && (!state.pair || (e.a === state.pair.a && e.b === state.pair.b))) : null;
       return renderMeasure(m, { ...results[i], family: entry });
     });
-    $('measures').replaceChildren(...sections);
+    $('measures').replaceChildren(...sections, ...covariateSection(def));
     if (focusKey) {
       const again = document.getElementById(focusKey);
       const target = again && /** @type {HTMLElement | null} */ (again.querySelector('.table-scroll'));

@@ -7,6 +7,7 @@
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
 import { EquivalenceSchema, MarginQuery } from './equivalence.js';
+import { AdjustedBlockSchema, WeightedBlockSchema } from './weighted.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -113,6 +114,10 @@ export const FlagSchema = z
       'floor_ceiling',
       'interim',
       'excluded',
+      // survey weights (stats/weight-flags.ts)
+      'unequal_weights',
+      'dominant_weight',
+      'weighting_changes_conclusion',
     ]),
     severity: z.enum(['info', 'warning']),
     message: z.string().describe('One to three plain sentences: what was seen and what it means for which test'),
@@ -139,9 +144,13 @@ const comparisonShape = {
   equivalence: EquivalenceSchema.nullable().describe(
     "Two one-sided tests against the equivalence margin (?margin=, else the measure's equivalenceMargin); null when no margin is known",
   ),
+  weighted: WeightedBlockSchema.nullable().describe('The comparison with survey weights (experiments with weights); null otherwise'),
 };
 
-export const ComparisonSchema = z.object(comparisonShape).meta({
+export const ComparisonSchema = z.object({
+  ...comparisonShape,
+  adjusted: AdjustedBlockSchema.optional().describe('Covariate-adjusted difference (only when ?covariates= asks for it)'),
+}).meta({
   id: 'Comparison',
   description: 'Both tests, estimates, effect sizes and quality flags for one measure and one pair of conditions',
 });
@@ -188,6 +197,11 @@ export const ComparisonQuery = z.strictObject({
   b: z.string().max(200).optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
   ...commonQuery,
   margin: MarginQuery,
+  covariates: z
+    .string()
+    .max(2000)
+    .optional()
+    .describe('Comma-separated ids of measures declared as covariates: adds the `adjusted` block (Lin 2013, HC2); an unknown or non-covariate id → 422'),
 });
 
 export const ChartQuery = z.strictObject({
@@ -200,6 +214,10 @@ export const FamilyQuery = z.strictObject({
   pairs: z.enum(['first', 'all']).default('first').describe('first: the first two conditions; all: every pair of conditions'),
   adjust: z.enum(['holm', 'bh', 'none']).default('holm').describe('holm (Holm 1979, default), bh (Benjamini–Hochberg 1995) or none'),
   ...commonQuery,
+  includeCovariates: z
+    .enum(['true', 'false'])
+    .default('false')
+    .describe('true: compare the measures declared as covariates too (default false: outcomes only)'),
 });
 
 export type ComparisonBody = z.infer<typeof ComparisonSchema>;

@@ -3,6 +3,7 @@ import { z } from 'zod';
 import { marginProblem } from './equivalence.js';
 import { RESERVED_MEASURE_IDS } from './responses.js';
 import { Slug } from './common.js';
+import { MaxWeightSchema, WEIGHT_FIELD, WeightsPolicySchema } from './weights.js';
 
 const Label = z.string().min(1).max(500);
 
@@ -41,6 +42,10 @@ const MeasureInput = z
     integer: z.boolean().default(false).describe('Whole numbers only (default false)'),
     required: z.boolean().default(true).describe('Every response must answer it (default true)'),
     equivalenceMargin: EquivalenceMarginInput.optional(),
+    role: z
+      .enum(['outcome', 'covariate'])
+      .default('outcome')
+      .describe('"covariate": asked before the treatment, used to adjust comparisons (?covariates=); default "outcome"'),
   })
   .superRefine((m, ctx) => {
     if (!(m.min < m.max)) ctx.addIssue({ code: 'custom', path: ['max'], message: `must be greater than min (${m.min})` });
@@ -106,6 +111,19 @@ function checkAllocation(
   }
 }
 
+function checkWeights(e: { weights: string; maxWeight?: number; measures: { id: string }[] }, ctx: z.RefinementCtx): void {
+  if (e.weights === 'none' && e.maxWeight !== undefined) {
+    ctx.addIssue({ code: 'custom', path: ['maxWeight'], message: 'needs weights "optional" or "required"' });
+  }
+  if (e.weights !== 'none') {
+    e.measures.forEach((m, i) => {
+      if (m.id === WEIGHT_FIELD) {
+        ctx.addIssue({ code: 'custom', path: ['measures', i, 'id'], message: `must not be "${WEIGHT_FIELD}" in an experiment with weights (that name is the weight's field)` });
+      }
+    });
+  }
+}
+
 export const ExperimentInputSchema = z
   .strictObject({
     id: Slug.describe('Lowercase slug, e.g. water-bill-2027'),
@@ -126,8 +144,11 @@ export const ExperimentInputSchema = z
     flagThresholds: FlagThresholdsSchema.optional(),
     monitoring: MonitoringOptionSchema.nullable().optional().describe('Group-sequential interim looks (POST …/looks) with this spending function'),
     allocation: AllocationSchema.nullable().optional(),
+    weights: WeightsPolicySchema.default('none'),
+    maxWeight: MaxWeightSchema.optional(),
   })
   .superRefine((e, ctx) => checkAllocation(e.allocation, e.conditions, ctx))
+  .superRefine((e, ctx) => checkWeights(e, ctx))
   .meta({ id: 'ExperimentDefinition' });
 
 export const ExperimentPatchSchema = z
@@ -178,6 +199,7 @@ export const ExperimentSchema = z
         integer: z.boolean(),
         required: z.boolean(),
         equivalenceMargin: z.number().nullable().describe('The declared equivalence margin (item units), or null'),
+        role: z.enum(['outcome', 'covariate']),
       }),
     ),
     plannedPerCondition: z.number().int().nullable(),
@@ -186,6 +208,8 @@ export const ExperimentSchema = z
     flagThresholds: FlagThresholdsSchema.nullable(),
     monitoring: MonitoringOptionSchema.nullable(),
     allocation: z.record(z.string(), z.number()).nullable(),
+    weights: WeightsPolicySchema,
+    maxWeight: z.number().nullable().describe('Largest weight accepted; null when the experiment takes no weights'),
     dataVersion: z.number().int().describe('Moves forward with every accepted response, exclusion or erasure'),
     createdAt: z.string(),
     updatedAt: z.string(),

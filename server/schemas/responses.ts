@@ -37,6 +37,16 @@ export const ResponseInputSchema = z
       .datetime({ offset: true, message: 'must be an ISO 8601 date-time with a time zone, e.g. 2027-03-01T12:00:00Z' })
       .optional()
       .describe('When the respondent submitted (client clock); defaults to the time the service received it'),
+    weight: z
+      .unknown()
+      .optional()
+      .meta({
+        type: ['number', 'null'],
+        description:
+          'Survey weight of this response (experiments declared with weights "optional" or "required"): a finite number > 0 and ' +
+          'at most the definition\'s maxWeight (default 1e6). Refused in an experiment without weights; required with "required". ' +
+          'Part of the content a retry must repeat.',
+      }),
     values: z
       .record(z.string(), z.unknown())
       .meta({
@@ -68,6 +78,7 @@ export const StoredResponseSchema = z
     condition: z.string(),
     respondent: z.string().nullable(),
     values: z.record(z.string(), z.number()),
+    weight: z.number().nullable().optional().describe('The survey weight (experiments with weights only; null when none was given)'),
     submittedAt: z.string(),
     receivedAt: z.string(),
   })

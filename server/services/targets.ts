@@ -103,10 +103,14 @@ export function comparisonPair(experiment: ExperimentRecord, a: string | undefin
   return r.pair;
 }
 
-/** The targets of a family: every measure (definition order) × every pair, in that order. */
-export function familyTargets(experiment: ExperimentRecord, pairs: 'first' | 'all'): ComparisonTarget[] {
+/**
+ * The targets of a family: every outcome measure (definition order; covariates too with `includeCovariates`) × every
+ * pair, in that order.
+ */
+export function familyTargets(experiment: ExperimentRecord, pairs: 'first' | 'all', includeCovariates = false): ComparisonTarget[] {
   const out: ComparisonTarget[] = [];
-  for (const measure of experiment.measures) for (const [a, b] of familyPairs(experiment, pairs)) out.push({ experiment, measure, a, b });
+  const measures = includeCovariates ? experiment.measures : experiment.measures.filter((m) => m.role !== 'covariate');
+  for (const measure of measures) for (const [a, b] of familyPairs(experiment, pairs)) out.push({ experiment, measure, a, b });
   return out;
 }
 

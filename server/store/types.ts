@@ -21,6 +21,18 @@ export type ExperimentStatus = 'open' | 'closed';
 /** Why a value was refused at ingest. Counted per (experiment, measure, reason). */
 export type RejectionReason = 'out_of_range' | 'not_integer' | 'not_a_number' | 'not_finite' | 'too_many_digits';
 
+/**
+ * Why a response's weight was refused at ingest (counted per (experiment, reason)): the value reasons, plus
+ * `not_allowed` (a weight in an experiment declared without weights) and `missing` (none where weights are required).
+ */
+export type WeightRejectionReason = 'out_of_range' | 'not_a_number' | 'not_finite' | 'too_many_digits' | 'not_allowed' | 'missing';
+
+/** Does the experiment take survey weights: never, when given, or on every response (definition option `weights`). */
+export type WeightsPolicy = 'none' | 'optional' | 'required';
+
+/** A measure asked before the treatment (`covariate`, for adjusted comparisons) or an outcome of it (default). */
+export type MeasureRole = 'outcome' | 'covariate';
+
 export interface ConditionRecord {
   key: number;
   id: string;
@@ -41,6 +53,7 @@ export interface MeasureRecord {
   integer: boolean;
   required: boolean;
   position: number;
+  role: MeasureRole;
 }
 
 export interface ExperimentRecord {
@@ -66,7 +79,7 @@ export interface NewExperiment {
   id: string;
   title: string;
   conditions: { id: string; label: string }[];
-  measures: { id: string; label: string; min: number; max: number; integer: boolean; required: boolean }[];
+  measures: { id: string; label: string; min: number; max: number; integer: boolean; required: boolean; role?: MeasureRole }[];
   plannedPerCondition: number | null;
   alpha: number;
   thankYouUrl: string | null;
@@ -114,6 +127,8 @@ export interface ValidResponse {
   submittedAt: string;
   /** measureKey → value, for the measures answered. */
   values: Map<number, number>;
+  /** The survey weight (finite, > 0), or null when the response carries none. */
+  weight: number | null;
   /** SHA-256 of the canonical content (see server/services/ingest/validate.ts). */
   contentHash: Uint8Array;
 }
@@ -125,6 +140,8 @@ export interface StoredResponse {
   respondent: string | null;
   /** Measure slug → value, in definition order. */
   values: Record<string, number>;
+  /** The survey weight, or null. */
+  weight: number | null;
   submittedAt: string;
   receivedAt: string;
   excluded: boolean;
@@ -149,6 +166,51 @@ export interface RejectedIncrement {
   measureKey: number;
   reason: RejectionReason;
   count: number;
+}
+
+/** A refused weight to count (per experiment and reason). */
+export interface RejectedWeightIncrement {
+  reason: WeightRejectionReason;
+  count: number;
+}
+
+/** Per-value sums of one integer measure in one condition for the weighted comparison (dense, as getCounts). */
+export interface WeightSums {
+  /** Element k: answers equal to min + k whose response carries a weight. */
+  counts: Float64Array;
+  /** Element k: Σ w over those answers. */
+  weightSums: Float64Array;
+  /** Element k: Σ w² over those answers. */
+  weightSquareSums: Float64Array;
+  /** Answers of the group without a weight (left out of the weighted comparison). */
+  unweighted: number;
+}
+
+/** One continuous measure's weighted answers in one condition (any order), and how many had no weight. */
+export interface WeightedPairs {
+  values: Float64Array;
+  weights: Float64Array;
+  unweighted: number;
+}
+
+/** A weighted read of one measure across conditions, with the dataVersion it belongs to (one read transaction). */
+export interface WeightedSnapshot {
+  dataVersion: number;
+  /** One entry per requested condition key, in request order. */
+  groups: ({ kind: 'sums' } & WeightSums)[] | ({ kind: 'pairs' } & WeightedPairs)[];
+}
+
+/**
+ * Per-respondent rows for a covariate-adjusted comparison: the responses of two conditions that answered the
+ * outcome, with their covariate answers (null = not answered), read in one transaction.
+ */
+export interface AdjustmentRows {
+  dataVersion: number;
+  outcome: Float64Array;
+  /** 1 for the first requested condition, 0 for the second. */
+  inA: Uint8Array;
+  /** One array per requested covariate, aligned with outcome. */
+  covariates: (number | null)[][];
 }
 
 export interface RejectedCount {
@@ -293,6 +355,19 @@ export interface ResponseRepository {
   /** Add to the rejected-value counters in their own small transaction. */
   recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void>;
   getRejectedCounts(experimentKey: number): Promise<RejectedCount[]>;
+  /** Add to the refused-weight counters in their own small transaction. */
+  recordRejectedWeights(experimentKey: number, increments: RejectedWeightIncrement[]): Promise<void>;
+  /** Refused weights by reason (only reasons with a count). */
+  getRejectedWeightCounts(experimentKey: number): Promise<RejectedWeightIncrement[]>;
+  /**
+   * The weighted read of one measure for several conditions (one read transaction). `form` "sums" (integer measures
+   * read as dense counts; the caller's read rule, server/services/samples.ts, decides): per value min + k, the answers
+   * whose response carries a weight and their Σw and Σw², O(distinct values). "pairs": every weighted answer with
+   * its weight, O(n). Answers whose response has no weight are only counted (`unweighted`).
+   */
+  getWeightedSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, form: 'sums' | 'pairs'): Promise<WeightedSnapshot>;
+  /** Rows for a covariate-adjusted comparison of `outcomeKey` between two conditions (see AdjustmentRows). O(n·k). */
+  getAdjustmentRows(outcomeKey: number, covariateKeys: number[], conditionKeys: [number, number], includeExcluded: boolean): Promise<AdjustmentRows>;
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null>;
   /**
    * Per-value counts of an integer measure in one condition: element k counts answers equal to min + k, for
@@ -380,6 +455,8 @@ export interface ExportRow {
   receivedAt: string;
   excluded: boolean;
   excludedReason: string | null;
+  /** The survey weight, or null. */
+  weight: number | null;
   values: (number | null)[];
 }
 

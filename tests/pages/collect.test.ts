@@ -51,7 +51,7 @@ const EXPERIMENT: ExperimentRecord = {
   createdAt: '2027-01-01T00:00:00Z',
   updatedAt: '2027-01-01T00:00:00Z',
   conditions: DEFINITION.conditions.map((id, i) => ({ key: i + 1, id, label: id, position: i, responses: 0, excluded: 0 })),
-  measures: DEFINITION.measures.map((m, i) => ({ key: i + 1, label: m.id, position: i, ...m })),
+  measures: DEFINITION.measures.map((m, i) => ({ key: i + 1, label: m.id, position: i, role: 'outcome' as const, ...m })),
 };
 
 describe('backoffDelay (equal jitter)', () => {

@@ -9,6 +9,7 @@ import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
 import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
+import { resolveCovariates } from '../../services/comparisons/adjusted.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
 import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
@@ -51,7 +52,7 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
     async (request, reply) => {
       const e = await loadExperiment(store, request.params.id);
       const q = request.query;
-      const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust };
+      const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust, includeCovariates: q.includeCovariates === 'true' };
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.familyEtagFromStamp(e, options, stamp))) return reply;
       const { body, etag } = await service.family(e, options, stamp);
@@ -72,7 +73,9 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
           'Brunner–Munzel and Yuen–Welch, every difference a − b, plus quality flags in plain words and the interim ' +
           'monitoring block. With exactly two conditions a and b default to the first and second. When an equivalence margin is ' +
           "known (`?margin=`, else the measure's `equivalenceMargin`), `equivalence` holds the Welch and the rank-based two " +
-          'one-sided tests (TOST) with a verdict in words. ' +
+          'one-sided tests (TOST) with a verdict in words. In an experiment with survey ' +
+          'weights the `weighted` block (design-based t and rank tests, weighted summaries) is added; `covariates=` adds the ' +
+          '`adjusted` block (Lin 2013 with the HC2 standard error). ' +
           POLLING,
         params: ComparisonParams,
         querystring: ComparisonQuery,
@@ -84,9 +87,13 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
       const options = toOptions(request.query);
       if (request.query.margin !== undefined) options.margin = requestMargin(e, target.measure, request.query.margin);
+      const covariates = request.query.covariates === undefined ? null : resolveCovariates(e, target.measure, request.query.covariates);
       const stamp = await service.stamp(e);
-      if (notModified(request, reply, service.etagOf(service.comparisonKey(target, options, stamp)))) return reply;
-      const { body, etag } = await service.comparison(target, options, stamp);
+      const key = covariates ? service.adjustedKey(target, options, covariates, stamp) : service.comparisonKey(target, options, stamp);
+      if (notModified(request, reply, service.etagOf(key))) return reply;
+      const { body, etag } = covariates
+        ? await service.comparisonWithAdjustment(target, options, covariates, stamp)
+        : await service.comparison(target, options, stamp);
       reply.header('etag', etag);
       return body;
     },

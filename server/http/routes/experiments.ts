@@ -12,6 +12,12 @@ import { ExperimentParams } from '../../schemas/responses.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 import { declaredMargin, declaredMargins, MARGINS_OPTION } from '../../services/comparisons/margin.js';
 import { marginProblem } from '../../schemas/equivalence.js';
+import { DEFAULT_MAX_WEIGHT, weightsOf } from '../../schemas/weights.js';
+
+function weightsView(e: ExperimentRecord): { weights: ExperimentView['weights']; maxWeight: number | null } {
+  const w = weightsOf(e.options);
+  return { weights: w.weights, maxWeight: w.weights === 'none' ? null : w.maxWeight };
+}
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -33,6 +39,7 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
       integer: m.integer,
       required: m.required,
       equivalenceMargin: declaredMargin(e, m),
+      role: m.role,
     })),
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
@@ -40,6 +47,7 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
     flagThresholds: (e.options.flagThresholds as ExperimentView['flagThresholds']) ?? null,
     monitoring: (e.options.monitoring as ExperimentView['monitoring']) ?? null,
     allocation: (e.options.allocation as ExperimentView['allocation']) ?? null,
+    ...weightsView(e),
     dataVersion: e.dataVersion,
     createdAt: e.createdAt,
     updatedAt: e.updatedAt,
@@ -72,7 +80,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         id: b.id,
         title: b.title,
         conditions: b.conditions.map((c) => ({ id: c.id, label: c.label ?? c.id })),
-        measures: b.measures.map((m) => ({ id: m.id, label: m.label ?? m.id, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+        measures: b.measures.map((m) => ({ id: m.id, label: m.label ?? m.id, min: m.min, max: m.max, integer: m.integer, required: m.required, role: m.role })),
         plannedPerCondition: b.plannedPerCondition ?? null,
         alpha: b.alpha,
         thankYouUrl: b.thankYouUrl ?? null,
@@ -81,6 +89,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
           ...(b.monitoring ? { monitoring: b.monitoring } : {}),
           ...(b.allocation ? { allocation: b.allocation } : {}),
           ...marginsOption(b.measures),
+          ...(b.weights !== 'none' ? { weights: b.weights, maxWeight: b.maxWeight ?? DEFAULT_MAX_WEIGHT } : {}),
         },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);

@@ -8,7 +8,9 @@
  *   GET /v1/experiments/{id}/omnibus.csv       one row per measure and pair: the omnibus tests, then the pair's
  *
  * Columns of responses.csv: responseId, condition, respondent, one column per measure id (empty = not
- * answered), submittedAt, receivedAt, excluded (true/false), excludedReason. The file can be imported again
+ * answered), weight (experiments with survey weights only; empty = none), submittedAt, receivedAt, excluded
+ * (true/false), excludedReason. comparisons.csv appends the weighted columns in an experiment with weights and the
+ * covariate-adjusted columns (all declared covariates) in one that declares covariates. The file can be imported again
  * (`splitballot import` ignores receivedAt, excluded and excludedReason). Numbers are written in JavaScript's
  * shortest round-trip form, so a value survives export → import unchanged.
  */
@@ -22,22 +24,30 @@ import type { ComparisonService, FamilyOptions } from '../../services/comparison
 import { FamilyQuery } from '../../schemas/comparisons.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
-import { loadExperiment } from '../../services/targets.js';
+import { familyTargets, loadExperiment } from '../../services/targets.js';
+import { WEIGHT_FIELD, weightsOf } from '../../schemas/weights.js';
+import { covariatesOf } from '../../services/comparisons/adjusted.js';
 import { declaredMargin } from '../../services/comparisons/margin.js';
 import type { EquivalenceBody } from '../../schemas/equivalence.js';
 
 export const EXPORT_PAGE_ROWS = 1000;
 
 export function responseCsvColumns(e: ExperimentRecord): string[] {
-  return ['responseId', 'condition', 'respondent', ...e.measures.map((m) => m.id), 'submittedAt', 'receivedAt', 'excluded', 'excludedReason'];
+  const weight = takesWeights(e) ? [WEIGHT_FIELD] : [];
+  return ['responseId', 'condition', 'respondent', ...e.measures.map((m) => m.id), ...weight, 'submittedAt', 'receivedAt', 'excluded', 'excludedReason'];
 }
 
-function csvRecord(row: ExportRow): (string | number)[] {
+function takesWeights(e: ExperimentRecord): boolean {
+  return weightsOf(e.options).weights !== 'none';
+}
+
+function csvRecord(row: ExportRow, withWeight: boolean): (string | number)[] {
   return [
     row.responseId,
     row.condition,
     row.respondent ?? '',
     ...row.values.map((v) => (v === null ? '' : String(v))),
+    ...(withWeight ? [row.weight === null ? '' : String(row.weight)] : []),
     row.submittedAt,
     row.receivedAt,
     row.excluded ? 'true' : 'false',
@@ -56,6 +66,7 @@ function ndjsonRecord(e: ExperimentRecord, row: ExportRow): string {
     condition: row.condition,
     respondent: row.respondent,
     values,
+    ...(takesWeights(e) ? { weight: row.weight } : {}),
     submittedAt: row.submittedAt,
     receivedAt: row.receivedAt,
     excluded: row.excluded,
@@ -65,7 +76,7 @@ function ndjsonRecord(e: ExperimentRecord, row: ExportRow): string {
 
 async function* csvRows(store: Store, e: ExperimentRecord): AsyncGenerator<(string | number)[]> {
   for await (const page of store.bulk.exportResponsePages(e.key, e.measures.map((m) => m.key), EXPORT_PAGE_ROWS)) {
-    for (const row of page) yield csvRecord(row);
+    for (const row of page) yield csvRecord(row, takesWeights(e));
   }
 }
 
@@ -198,7 +209,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
         includeExcluded: q.includeExcluded === 'true',
       });
       download(reply, 'text/csv; charset=utf-8', `${e.id}-comparisons.csv`);
-      return reply.send(csvStream([...COMPARISON_CSV_COLUMNS], rows) as unknown as string);
+      return reply.send(csvStream(comparisonCsvColumns(e), rows) as unknown as string);
     },
   );
 
@@ -319,9 +330,67 @@ function cell(v: number | null | undefined): number | string {
   return v === null || v === undefined ? '' : v;
 }
 
+/** Columns appended in an experiment with survey weights (the `weighted` block; differences a − b). */
+export const WEIGHTED_CSV_COLUMNS = [
+  'weightedMeanA', 'weightedMeanB', 'weightedMeanDifference', 'weightedLower', 'weightedUpper', 'weightedSe', 'weightedT',
+  'weightedDf', 'weightedP', 'weightedRankEstimate', 'weightedRankP', 'effectiveNA', 'effectiveNB',
+] as const;
+
+/** Columns appended in an experiment that declares covariates (adjusted for all of them; `adjusted` block). */
+export const ADJUSTED_CSV_COLUMNS = [
+  'covariates', 'adjustedEstimate', 'adjustedLower', 'adjustedUpper', 'adjustedSe', 'adjustedP', 'unadjustedEstimate',
+  'unadjustedSe', 'narrowingPercent', 'adjustedN',
+] as const;
+
+/** The columns of comparisons.csv for this experiment. */
+export function comparisonCsvColumns(e: ExperimentRecord): string[] {
+  return [...COMPARISON_CSV_COLUMNS, ...(takesWeights(e) ? WEIGHTED_CSV_COLUMNS : []), ...(covariatesOf(e).length > 0 ? ADJUSTED_CSV_COLUMNS : [])];
+}
+
+type FamilyComparison = Awaited<ReturnType<ComparisonService['familyBody']>>['comparisons'][number];
+
+function weightedCells(c: FamilyComparison): (string | number)[] {
+  const w = c.weighted;
+  if (!w) return WEIGHTED_CSV_COLUMNS.map(() => '');
+  return [
+    cell(w.groups.a.mean), cell(w.groups.b.mean), cell(w.tTest.meanDifference), cell(w.tTest.ci.lower), cell(w.tTest.ci.upper),
+    cell(w.tTest.se), cell(w.tTest.t), cell(w.tTest.df), cell(w.tTest.p), cell(w.rankTest.estimate), cell(w.rankTest.p),
+    cell(w.groups.a.effectiveN), cell(w.groups.b.effectiveN),
+  ];
+}
+
+/** The adjusted cells of every family entry (all declared covariates; the outcome's own row when it is one is empty). */
+async function adjustedCells(service: ComparisonService, e: ExperimentRecord, options: Partial<FamilyOptions>, comparisons: FamilyComparison[]): Promise<(string | number)[][]> {
+  const covariates = covariatesOf(e);
+  const full = { alternative: options.alternative ?? 'two-sided', confidenceLevel: options.confidenceLevel ?? 0.95, includeExcluded: options.includeExcluded ?? false } as const;
+  const targets = familyTargets(e, options.pairs ?? 'first', options.includeCovariates ?? false);
+  const out: (string | number)[][] = [];
+  for (const c of comparisons) {
+    const t = targets.find((x) => x.measure.id === c.measure && x.a.id === c.a && x.b.id === c.b);
+    const used = covariates.filter((m) => t && m.key !== t.measure.key);
+    if (!t || used.length === 0) {
+      out.push(ADJUSTED_CSV_COLUMNS.map(() => ''));
+      continue;
+    }
+    const adj = (await service.comparisonWithAdjustment(t, full, used)).body.adjusted!;
+    out.push([
+      used.map((m) => m.id).join(' '), cell(adj.adjusted.estimate), cell(adj.adjusted.ci.lower), cell(adj.adjusted.ci.upper), cell(adj.adjusted.se),
+      cell(adj.adjusted.p), cell(adj.unadjusted.estimate), cell(adj.unadjusted.se), cell(adj.narrowingPercent), adj.n,
+    ]);
+  }
+  return out;
+}
+
 export async function comparisonRows(service: ComparisonService, e: ExperimentRecord, options: Partial<FamilyOptions>): Promise<(string | number)[][]> {
   const family = await service.familyBody(e, options);
-  return family.comparisons.map((c) => [
+  const base = baseComparisonRows(family.comparisons);
+  const weighted = takesWeights(e);
+  const adjusted = covariatesOf(e).length > 0 ? await adjustedCells(service, e, options, family.comparisons) : null;
+  return base.map((row, i) => [...row, ...(weighted ? weightedCells(family.comparisons[i]) : []), ...(adjusted ? adjusted[i] : [])]);
+}
+
+function baseComparisonRows(comparisons: FamilyComparison[]): (string | number)[][] {
+  return comparisons.map((c) => [
     c.measure,
     c.a,
     c.b,

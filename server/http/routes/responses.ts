@@ -8,7 +8,8 @@ import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { ExperimentRecord, IngestOutcome, Store, ValidResponse } from '../../store/types.js';
-import { checkBatch, checkSingle, formToItem } from '../../services/ingest/validate.js';
+import { checkBatch, checkSingle, formToItem, type CheckResult } from '../../services/ingest/validate.js';
+import { weightsOf } from '../../schemas/weights.js';
 import { isFormContentType, prefersHtml } from '../negotiate.js';
 import { ProblemError, RequestValidationError } from '../../errors.js';
 import { problems, type FieldError } from '../../schemas/common.js';
@@ -40,9 +41,16 @@ function storedView(e: ExperimentRecord, item: ValidResponse, receivedAt: string
     condition: e.conditions.find((c) => c.key === item.conditionKey)!.id,
     respondent: item.respondent,
     values,
+    ...(weightsOf(e.options).weights === 'none' ? {} : { weight: item.weight }),
     submittedAt: item.submittedAt,
     receivedAt,
   };
+}
+
+/** Count refused values and refused weights (each in its own small transaction). */
+async function recordRefusals(store: Store, experiment: ExperimentRecord, checked: CheckResult): Promise<void> {
+  await store.responses.recordRejected(experiment.key, checked.rejected);
+  if (checked.rejectedWeights && checked.rejectedWeights.length > 0) await store.responses.recordRejectedWeights(experiment.key, checked.rejectedWeights);
 }
 
 async function loadOpenExperiment(store: Store, id: string): Promise<ExperimentRecord> {
@@ -88,7 +96,8 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
         tags: ['responses'],
         summary: 'Post one response (JSON, or an HTML form: application/x-www-form-urlencoded)',
         description:
-          'A form posts `condition`, optional `responseId`, `respondent` and `submittedAt`, one field per measure id, and — when it ' +
+          'A form posts `condition`, optional `responseId`, `respondent` and `submittedAt`, one field per measure id, `weight` in an ' +
+          'experiment with survey weights, and — when it ' +
           'cannot send an Authorization header — an ingest key in the field `ingestKey`. A form post whose Accept header prefers ' +
           'text/html is answered with 303 to the thank-you page, or an HTML error page.',
         consumes: ['application/json', 'application/x-www-form-urlencoded'],
@@ -110,7 +119,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       let body: unknown = request.body;
       const errors: FieldError[] = [];
       if (isForm) {
-        const form = formToItem((body ?? {}) as Record<string, unknown>);
+        const form = formToItem((body ?? {}) as Record<string, unknown>, { weightField: weightsOf(experiment.options).weights !== 'none' });
         body = form.item;
         errors.push(...form.errors);
       }
@@ -119,7 +128,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       const reported = new Set(errors.map((e) => e.path));
       errors.push(...checked.errors.filter((e) => !reported.has(e.path)));
       if (errors.length > 0) {
-        await store.responses.recordRejected(experiment.key, checked.rejected);
+        await recordRefusals(store, experiment, checked);
         throw new RequestValidationError('body', errors);
       }
       const item = checked.valid[0];
@@ -132,8 +141,8 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       if (created) return reply.code(201).send(storedView(experiment, item, receivedAt));
       const stored = await store.responses.getStored(experiment.key, item.responseId);
       if (!stored) throw new Error('a repeated response vanished');
-      const { excluded: _e, excludedReason: _r, ...view } = stored;
-      return reply.code(200).send(view);
+      const { excluded: _e, excludedReason: _r, weight, ...view } = stored;
+      return reply.code(200).send(weightsOf(experiment.options).weights === 'none' ? view : { ...view, weight });
     },
   );
 
@@ -164,7 +173,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       const experiment = await loadOpenExperiment(store, id);
       const checked = checkBatch(experiment, request.body, receivedAt);
       if (checked.errors.length > 0) {
-        await store.responses.recordRejected(experiment.key, checked.rejected);
+        await recordRefusals(store, experiment, checked);
         throw new RequestValidationError('body', checked.errors);
       }
       const outcome = await store.responses.ingest(experiment.key, checked.valid, receivedAt, request.principal?.keyId ?? null);

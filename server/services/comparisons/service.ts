@@ -52,6 +52,9 @@ import { equivalence } from '../../../stats/equivalence.js';
 function effectiveMargin(t: ComparisonTarget, o: ComparisonOptions): number | null {
   return o.margin !== undefined ? o.margin : declaredMargin(t.experiment, t.measure);
 }
+import { computeWeighted } from './weighted.js';
+import { computeAdjusted } from './adjusted.js';
+import type { AdjustedBlock } from '../../schemas/weighted.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 2;
@@ -90,6 +93,8 @@ export const DEFAULT_COMPARISON_OPTIONS: Readonly<ComparisonOptions> = Object.fr
 export interface FamilyOptions extends ComparisonOptions {
   pairs: 'first' | 'all';
   adjust: AdjustMethod;
+  /** Compare covariates too (default false: a family lists outcomes only). */
+  includeCovariates?: boolean;
 }
 
 type Stamp = ComparisonStamp;
@@ -104,7 +109,8 @@ type CachedValue =
   | { kind: 'chart'; key: string; svg: string }
   | { kind: 'omnibus'; key: string; body: OmnibusBody }
   | { kind: 'trajectory'; key: string; body: TrajectoryBody }
-  | { kind: 'trajectory-chart'; key: string; svg: string };
+  | { kind: 'trajectory-chart'; key: string; svg: string }
+  | { kind: 'adjusted'; key: string; dataVersion: number; block: AdjustedBlock };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -283,6 +289,32 @@ export class ComparisonService {
     return { body: value.body, etag: tagOf(value.key) };
   }
 
+  adjustedKey(t: ComparisonTarget, o: ComparisonOptions, covariates: MeasureRecord[], s: Stamp): string {
+    return [this.comparisonKey(t, o, s), 'adj', ...covariates.map((c) => c.key)].join('|');
+  }
+
+  /**
+   * The comparison with the covariate-adjusted block (?covariates=): both cached by dataVersion; when data arrived
+   * between the two reads, both are taken again from a fresh stamp (at most 3 times), so the reply belongs to one
+   * dataVersion.
+   */
+  async comparisonWithAdjustment(t: ComparisonTarget, o: ComparisonOptions, covariates: MeasureRecord[], stamp?: Stamp): Promise<ComparisonReply> {
+    let s = stamp ?? (await this.stamp(t.experiment));
+    let reply: ComparisonReply | null = null;
+    for (let attempt = 0; attempt < 3; attempt++) {
+      if (attempt > 0) s = await this.stamp(t.experiment);
+      const base = await this.comparison(t, o, s);
+      const value = await this.cached(this.adjustedKey(t, o, covariates, s), async () => {
+        const r = await computeAdjusted(this.store, t, covariates, o);
+        return { kind: 'adjusted', key: this.adjustedKey(t, o, covariates, { ...s, dataVersion: r.dataVersion }), dataVersion: r.dataVersion, block: r.block };
+      });
+      if (value.kind !== 'adjusted') throw new Error('cache entry of the wrong kind');
+      reply = { body: { ...base.body, adjusted: value.block }, etag: tagOf(value.key) };
+      if (value.dataVersion === base.body.dataVersion) break;
+    }
+    return reply!;
+  }
+
   /** The distribution chart (SVG) of a target. */
   async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(t.experiment));
@@ -308,7 +340,7 @@ export class ComparisonService {
    */
   async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string }> {
     let s = stamp ?? (await this.stamp(experiment));
-    const targets = familyTargets(experiment, options.pairs);
+    const targets = familyTargets(experiment, options.pairs, options.includeCovariates ?? false);
     let entries: ComparisonReply[] = [];
     let consistent = false;
     for (let attempt = 0; attempt < 3 && !consistent; attempt++) {
@@ -349,7 +381,7 @@ export class ComparisonService {
 
   /** The family's ETag from the stamp alone (for the 304 check before anything is computed). */
   familyEtagFromStamp(experiment: ExperimentRecord, options: FamilyOptions, s: Stamp): string {
-    const keys = familyTargets(experiment, options.pairs).map((t) => this.comparisonKey(t, options, s));
+    const keys = familyTargets(experiment, options.pairs, options.includeCovariates ?? false).map((t) => this.comparisonKey(t, options, s));
     return tagOf(['family', options.pairs, options.adjust, ...keys].join('\n'));
   }
 
@@ -367,7 +399,7 @@ export class ComparisonService {
         const started = performance.now();
         const value = await compute();
         this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
-        const bytes = 'svg' in value ? value.svg.length * 2 : JSON.stringify(value.body).length * 2;
+        const bytes = 'svg' in value ? value.svg.length * 2 : JSON.stringify('block' in value ? value.block : value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
       } finally {
@@ -446,11 +478,27 @@ export class ComparisonService {
     return { ...compareSorted(task), a: null, b: null };
   }
 
+  /**
+   * The comparison, with the weighted block of an experiment with weights. The weighted answers are read in their own
+   * read transaction; when data arrived in between (another dataVersion) the whole computation starts again (at
+   * most 3 times), so every number of a reply belongs to one dataVersion.
+   */
   private async computeComparison(t: ComparisonTarget, o: ComparisonOptions): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot }> {
+    let last = await this.computeOnce(t, o);
+    for (let attempt = 1; attempt < 3 && !last.consistent; attempt++) last = await this.computeOnce(t, o);
+    return { body: last.body, snapshot: last.snapshot };
+  }
+
+  private async computeOnce(
+    t: ComparisonTarget,
+    o: ComparisonOptions,
+  ): Promise<{ body: ComparisonBody; snapshot: MeasureSnapshot; consistent: boolean }> {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
-    const { cmp, flags } = await this.compareAndFlag(t, o, snapshot);
+    const { cmp, flags: unweightedFlags } = await this.compareAndFlag(t, o, snapshot);
+    const weighted = await computeWeighted(this.store, t, o, cmp);
+    const flags = weighted ? [...unweightedFlags, ...weighted.flags] : unweightedFlags;
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
     const monitoring = await computeMonitoring({
@@ -465,14 +513,14 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring, weighted?.block ?? null);
     const margin = effectiveMargin(t, o);
     if (margin !== null) {
       // The two TOSTs read the same snapshot (O(distinct values) for counts; the sorted values otherwise).
       const { a, b } = samplesOf(m, snapshot);
       body.equivalence = equivalence(a, b, { margin, alpha: e.alpha }) as ComparisonBody['equivalence'];
     }
-    return { body, snapshot };
+    return { body, snapshot, consistent: weighted === null || weighted.dataVersion === snapshot.dataVersion };
   }
 }
 

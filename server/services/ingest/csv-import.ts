@@ -26,7 +26,7 @@ import { createReadStream } from 'node:fs';
 import { Readable } from 'node:stream';
 import { CsvError, parse as parseStream, type Options as CsvParseOptions } from 'csv-parse';
 import { parse as parseSync } from 'csv-parse/sync';
-import type { BulkImport, ExperimentRecord, IngestOutcome, RejectedIncrement, Store, ValidResponse } from '../../store/types.js';
+import type { BulkImport, ExperimentRecord, IngestOutcome, RejectedIncrement, RejectedWeightIncrement, Store, ValidResponse } from '../../store/types.js';
 import { CSV_PARSE_OPTIONS, CsvRowChecker, IMPORT_CHUNK_ROWS, ImportCounts, ImportProblem, ImportSummary, LineTracker, MAX_KEPT_PROBLEMS, RecordPosition, parseErrorProblem } from './csv-rows.js';
 
 export interface CsvImportOptions {
@@ -53,6 +53,8 @@ export class CsvImport {
   private chunk: ValidResponse[] = [];
   private chunkLines: number[] = [];
   private readonly rejectedCounters = new Map<string, RejectedIncrement>();
+  /** Refused survey weights by reason (pass 1). */
+  private readonly rejectedWeightCounters = new Map<RejectedWeightIncrement['reason'], number>();
   private readonly badLines = new Set<number>();
   readonly counts: ImportCounts = { rows: 0, rejectedRows: 0, problems: 0 };
   private created = 0;
@@ -113,19 +115,21 @@ export class CsvImport {
         if (e) e.count += inc.count;
         else this.rejectedCounters.set(k, { ...inc });
       }
+      for (const inc of r.rejectedWeights ?? []) this.rejectedWeightCounters.set(inc.reason, (this.rejectedWeightCounters.get(inc.reason) ?? 0) + inc.count);
     }
     return true;
   }
 
   /** After pass 1: the rejected-value counters to record, and whether to go on to pass 2. */
-  endValidation(): { proceed: boolean; rejected: RejectedIncrement[] } {
+  endValidation(): { proceed: boolean; rejected: RejectedIncrement[]; rejectedWeights: RejectedWeightIncrement[] } {
     if (!this.headerDone && !this.fatalProblem) this.setFatal({ line: 1, column: '', message: 'the file is empty (a header row is required)' });
     const rejected = [...this.rejectedCounters.values()];
     const proceed = !this.fatalProblem && (this.options.skipInvalid || this.counts.rejectedRows === 0) && this.counts.rows > this.counts.rejectedRows;
     this.pass = 2;
     this.lines = new LineTracker();
     this.headerDone = false;
-    return { proceed, rejected };
+    const rejectedWeights = [...this.rejectedWeightCounters].map(([reason, count]) => ({ reason, count }));
+    return { proceed, rejected, rejectedWeights };
   }
 
   /** Pass 2: feed the same records again; valid rows go to the store in chunks. */
@@ -242,8 +246,9 @@ export async function importCsvBuffer(run: ImportRun, csv: Buffer | string): Pro
     if (!(err instanceof CsvError)) throw err;
     imp.setFatal(parseErrorProblem(err));
   }
-  const { proceed, rejected } = imp.endValidation();
+  const { proceed, rejected, rejectedWeights } = imp.endValidation();
   if (rejected.length > 0) await run.store.responses.recordRejected(run.experiment.key, rejected);
+  if (rejectedWeights.length > 0) await run.store.responses.recordRejectedWeights(run.experiment.key, rejectedWeights);
   if (!proceed) return imp.summary(false);
   const writer = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
   let committed = false;
@@ -315,8 +320,9 @@ export async function importCsvFile(run: ImportRun, path: string): Promise<Impor
     imp.setFatal(parseErrorProblem(err));
   }
   run.onProgress?.(1, imp.counts.rows);
-  const { proceed, rejected } = imp.endValidation();
+  const { proceed, rejected, rejectedWeights } = imp.endValidation();
   if (rejected.length > 0) await run.store.responses.recordRejected(run.experiment.key, rejected);
+  if (rejectedWeights.length > 0) await run.store.responses.recordRejectedWeights(run.experiment.key, rejectedWeights);
   if (!proceed) return imp.summary(false);
   const writer = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
   let committed = false;

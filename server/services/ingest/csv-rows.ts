@@ -4,8 +4,9 @@
  * with their one-line description. Used by csv-import.ts.
  */
 import { type Options as CsvParseOptions } from 'csv-parse';
-import type { ExperimentRecord, RejectedIncrement, ValidResponse } from '../../store/types.js';
+import type { ExperimentRecord, RejectedIncrement, RejectedWeightIncrement, ValidResponse } from '../../store/types.js';
 import { checkItem, formToItem, type CheckResult } from './validate.js';
+import { WEIGHT_FIELD, weightsOf } from '../../schemas/weights.js';
 
 export const IMPORT_CHUNK_ROWS = 10_000;
 /** Problems kept in memory for an answer (the CLI's rejects file gets all of them). */
@@ -90,20 +91,27 @@ export class LineTracker {
   }
 }
 
-export type RowResult = { ok: true; item: ValidResponse } | { ok: false; problems: ImportProblem[]; rejected: RejectedIncrement[] };
+export type RowResult =
+  | { ok: true; item: ValidResponse }
+  | { ok: false; problems: ImportProblem[]; rejected: RejectedIncrement[]; rejectedWeights?: RejectedWeightIncrement[] };
 
 /**
  * Reads the header and checks rows of one experiment. Stateless between rows (no per-file memory), so pass 1
  * and pass 2 give the same answer for the same row.
  */
 export class CsvRowChecker {
-  private columns: { name: string; role: 'responseId' | 'condition' | 'respondent' | 'submittedAt' | 'measure' | 'ignored' }[] = [];
+  private columns: { name: string; role: 'responseId' | 'condition' | 'respondent' | 'submittedAt' | 'measure' | 'weight' | 'ignored' }[] = [];
   readonly ignoredColumns: string[] = [];
 
   constructor(
     readonly experiment: ExperimentRecord,
     readonly receivedAt: string,
   ) {}
+
+  /** Does the experiment take survey weights (then the column `weight` is read)? */
+  private get takesWeights(): boolean {
+    return weightsOf(this.experiment.options).weights !== 'none';
+  }
 
   /** Read the header record; returns its problems (any problem is fatal: no row can be read). */
   readHeader(record: string[]): ImportProblem[] {
@@ -120,6 +128,9 @@ export class CsvRowChecker {
         this.columns.push({ name, role: name as 'responseId' });
       } else if (measureIds.has(name)) {
         this.columns.push({ name, role: 'measure' });
+      } else if (name === WEIGHT_FIELD && this.takesWeights) {
+        // The survey weight, read like the form field `weight` (experiments with weights only).
+        this.columns.push({ name, role: 'weight' });
       } else if ((IGNORED_EXPORT_COLUMNS as readonly string[]).includes(name)) {
         this.columns.push({ name, role: 'ignored' });
         this.ignoredColumns.push(name);
@@ -130,7 +141,7 @@ export class CsvRowChecker {
           message:
             name === ''
               ? 'a column has no name'
-              : `is not a column of this import (expected ${[...REQUIRED_COLUMNS, ...OPTIONAL_COLUMNS].join(', ')} and the measure ids ${[...measureIds].join(', ')})`,
+              : `is not a column of this import (expected ${[...REQUIRED_COLUMNS, ...OPTIONAL_COLUMNS, ...(this.takesWeights ? [WEIGHT_FIELD] : [])].join(', ')} and the measure ids ${[...measureIds].join(', ')})`,
         });
         this.columns.push({ name, role: 'ignored' });
       }
@@ -138,6 +149,9 @@ export class CsvRowChecker {
     for (const c of REQUIRED_COLUMNS) if (!seen.has(c)) problems.push({ line: 1, column: c, message: 'is a required column and is missing' });
     for (const m of this.experiment.measures) {
       if (m.required && !seen.has(m.id)) problems.push({ line: 1, column: m.id, message: 'is a required measure and has no column' });
+    }
+    if (weightsOf(this.experiment.options).weights === 'required' && !seen.has(WEIGHT_FIELD)) {
+      problems.push({ line: 1, column: WEIGHT_FIELD, message: 'is required (the experiment needs a survey weight on every response) and has no column' });
     }
     return problems;
   }
@@ -163,7 +177,7 @@ export class CsvRowChecker {
       problems.push({ line, column: 'responseId', message: 'is required in an import (so that importing the same file again stores nothing twice)' });
     }
     // Exactly the form-field reading and the checks of JSON/form ingest.
-    const form = formToItem(fields);
+    const form = formToItem(fields, { weightField: this.takesWeights });
     const out: CheckResult = { valid: [], errors: [], rejected: [] };
     checkItem(this.experiment, form.item, [], this.receivedAt, out);
     for (const e of [...form.errors, ...out.errors]) {
@@ -173,7 +187,7 @@ export class CsvRowChecker {
       if (value !== undefined) problem.value = value;
       problems.push(problem);
     }
-    if (problems.length > 0) return { ok: false, problems, rejected: out.rejected };
+    if (problems.length > 0) return { ok: false, problems, rejected: out.rejected, rejectedWeights: out.rejectedWeights };
     return { ok: true, item: out.valid[0] };
   }
 }

@@ -12,12 +12,27 @@
  * counted as a rejected value. An unknown measure or condition is an error but has no counter.
  *
  * Idempotency content: SHA-256 over the canonical JSON of [condition, respondent, [[measure, value] … in
- * definition order]]. submittedAt and responseId are not part of it, so a retry with a fresh client timestamp
- * is still the same response.
+ * definition order]], with the weight appended ([…, weight]) when the response carries one (so the hashes of
+ * unweighted responses are unchanged). submittedAt and responseId are not part of it, so a retry with a fresh
+ * client timestamp is still the same response.
+ *
+ * The survey weight (top-level `weight`, form field `weight`; experiments with weights "optional" or "required"):
+ * refused like an impossible value, in this order: sent although the experiment takes none → not_allowed; absent or
+ * null where required → missing; then not a number → too many characters → not finite → not > 0 or above the
+ * definition's maxWeight (out_of_range). Every refusal is counted per (experiment, reason).
  */
 import { createHash, randomUUID } from 'node:crypto';
 import { z } from 'zod';
-import type { ExperimentRecord, MeasureRecord, RejectedIncrement, RejectionReason, ValidResponse } from '../../store/types.js';
+import type {
+  ExperimentRecord,
+  MeasureRecord,
+  RejectedIncrement,
+  RejectedWeightIncrement,
+  RejectionReason,
+  ValidResponse,
+  WeightRejectionReason,
+} from '../../store/types.js';
+import { WEIGHT_FIELD, weightsOf } from '../../schemas/weights.js';
 import { OverlongNumber } from '../../schemas/field-errors.js';
 import { FormNumberFailure, parseFormNumber } from './numbers.js';
 import { echoValue, formatPath, type FieldError } from '../../schemas/common.js';
@@ -28,6 +43,48 @@ export interface CheckResult {
   valid: ValidResponse[];
   errors: FieldError[];
   rejected: RejectedIncrement[];
+  /** Refused weights to count (absent: none). */
+  rejectedWeights?: RejectedWeightIncrement[];
+}
+
+type WeightCheck = { ok: true; weight: number | null } | { ok: false; reason: WeightRejectionReason; error: Omit<FieldError, 'path'> };
+
+/** Check a response's weight against the experiment's policy (see the header for the order of checks). */
+export function checkWeight(experiment: ExperimentRecord, raw: unknown): WeightCheck {
+  const policy = weightsOf(experiment.options);
+  const absent = raw === undefined || raw === null;
+  if (policy.weights === 'none') {
+    if (absent) return { ok: true, weight: null };
+    return { ok: false, reason: 'not_allowed', error: { message: 'is not accepted: this experiment takes no survey weights', value: echoValue(raw) } };
+  }
+  if (absent) {
+    if (policy.weights === 'required') return { ok: false, reason: 'missing', error: { message: 'is required: this experiment needs a survey weight on every response' } };
+    return { ok: true, weight: null };
+  }
+  const limit = { min: 0, max: policy.maxWeight };
+  const asMeasure: MeasureRecord = { key: -1, id: WEIGHT_FIELD, label: WEIGHT_FIELD, min: -Infinity, max: Infinity, integer: false, required: false, position: -1, role: 'outcome' };
+  const c = checkValue(asMeasure, raw);
+  if (!c.ok) {
+    const reason = c.reason === 'not_integer' ? 'not_a_number' : c.reason;
+    return { ok: false, reason, error: c.error };
+  }
+  if (!(c.value > 0) || c.value > policy.maxWeight) {
+    return {
+      ok: false,
+      reason: 'out_of_range',
+      error: { message: `${c.value} is not a valid weight: a weight must be greater than 0 and at most ${policy.maxWeight}`, value: c.value, limit },
+    };
+  }
+  return { ok: true, weight: c.value };
+}
+
+function weightOfItem(experiment: ExperimentRecord, raw: unknown, prefix: readonly PropertyKey[], out: CheckResult): WeightCheck {
+  const c = checkWeight(experiment, raw);
+  if (!c.ok) {
+    out.errors.push({ path: formatPath([...prefix, WEIGHT_FIELD]), ...c.error });
+    (out.rejectedWeights ??= []).push({ reason: c.reason, count: 1 });
+  }
+  return c;
 }
 
 type ValueCheck = { ok: true; value: number } | { ok: false; reason: RejectionReason; error: Omit<FieldError, 'path'> };
@@ -78,8 +135,8 @@ function listIds(ids: string[]): string {
   return ids.length <= 20 ? ids.join(', ') : `${ids.slice(0, 20).join(', ')}, …`;
 }
 
-export function contentHash(condition: string, respondent: string | null, values: [string, number][]): Uint8Array {
-  const canonical = JSON.stringify([condition, respondent, values]);
+export function contentHash(condition: string, respondent: string | null, values: [string, number][], weight: number | null = null): Uint8Array {
+  const canonical = JSON.stringify(weight === null ? [condition, respondent, values] : [condition, respondent, values, weight]);
   return new Uint8Array(createHash('sha256').update(canonical, 'utf8').digest());
 }
 
@@ -108,7 +165,7 @@ export function plainlyValidShape(raw: unknown): z.infer<typeof ResponseInputSch
   if (raw === null || typeof raw !== 'object' || Array.isArray(raw) || Object.getPrototypeOf(raw) !== Object.prototype) return null;
   const o = raw as Record<string, unknown>;
   for (const k in o) {
-    if (k !== 'responseId' && k !== 'condition' && k !== 'respondent' && k !== 'values') return null;
+    if (k !== 'responseId' && k !== 'condition' && k !== 'respondent' && k !== 'values' && k !== 'weight') return null;
   }
   const { responseId, condition, respondent, values } = o;
   if (typeof condition !== 'string' || condition.length > 200) return null;
@@ -137,6 +194,7 @@ export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: re
     if (values !== null && typeof values === 'object' && !Array.isArray(values)) {
       checkValues(experiment, values as Record<string, unknown>, prefix, out);
     }
+    if (raw !== null && typeof raw === 'object' && !Array.isArray(raw)) weightOfItem(experiment, (raw as { weight?: unknown }).weight, prefix, out);
     return false;
   }
   const item = shape.value as z.infer<typeof ResponseInputSchema>;
@@ -151,7 +209,8 @@ export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: re
     });
   }
   const checked = checkValues(experiment, item.values, prefix, out);
-  if (!ok || checked === null) return false;
+  const weight = weightOfItem(experiment, item.weight, prefix, out);
+  if (!ok || checked === null || !weight.ok) return false;
   const respondent = item.respondent ?? null;
   const canonical: [string, number][] = [];
   const values = new Map<number, number>();
@@ -169,7 +228,8 @@ export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: re
     respondent,
     submittedAt: item.submittedAt === undefined ? receivedAt : new Date(item.submittedAt).toISOString(),
     values,
-    contentHash: contentHash(condition!.id, respondent, canonical),
+    weight: weight.weight,
+    contentHash: contentHash(condition!.id, respondent, canonical, weight.weight),
   });
   return true;
 }
@@ -245,12 +305,17 @@ export function checkBatch(experiment: ExperimentRecord, body: unknown, received
  * field means "not answered"; empty responseId/respondent/submittedAt fields are ignored; the ingest key field
  * is taken out. A field sent twice is an error.
  */
-export function formToItem(fields: Record<string, unknown>): { item: Record<string, unknown>; errors: FieldError[] } {
+export function formToItem(fields: Record<string, unknown>, options: { weightField?: boolean } = {}): { item: Record<string, unknown>; errors: FieldError[] } {
   const errors: FieldError[] = [];
   const item: Record<string, unknown> = {};
   const values: Record<string, unknown> = {};
   for (const [name, raw] of Object.entries(fields)) {
     if (name === FORM_KEY_FIELD) continue;
+    if (options.weightField && name === WEIGHT_FIELD) {
+      if (typeof raw !== 'string') errors.push({ path: WEIGHT_FIELD, message: 'was sent more than once' });
+      else if (raw !== '') item.weight = parseFormNumber(raw);
+      continue;
+    }
     const isReserved = (FORM_RESERVED_FIELDS as readonly string[]).includes(name);
     const path = isReserved ? name : formatPath(['values', name]);
     if (typeof raw !== 'string') {

@@ -78,6 +78,7 @@ export async function* exportResponsePages(
         receivedAt: r.received_at,
         excluded: r.excluded === 1,
         excludedReason: r.excluded_reason,
+        weight: r.weight,
         values: new Array<number | null>(measureKeys.length).fill(null),
       };
       byId.set(r.id, row);

@@ -17,6 +17,10 @@ export interface CheckReport {
 
 export const MAX_PROBLEMS = 50;
 
+export function columnExists(db: SqliteDatabase, table: string, column: string): boolean {
+  return db.prepare(`SELECT 1 FROM pragma_table_info(?) WHERE name = ?`).pluck().get(table, column) !== undefined;
+}
+
 export function tableExists(db: SqliteDatabase, name: string): boolean {
   return db.prepare(`SELECT 1 FROM sqlite_schema WHERE type = 'table' AND name = ?`).pluck().get(name) !== undefined;
 }
@@ -84,6 +88,40 @@ export function checkDatabase(db: SqliteDatabase, onStage: (stage: string) => vo
           `${r.kept} kept but ${r.counted} stored values`,
       );
     }
+    // Migration 0005: the weighted count and the sums of weights and squared weights per value, recomputed from the
+    // rows (sums compared with a relative tolerance of 1e-9: they are accumulated in floating point, in another order).
+    if (columnExists(db, 'value_counts', 'weight_sum')) {
+      const weightMismatches = db
+        .prepare(
+          `WITH raw AS (
+             SELECT v.measure_id, v.condition_id, v.excluded, v.value, count(r.weight) AS wn,
+                    coalesce(sum(r.weight), 0) AS ws, coalesce(sum(r.weight * r.weight), 0) AS wq
+             FROM response_values v JOIN measures m ON m.id = v.measure_id JOIN responses r ON r.id = v.response_id
+             WHERE m.is_integer = 1
+             GROUP BY v.measure_id, v.condition_id, v.excluded, v.value)
+           SELECT k.measure_id, k.condition_id, k.excluded, k.value, k.weighted_count AS keptN, coalesce(raw.wn, 0) AS countedN,
+                  k.weight_sum AS keptSum, coalesce(raw.ws, 0) AS countedSum, k.weight_square_sum AS keptSq, coalesce(raw.wq, 0) AS countedSq
+           FROM value_counts k LEFT JOIN raw
+             ON raw.measure_id = k.measure_id AND raw.condition_id = k.condition_id AND raw.excluded = k.excluded AND raw.value = k.value
+           WHERE k.weighted_count != coalesce(raw.wn, 0)
+              OR abs(k.weight_sum - coalesce(raw.ws, 0)) > 1e-9 * max(abs(k.weight_sum), abs(coalesce(raw.ws, 0)), 1e-300)
+              OR abs(k.weight_square_sum - coalesce(raw.wq, 0)) > 1e-9 * max(abs(k.weight_square_sum), abs(coalesce(raw.wq, 0)), 1e-300)
+           LIMIT 20`,
+        )
+        .all() as {
+        measure_id: number; condition_id: number; excluded: number; value: number;
+        keptN: number; countedN: number; keptSum: number; countedSum: number; keptSq: number; countedSq: number;
+      }[];
+      for (const r of weightMismatches) {
+        add(
+          `value_counts weights for measure ${r.measure_id}, condition ${r.condition_id}, excluded ${r.excluded}, value ${r.value}: ` +
+            `${r.keptN} weighted answers, Σw ${r.keptSum}, Σw² ${r.keptSq} kept but ${r.countedN}, ${r.countedSum}, ${r.countedSq} stored`,
+        );
+      }
+      const badWeights = db.prepare(`SELECT count(*) FROM responses WHERE weight IS NOT NULL AND NOT (weight > 0)`).pluck().get() as number;
+      if (badWeights > 0) add(`${badWeights} responses have a weight that is not greater than 0`);
+    }
+
     const strayCounts = db
       .prepare(
         `SELECT count(*) FROM value_counts vc JOIN measures m ON m.id = vc.measure_id WHERE m.is_integer = 0 AND vc.count > 0`,

@@ -47,6 +47,7 @@ interface MeasureRow {
   is_integer: number;
   required: number;
   position: number;
+  role: 'outcome' | 'covariate';
 }
 
 /** Synchronous reads shared with the other SQLite repositories (they run inside their transactions). */
@@ -65,7 +66,7 @@ export class ExperimentReader {
       `SELECT id, slug, label, position, response_count, excluded_count FROM conditions WHERE experiment_id = ? ORDER BY position`,
     );
     this.measuresOf = db.prepare<[number], MeasureRow>(
-      `SELECT id, slug, label, min, max, is_integer, required, position FROM measures WHERE experiment_id = ? ORDER BY position`,
+      `SELECT id, slug, label, min, max, is_integer, required, position, role FROM measures WHERE experiment_id = ? ORDER BY position`,
     );
   }
 
@@ -87,6 +88,7 @@ export class ExperimentReader {
       integer: m.is_integer === 1,
       required: m.required === 1,
       position: m.position,
+      role: m.role,
     }));
     return {
       key: row.id,
@@ -147,8 +149,8 @@ export class SqliteExperimentRepository implements ExperimentRepository {
     this.insertCondition = db.prepare<[number, string, string, number]>(
       `INSERT INTO conditions (experiment_id, slug, label, position) VALUES (?, ?, ?, ?)`,
     );
-    this.insertMeasure = db.prepare<[number, string, string, number, number, number, number, number]>(
-      `INSERT INTO measures (experiment_id, slug, label, min, max, is_integer, required, position) VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
+    this.insertMeasure = db.prepare<[number, string, string, number, number, number, number, number, string]>(
+      `INSERT INTO measures (experiment_id, slug, label, min, max, is_integer, required, position, role) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
     );
     this.slugTaken = db.prepare<[string], { id: number }>(`SELECT id FROM experiments WHERE slug = ?`);
     this.dataVersion = db.prepare<[number], { data_version: number }>(`SELECT data_version FROM experiments WHERE id = ?`);
@@ -177,7 +179,7 @@ export class SqliteExperimentRepository implements ExperimentRepository {
       const key = Number(info.lastInsertRowid);
       def.conditions.forEach((c, i) => this.insertCondition.run(key, c.id, c.label, i));
       def.measures.forEach((m, i) =>
-        this.insertMeasure.run(key, m.id, m.label, m.min, m.max, m.integer ? 1 : 0, m.required ? 1 : 0, i),
+        this.insertMeasure.run(key, m.id, m.label, m.min, m.max, m.integer ? 1 : 0, m.required ? 1 : 0, i, m.role ?? 'outcome'),
       );
       const experiment = this.reader.getByKey(key);
       if (!experiment) throw new Error('experiment vanished inside its own transaction');

@@ -1,6 +1,8 @@
 /**
  * Exclusion, restoration and erasure of responses in SQLite, each ONE write transaction that keeps the invariants
- * (value_counts moved or decremented, condition counters, dataVersion + 1, an audit row). Part of the response
+ * (value_counts moved or decremented, condition counters, dataVersion + 1, an audit row). The weighted columns of
+ * value_counts (migration 0005) move with the answer: the weighted count by ±1, the sums of weights and squared
+ * weights of every touched row recomputed from its response rows (never by subtraction). Part of the response
  * repository (responses.ts is the facade).
  */
 import { AuditWriter } from './audit.js';
@@ -17,11 +19,13 @@ export class SqliteExclusionWriter {
   private readonly bumpVersion;
   private readonly responseForExclusion;
   private readonly integerValuesOf;
+  private readonly weightOf;
   private readonly setResponseExcluded;
   private readonly setValuesExcluded;
   private readonly decrementCount;
   private readonly deleteEmptyCount;
   private readonly incrementCount;
+  private readonly recomputeWeightSums;
   private readonly bumpExcluded;
   private readonly responsesOfRespondent;
   private readonly deleteValuesOf;
@@ -51,17 +55,41 @@ export class SqliteExclusionWriter {
          WHERE v.response_id = ? AND m.is_integer = 1`,
       )
       .raw();
+    this.weightOf = db.prepare<[number], number | null>(`SELECT weight FROM responses WHERE id = ?`).pluck();
     this.setResponseExcluded = db.prepare<[number, string | null, number]>(`UPDATE responses SET excluded = ?, excluded_reason = ? WHERE id = ?`);
     this.setValuesExcluded = db.prepare<[number, number]>(`UPDATE response_values SET excluded = ? WHERE response_id = ?`);
-    this.decrementCount = db.prepare<[number, number, number, number, number]>(
-      `UPDATE value_counts SET count = count - ? WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ?`,
+    // One answer leaves a row: its count, and (when its response carries a weight) the weighted count and sums. The
+    // sums of a row left with no weighted answer are set to exactly 0, so rounding never leaves a residue behind.
+    this.decrementCount = db.prepare<[{ n: number; wn: number; ws: number; wq: number; measure: number; condition: number; excluded: number; value: number }]>(
+      `UPDATE value_counts SET count = count - @n, weighted_count = weighted_count - @wn,
+         weight_sum = CASE WHEN weighted_count - @wn = 0 THEN 0 ELSE max(weight_sum - @ws, 0) END,
+         weight_square_sum = CASE WHEN weighted_count - @wn = 0 THEN 0 ELSE max(weight_square_sum - @wq, 0) END
+       WHERE measure_id = @measure AND condition_id = @condition AND excluded = @excluded AND value = @value`,
     );
     this.deleteEmptyCount = db.prepare<[number, number, number, number]>(
       `DELETE FROM value_counts WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND count = 0`,
     );
-    this.incrementCount = db.prepare<[number, number, number, number, number]>(
-      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, ?, ?, ?)
-       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
+    this.incrementCount = db.prepare<[number, number, number, number, number, number, number, number]>(
+      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count, weighted_count, weight_sum, weight_square_sum)
+       VALUES (?, ?, ?, ?, ?, ?, ?, ?)
+       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count,
+         weighted_count = value_counts.weighted_count + excluded.weighted_count,
+         weight_sum = value_counts.weight_sum + excluded.weight_sum,
+         weight_square_sum = value_counts.weight_square_sum + excluded.weight_square_sum`,
+    );
+    // Removing a weight from a running sum can cancel catastrophically (a weight of 1e4 leaves an error near 1e-12 in
+    // Σw and 1e-8 in Σw² of the small weights that remain), so a row that loses or gains a weighted answer through an
+    // exclusion, restoration or erasure gets its sums recomputed from its rows (run after the rows changed):
+    // O(answers sharing that value in that condition), through the index response_values_scan.
+    this.recomputeWeightSums = db.prepare<[{ measure: number; condition: number; excluded: number; value: number }]>(
+      `UPDATE value_counts SET
+         weight_sum = coalesce((SELECT sum(r.weight) FROM response_values v JOIN responses r ON r.id = v.response_id
+                                WHERE v.measure_id = @measure AND v.condition_id = @condition AND v.excluded = @excluded AND v.value = @value
+                                  AND r.weight IS NOT NULL), 0),
+         weight_square_sum = coalesce((SELECT sum(r.weight * r.weight) FROM response_values v JOIN responses r ON r.id = v.response_id
+                                WHERE v.measure_id = @measure AND v.condition_id = @condition AND v.excluded = @excluded AND v.value = @value
+                                  AND r.weight IS NOT NULL), 0)
+       WHERE measure_id = @measure AND condition_id = @condition AND excluded = @excluded AND value = @value`,
     );
     this.bumpExcluded = db.prepare<[number, number]>(`UPDATE conditions SET excluded_count = excluded_count + ? WHERE id = ?`);
     this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
@@ -94,7 +122,8 @@ export class SqliteExclusionWriter {
         const reason = change.excluded ? change.reason : null;
         this.setResponseExcluded.run(target, reason, row.id);
         this.setValuesExcluded.run(target, row.id);
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, from, target);
+        const weight = this.weightOf.get(row.id) ?? null;
+        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, from, target);
         this.bumpExcluded.run(change.excluded ? 1 : -1, row.condition_id);
         const dataVersion = this.bumpVersion.get(experimentKey) as number;
         this.audit.record({
@@ -118,9 +147,12 @@ export class SqliteExclusionWriter {
       const rows = this.responsesOfRespondent.all(experimentKey, respondent);
       const perCondition = new Map<number, { responses: number; excluded: number }>();
       for (const row of rows) {
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, row.excluded as 0 | 1, null);
+        const weight = this.weightOf.get(row.id) ?? null;
+        const integerValues = this.integerValuesOf.all(row.id);
+        // Rows first, counts after: a weighted row's sums are recomputed from what remains (see recomputeWeightSums).
         this.deleteValuesOf.run(row.id);
         this.deleteResponse.run(row.id);
+        for (const [measureKey, value] of integerValues) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
         this.audit.redactResponse(experimentKey, row.response_id);
         const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
         c.responses += 1;
@@ -139,13 +171,21 @@ export class SqliteExclusionWriter {
 
   /**
    * Move one answer's per-value count from excluded = `from` to excluded = `to` (null: remove it, for erasure).
-   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values.
+   * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values. `weight` is the
+   * response's weight (null: none), moved with the answer in the weighted count and sums.
    */
-  private moveCount(measureKey: number, conditionKey: number, value: number, from: 0 | 1, to: 0 | 1 | null): void {
-    const changed = this.decrementCount.run(1, measureKey, conditionKey, from, value).changes;
+  private moveCount(measureKey: number, conditionKey: number, value: number, weight: number | null, from: 0 | 1, to: 0 | 1 | null): void {
+    const w = weight ?? 0;
+    const weighted = weight === null ? 0 : 1;
+    const changed = this.decrementCount.run({ n: 1, wn: weighted, ws: w, wq: w * w, measure: measureKey, condition: conditionKey, excluded: from, value }).changes;
     if (changed !== 1) throw new Error(`value_counts has no row for measure ${measureKey}, condition ${conditionKey}, excluded ${from}, value ${value}`);
     this.deleteEmptyCount.run(measureKey, conditionKey, from, value);
-    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1);
+    if (to !== null) this.incrementCount.run(measureKey, conditionKey, to, value, 1, weighted, w, w * w);
+    if (weight !== null) {
+      // The response's rows already carry their new state (exclusion) or are gone (erasure).
+      this.recomputeWeightSums.run({ measure: measureKey, condition: conditionKey, excluded: from, value });
+      if (to !== null) this.recomputeWeightSums.run({ measure: measureKey, condition: conditionKey, excluded: to, value });
+    }
   }
 
   async setExcluded(

@@ -7,6 +7,7 @@ import type { SqliteDatabase } from './open.js';
 import type {
   IngestOutcome,
   RejectedIncrement,
+  RejectedWeightIncrement,
   ValidResponse,
 } from '../types.js';
 
@@ -22,7 +23,7 @@ export const RESPONSE_ROWS_PER_INSERT = 50;
 
 export const VALUE_ROWS_PER_INSERT = 100;
 
-const RESPONSE_COLUMNS = 9;
+const RESPONSE_COLUMNS = 10;
 
 const VALUE_COLUMNS = 4;
 
@@ -40,6 +41,14 @@ export const GROUP_COMMIT_MAX = 256;
 /** The next turn of the event loop (captured at load, so fake timers in tests cannot stall a commit). */
 
 const deferTurn: (fn: () => void) => void = globalThis.setImmediate.bind(globalThis);
+
+/** What one transaction adds to one value_counts row. */
+interface CountIncrement {
+  count: number;
+  weighted: number;
+  weightSum: number;
+  weightSquareSum: number;
+}
 
 interface PendingIngest {
   experimentKey: number;
@@ -64,6 +73,7 @@ export class SqliteIngestWriter {
   private readonly bumpCondition;
   private readonly bumpVersion;
   private readonly upsertRejected;
+  private readonly upsertRejectedWeight;
   private readonly maxResponseId;
   private readonly ingestTx;
   private readonly groupTx;
@@ -84,12 +94,12 @@ export class SqliteIngestWriter {
       .prepare<[number, string], Buffer>(`SELECT content_hash FROM responses WHERE experiment_id = ? AND response_id = ?`)
       .pluck();
     this.insertResponseWithId = db.prepare<unknown[]>(
-      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)`,
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight)
+       VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
     );
     this.insertResponsesMany = db.prepare<unknown[]>(
-      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       VALUES ${Array.from({ length: RESPONSE_ROWS_PER_INSERT }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight)
+       VALUES ${Array.from({ length: RESPONSE_ROWS_PER_INSERT }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
     );
     this.insertValuesMany = db.prepare<unknown[]>(
       `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value)
@@ -103,9 +113,14 @@ export class SqliteIngestWriter {
     this.insertValue = db.prepare<[number | bigint, number, number, number]>(
       `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES (?, ?, ?, 0, ?)`,
     );
-    this.upsertCount = db.prepare<[number, number, number, number]>(
-      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, 0, ?, ?)
-       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
+    // The weighted columns (migration 0005) travel with the count: answers whose response carries a weight, Σw, Σw².
+    this.upsertCount = db.prepare<[number, number, number, number, number, number, number]>(
+      `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count, weighted_count, weight_sum, weight_square_sum)
+       VALUES (?, ?, 0, ?, ?, ?, ?, ?)
+       ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count,
+         weighted_count = value_counts.weighted_count + excluded.weighted_count,
+         weight_sum = value_counts.weight_sum + excluded.weight_sum,
+         weight_square_sum = value_counts.weight_square_sum + excluded.weight_square_sum`,
     );
     this.bumpCondition = db.prepare<[number, number]>(`UPDATE conditions SET response_count = response_count + ? WHERE id = ?`);
     this.bumpVersion = db
@@ -114,6 +129,10 @@ export class SqliteIngestWriter {
     this.upsertRejected = db.prepare<[number, number, string, number]>(
       `INSERT INTO rejected_value_counts (experiment_id, measure_id, reason, count) VALUES (?, ?, ?, ?)
        ON CONFLICT (experiment_id, measure_id, reason) DO UPDATE SET count = rejected_value_counts.count + excluded.count`,
+    );
+    this.upsertRejectedWeight = db.prepare<[number, string, number]>(
+      `INSERT INTO rejected_weight_counts (experiment_id, reason, count) VALUES (?, ?, ?)
+       ON CONFLICT (experiment_id, reason) DO UPDATE SET count = rejected_weight_counts.count + excluded.count`,
     );
     this.maxResponseId = db.prepare<[], number>(`SELECT coalesce(max(id), 0) FROM responses`).pluck();
     this.ingestTx = db.transaction(
@@ -151,7 +170,7 @@ export class SqliteIngestWriter {
         //    transaction is the only writer), so response rows and value rows go in as multi-row INSERTs of up to
         //    RESPONSE_ROWS_PER_INSERT / VALUE_ROWS_PER_INSERT rows: one statement call per chunk, not per row.
         const integerMeasures = new Set<number>(this.integerMeasures.all(experimentKey));
-        const countIncrements = new Map<number, Map<number, Map<number, number>>>();
+        const countIncrements = new Map<number, Map<number, Map<number, CountIncrement>>>();
         const perCondition = new Map<number, number>();
         let created = 0;
         let nextId = (this.maxResponseId.get() as number) + 1;
@@ -175,7 +194,7 @@ export class SqliteIngestWriter {
           if (!isNew[i]) continue;
           const item = items[i];
           const rowId = nextId++;
-          responseParams.push(rowId, experimentKey, item.responseId, item.conditionKey, item.respondent, item.submittedAt, receivedAt, item.contentHash, apiKeyId);
+          responseParams.push(rowId, experimentKey, item.responseId, item.conditionKey, item.respondent, item.submittedAt, receivedAt, item.contentHash, apiKeyId, item.weight);
           if (responseParams.length === RESPONSE_ROWS_PER_INSERT * RESPONSE_COLUMNS) {
             flushResponses();
           }
@@ -190,7 +209,14 @@ export class SqliteIngestWriter {
               if (!byCondition) countIncrements.set(measureKey, (byCondition = new Map()));
               let byValue = byCondition.get(item.conditionKey);
               if (!byValue) byCondition.set(item.conditionKey, (byValue = new Map()));
-              byValue.set(value, (byValue.get(value) ?? 0) + 1);
+              let inc = byValue.get(value);
+              if (!inc) byValue.set(value, (inc = { count: 0, weighted: 0, weightSum: 0, weightSquareSum: 0 }));
+              inc.count += 1;
+              if (item.weight !== null) {
+                inc.weighted += 1;
+                inc.weightSum += item.weight;
+                inc.weightSquareSum += item.weight * item.weight;
+              }
             }
           }
           perCondition.set(item.conditionKey, (perCondition.get(item.conditionKey) ?? 0) + 1);
@@ -199,7 +225,7 @@ export class SqliteIngestWriter {
         flushResponses();
         flushValues();
         for (const [measure, byCondition] of countIncrements) {
-          for (const [condition, byValue] of byCondition) for (const [value, count] of byValue) this.upsertCount.run(measure, condition, value, count);
+          for (const [condition, byValue] of byCondition) for (const [value, c] of byValue) this.upsertCount.run(measure, condition, value, c.count, c.weighted, c.weightSum, c.weightSquareSum);
         }
         for (const [conditionKey, n] of perCondition) this.bumpCondition.run(n, conditionKey);
         const dataVersion = created > 0 ? (this.bumpVersion.get(experimentKey) as number) : state.data_version;
@@ -303,6 +329,13 @@ export class SqliteIngestWriter {
     this.groupStats.requests += group.length;
     if (group.length > this.groupStats.largest) this.groupStats.largest = group.length;
     results.forEach((r, i) => (r.ok ? group[i].resolve(r.outcome) : group[i].reject(r.error)));
+  }
+
+  async recordRejectedWeights(experimentKey: number, increments: RejectedWeightIncrement[]): Promise<void> {
+    if (increments.length === 0) return;
+    this.db.transaction(() => {
+      for (const inc of increments) if (inc.count > 0) this.upsertRejectedWeight.run(experimentKey, inc.reason, inc.count);
+    }).immediate();
   }
 
   async recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void> {

@@ -70,12 +70,13 @@ export interface StoredResponseRow {
   received_at: string;
   excluded: number;
   excluded_reason: string | null;
+  weight: number | null;
 }
 
 /** The columns of a StoredResponseRow, from `responses r JOIN conditions c ON c.id = r.condition_id`. */
 
 export const STORED_RESPONSE_COLUMNS =
-  'r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason';
+  'r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason, r.weight';
 
 /** Most single-response requests written in one group commit. */
 
@@ -207,6 +208,7 @@ export class SqliteResponseReads implements SortedRunsReader {
         condition: row.condition,
         respondent: row.respondent,
         values,
+        weight: row.weight,
         submittedAt: row.submitted_at,
         receivedAt: row.received_at,
         excluded: row.excluded === 1,

@@ -24,6 +24,10 @@
  * of DEVELOPERS.md: response flag and reason, response_values.excluded, value_counts moved between excluded 0 and 1
  * (or decremented; rows reaching 0 are deleted, so value_counts always equals a GROUP BY over response_values),
  * conditions.response_count / excluded_count, dataVersion + 1 and an audit row (audit.ts).
+ *
+ * Survey weights (migration 0005): responses.weight, and in value_counts the weighted count, Σw and Σw² per value,
+ * kept by the same ingest, exclusion and erasure transactions; responses-weights.ts reads them (and the rows of a
+ * covariate-adjusted comparison).
  */
 import type { SqliteDatabase } from './open.js';
 import { SqliteExclusionWriter } from './responses-exclusions.js';
@@ -43,7 +47,11 @@ import type {
   StoredResponse,
   ValidResponse,
   WeightedValues,
+  AdjustmentRows,
+  RejectedWeightIncrement,
+  WeightedSnapshot,
 } from '../types.js';
+import { SqliteWeightReads } from './responses-weights.js';
 
 export { GROUP_COMMIT_MAX, ID_LOOKUP_CHUNK, RESPONSE_ROWS_PER_INSERT, VALUE_ROWS_PER_INSERT } from './responses-ingest.js';
 export { INCREMENTAL_MAX_SHARE, INCREMENTAL_MIN_ROWS, mergeSorted, NEW_VALUES_OF_RUN_SQL, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from './responses-reads.js';
@@ -52,11 +60,13 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
   private readonly writer: SqliteIngestWriter;
   private readonly exclusions: SqliteExclusionWriter;
   private readonly reads: SqliteResponseReads;
+  private readonly weights: SqliteWeightReads;
 
   constructor(db: SqliteDatabase) {
     this.writer = new SqliteIngestWriter(db);
     this.exclusions = new SqliteExclusionWriter(db);
     this.reads = new SqliteResponseReads(db);
+    this.weights = new SqliteWeightReads(db);
   }
 
   /** Group-commit figures (tests and benchmarks): committed groups, requests in them, the largest group. */
@@ -88,6 +98,10 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
     return this.writer.recordRejected(experimentKey, increments);
   }
 
+  recordRejectedWeights(experimentKey: number, increments: RejectedWeightIncrement[]): Promise<void> {
+    return this.writer.recordRejectedWeights(experimentKey, increments);
+  }
+
   setExcluded(...args: Parameters<ResponseRepository['setExcluded']>): Promise<ExclusionOutcome> {
     return this.exclusions.setExcluded(...args);
   }
@@ -100,6 +114,18 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
 
   getRejectedCounts(experimentKey: number): Promise<RejectedCount[]> {
     return this.reads.getRejectedCounts(experimentKey);
+  }
+
+  getRejectedWeightCounts(experimentKey: number): Promise<RejectedWeightIncrement[]> {
+    return this.weights.getRejectedWeightCounts(experimentKey);
+  }
+
+  getWeightedSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean, form: 'sums' | 'pairs'): Promise<WeightedSnapshot> {
+    return this.weights.getWeightedSnapshot(measureKey, conditionKeys, includeExcluded, form);
+  }
+
+  getAdjustmentRows(outcomeKey: number, covariateKeys: number[], conditionKeys: [number, number], includeExcluded: boolean): Promise<AdjustmentRows> {
+    return this.weights.getAdjustmentRows(outcomeKey, covariateKeys, conditionKeys, includeExcluded);
   }
 
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null> {

@@ -57,7 +57,7 @@ async function seeded(): Promise<{ store: SqliteStore; e: ExperimentRecord; raw:
       [e.measures[1].key, amount],
     ]);
     const id = e.conditions[c].id;
-    return { responseId: `r${i}`, generated: false, conditionKey: e.conditions[c].key, respondent: null, submittedAt: '2027-03-01T12:00:00.000Z', values, contentHash: contentHash(id, null, [['score', score], ['amount', amount]]) };
+    return { responseId: `r${i}`, generated: false, conditionKey: e.conditions[c].key, respondent: null, weight: null, submittedAt: '2027-03-01T12:00:00.000Z', values, contentHash: contentHash(id, null, [['score', score], ['amount', amount]]) };
   });
   await store.responses.ingest(e.key, items, '2027-03-01T12:00:00.000Z', null);
   return { store, e: (await store.experiments.getBySlug('three'))!, raw };

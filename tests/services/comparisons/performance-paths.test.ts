@@ -68,7 +68,7 @@ function item(e: ExperimentRecord, id: string, condition: 'a' | 'b', score: numb
     canonical.push(['amount', amount]);
   }
   const c = e.conditions.find((x) => x.id === condition)!;
-  return { responseId: id, generated: false, conditionKey: c.key, respondent, submittedAt: '2027-03-01T12:00:00.000Z', values, contentHash: contentHash(condition, respondent, canonical) };
+  return { responseId: id, generated: false, conditionKey: c.key, respondent, submittedAt: '2027-03-01T12:00:00.000Z', values, weight: null, contentHash: contentHash(condition, respondent, canonical) };
 }
 
 describe('sorted-values cache', () => {

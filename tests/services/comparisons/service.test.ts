@@ -81,6 +81,7 @@ const CONTRACT_KEYS = [
   'flags',
   'monitoring',
   'equivalence',
+  'weighted',
 ];
 
 function valuesOf(responses: ReturnType<typeof waterData>, measure: 'satisfaction' | 'trust' | 'fair_price', condition: string): number[] {

@@ -1,0 +1,32 @@
+-- 0005_weights: survey weights and covariates.
+--
+--  responses.weight          the response's survey (sampling) weight: NULL when it carries none; otherwise a finite
+--                            number > 0 (the upper limit is a definition option, checked at ingest).
+--  value_counts              per value of an integer measure (per condition and excluded flag), beside the count of
+--                            all answers: weighted_count, the answers whose response carries a weight, and the sum of
+--                            their weights (weight_sum) and of their squared weights (weight_square_sum), kept in the
+--                            same transactions as count, so weighted comparisons of bounded items cost O(distinct
+--                            values). When weighted_count is 0 both sums are 0. Ingest adds to the sums; exclusion,
+--                            restoration and erasure recompute the sums of the rows they touch from response rows
+--                            (subtracting a large weight from a running sum would leave a rounding residue).
+--  measures.role             'outcome' (default) or 'covariate' (asked before the treatment; used for adjustment).
+--  rejected_weight_counts    weights refused at ingest, per experiment and reason (like rejected_value_counts).
+--
+-- Converting an existing database: every stored response had no weight (NULL), so every existing value_counts row
+-- has weighted_count = 0 and zero sums, which the column defaults give; every existing measure is an outcome.
+-- Append-only: never edit this file once a database has applied it.
+
+ALTER TABLE responses ADD COLUMN weight REAL CHECK (weight IS NULL OR weight > 0);
+
+ALTER TABLE value_counts ADD COLUMN weighted_count INTEGER NOT NULL DEFAULT 0 CHECK (weighted_count >= 0);
+ALTER TABLE value_counts ADD COLUMN weight_sum REAL NOT NULL DEFAULT 0 CHECK (weight_sum >= 0);
+ALTER TABLE value_counts ADD COLUMN weight_square_sum REAL NOT NULL DEFAULT 0 CHECK (weight_square_sum >= 0);
+
+ALTER TABLE measures ADD COLUMN role TEXT NOT NULL DEFAULT 'outcome' CHECK (role IN ('outcome', 'covariate'));
+
+CREATE TABLE rejected_weight_counts (
+  experiment_id INTEGER NOT NULL REFERENCES experiments (id) ON DELETE CASCADE,
+  reason        TEXT    NOT NULL CHECK (reason IN ('out_of_range', 'not_a_number', 'not_finite', 'too_many_digits', 'not_allowed', 'missing')),
+  count         INTEGER NOT NULL CHECK (count >= 0),
+  PRIMARY KEY (experiment_id, reason)
+) STRICT, WITHOUT ROWID;
