@@ -153,3 +153,11 @@ export function compareCounts(
   resolveOptions(rest);
   return compareSamples(fromCounts(countsA, min, 'countsA'), fromCounts(countsB, min, 'countsB'), rest);
 }
+export {
+  sensitivity,
+  type Sensitivity,
+  type SensitivityOptions,
+  type SensitivityResult,
+  type SensitivityScenario,
+  type SensitivityScenarioCode,
+} from './sensitivity.js';
