@@ -6,6 +6,7 @@
  */
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
+import { SensitivitySchema } from './sensitivity.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -135,6 +136,7 @@ const comparisonShape = {
   robust: RobustSchema,
   flags: z.array(FlagSchema),
   monitoring: MonitoringSchema.nullable().describe('Interim monitoring that stays valid however often you look'),
+  sensitivity: SensitivitySchema.nullable().describe('Both tests without the far-out answers, winsorised, and without the most influential answer'),
 };
 
 export const ComparisonSchema = z.object(comparisonShape).meta({

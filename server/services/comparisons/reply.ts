@@ -18,7 +18,7 @@ export const REJECTION_GROUPS: Record<string, 'out_of_range' | 'not_integer' | '
 export function comparisonBody(
   ids: { experiment: string; measure: string; a: string; b: string },
   dataVersion: number,
-  { cmp, flags }: CompareResult,
+  { cmp, flags, sensitivity }: CompareResult,
   monitoring: Awaited<ReturnType<typeof computeMonitoring>> | null,
 ): ComparisonBody {
   return {
@@ -37,6 +37,7 @@ export function comparisonBody(
     robust: cmp.robust,
     flags: flags as ComparisonBody['flags'],
     monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
+    sensitivity: (sensitivity ?? null) as ComparisonBody['sensitivity'],
   };
 }
 

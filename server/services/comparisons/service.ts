@@ -34,7 +34,7 @@ import type { ComparisonStamp, ExperimentRecord, MeasureSnapshot, RunsSnapshot, 
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
 import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
-import { compareSorted, shareable, sharedComparePool, type ComparePool, type CompareResult } from './worker-pool.js';
+import { compareSorted, sensitivityOf, shareable, sharedComparePool, type ComparePool, type CompareResult } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
@@ -43,7 +43,7 @@ import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntr
 import { comparisonBody, flagContext } from './reply.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
-export const CACHE_FORMAT = 1;
+export const CACHE_FORMAT = 2;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
@@ -307,7 +307,8 @@ export class ComparisonService {
       const { a, b } = samplesOf(t.measure, snapshot);
       const cmp = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
       this.paths.inThreadComputes++;
-      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), a, b };
+      const view = sensitivityOf(cmp, { a, b }, ctx, o.alternative, o.confidenceLevel);
+      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), sensitivity: view, a, b };
     }
     const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : shareable(x));
     const big = snapshot.groups[0].length + snapshot.groups[1].length >= this.workerMinValues;
@@ -336,7 +337,7 @@ export class ComparisonService {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
-    const { cmp, flags } = await this.compareAndFlag(t, o, snapshot);
+    const { cmp, flags, sensitivity } = await this.compareAndFlag(t, o, snapshot);
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
     const monitoring = await computeMonitoring({
@@ -351,7 +352,7 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring);
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags, sensitivity }, monitoring);
     return { body, snapshot };
   }
 }

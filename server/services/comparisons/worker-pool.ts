@@ -22,7 +22,8 @@ import os from 'node:os';
 import { fileURLToPath } from 'node:url';
 import { isMainThread, parentPort, Worker, workerData } from 'node:worker_threads';
 import { computeFlags, type Flag, type FlagContext } from '../../../stats/flags.js';
-import { compareSamples, fromSortedValues, type Alternative, type Comparison } from '../../../stats/index.js';
+import { compareSamples, fromSortedValues, type Alternative, type Comparison, type Sample } from '../../../stats/index.js';
+import { sensitivity, type Sensitivity } from '../../../stats/sensitivity.js';
 import type { RunsSnapshot } from '../../store/types.js';
 
 export interface ReadTask {
@@ -47,6 +48,21 @@ export interface CompareTask {
 export interface CompareResult {
   cmp: Comparison;
   flags: readonly Flag[];
+  /** The sensitivity view (stats/sensitivity.ts); absent only where a caller needs no view (warm-up). */
+  sensitivity?: Sensitivity;
+}
+
+/** The sensitivity view of a comparison, with the flags' alpha, scale, labels and fence multipliers. */
+export function sensitivityOf(cmp: Comparison, samples: { a: Sample; b: Sample }, ctx: FlagContext, alternative: Alternative, confidenceLevel: number): Sensitivity {
+  return sensitivity(cmp, samples, {
+    alternative,
+    confidenceLevel,
+    alpha: ctx.alpha,
+    scale: ctx.scale,
+    labels: ctx.labels,
+    ...(ctx.thresholds?.tukeyMultiplier !== undefined ? { tukeyMultiplier: ctx.thresholds.tukeyMultiplier } : {}),
+    ...(ctx.thresholds?.farOutMultiplier !== undefined ? { farOutMultiplier: ctx.thresholds.farOutMultiplier } : {}),
+  });
 }
 
 type Task = ReadTask | CompareTask;
@@ -66,7 +82,7 @@ export function compareSorted(task: Omit<CompareTask, 'kind'>): CompareResult {
   const b = fromSortedValues(task.b, 'b');
   const cmp = compareSamples(a, b, { alternative: task.alternative, confidenceLevel: task.confidenceLevel });
   const flags = computeFlags(cmp, { a, b }, task.flagContext, task.alternative);
-  return { cmp, flags };
+  return { cmp, flags, sensitivity: sensitivityOf(cmp, { a, b }, task.flagContext, task.alternative, task.confidenceLevel) };
 }
 
 // ───────────────────────────── inside a worker ─────────────────────────────

@@ -8,7 +8,7 @@ import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { ifNoneMatchMatches } from '../../../server/http/conditional.js';
 import { LruCache } from '../../../server/services/comparisons/cache.js';
 import { adjustPValues } from '../../../stats/adjust.js';
-import { compare } from '../../../stats/index.js';
+import { compare, fromValues, sensitivity } from '../../../stats/index.js';
 import { startTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
 import rReference from '../../fixtures/r-reference.json' with { type: 'json' };
 import rAdjust from '../../fixtures/r-adjust.json' with { type: 'json' };
@@ -80,6 +80,7 @@ const CONTRACT_KEYS = [
   'robust',
   'flags',
   'monitoring',
+  'sensitivity',
 ];
 
 function valuesOf(responses: ReturnType<typeof waterData>, measure: 'satisfaction' | 'trust' | 'fair_price', condition: string): number[] {
@@ -108,6 +109,16 @@ describe('GET /v1/experiments/{id}/comparisons/{measure}', () => {
       // The water study plans 400 per condition: the interim flag is always there while it runs.
       expect(body.flags.map((f: { code: string }) => f.code)).toContain('interim');
       expect(body).toHaveProperty('monitoring');
+      // The sensitivity view is stats' sensitivity() on the same answers, with the study's alpha, scale and labels.
+      const xa = fromValues(valuesOf(data, measure, 'bill-first'), 'a');
+      const xb = fromValues(valuesOf(data, measure, 'service-first'), 'b');
+      const scale = { satisfaction: { min: 0, max: 10, integer: true }, trust: { min: 1, max: 7, integer: true }, fair_price: { min: 0, max: 200, integer: false } }[measure]!;
+      const view = sensitivity(compare(valuesOf(data, measure, 'bill-first'), valuesOf(data, measure, 'service-first')), { a: xa, b: xb }, {
+        alpha: 0.05,
+        scale,
+        labels: { a: 'The bill questions come first', b: 'The service questions come first' },
+      });
+      expect(body.sensitivity).toEqual(JSON.parse(JSON.stringify(view)));
     }
   });
 
