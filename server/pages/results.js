@@ -23,6 +23,7 @@ import {
   formatPExact,
 } from './format.js';
 import { dataVersionOf, readEventStream } from './sse.js';
+import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensitivityBlock } from './workbench.js';
 
 const KEY_STORAGE = 'splitballot.readKey';
 const REFRESH_DEBOUNCE_MS = 400;
@@ -45,6 +46,7 @@ const state = {
   live: null, // AbortController of the event-stream loop
   generation: 0, // bumps on every key change so stale responses are ignored
   familySize: 0, // comparisons in the adjusted family (0 when not loaded)
+  familyInfo: null, // the family's adjustedFamily block (which comparisons were adjusted together)
 };
 
 // ---------------------------------------------------------------------------------------------------------
@@ -526,8 +528,7 @@ function flagList(cmp) {
 
 function formatWhen(iso) {
   if (typeof iso !== 'string') return MISSING;
-  const d = new Date(iso);
-  return Number.isNaN(d.getTime()) ? iso : d.toLocaleString();
+  return isoTime(iso);
 }
 
 function interimBlock(mid, cmp, trajectory) {
@@ -605,7 +606,7 @@ function adjustedLine(mid, entry) {
   return h(
     'p',
     { class: 'adjusted' },
-    h('strong', { text: `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
+    h('strong', { text: adjustedHeading(entry, state.familyInfo) || `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
     "Welch ", h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.welchP', 'p', adj.welchP, attrs)),
     ', rank-sum ', h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.mannWhitneyP', 'p', adj.mannWhitneyP, attrs)),
   );
@@ -622,6 +623,7 @@ function renderMeasure(m, result) {
       { class: 'measure-head' },
       h('h2', { id: headingId, text: m.label || m.id }),
       h('p', { class: 'scale' }, `Scale ${scaleText(scale)}`, m.required === false ? ' · optional item' : ''),
+      roleNote(h, state.definition || {}, m),
     ),
   );
   if (result.error) {
@@ -652,6 +654,7 @@ function renderMeasure(m, result) {
     section.append(h('div', { class: 'reasons' }, h('h4', { text: 'Why some numbers are missing' }), h('ul', {}, ...reasons.map((r) => h('li', { text: r })))));
   }
   section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp)));
+  section.append(sensitivityBlock(h, (field, kind, value) => num(mid, field, kind, value), cmp));
   section.append(interimBlock(mid, cmp, result.trajectory));
   section.append(
     h(
@@ -692,6 +695,7 @@ async function loadFamily(def) {
   try {
     const q = state.pair ? `&a=${encodeURIComponent(state.pair.a)}&b=${encodeURIComponent(state.pair.b)}` : '';
     const body = await (await api(`${base()}/comparisons?pairs=first&adjust=holm${q}`)).json();
+    state.familyInfo = body && body.adjustedFamily ? body.adjustedFamily : null;
     const entries = Array.isArray(body) ? body : body.comparisons || body.items || body.results || [];
     return Array.isArray(entries) ? entries : null;
   } catch (err) {
@@ -715,7 +719,7 @@ async function refresh() {
     if (generation !== state.generation) return;
     state.definition = def;
     renderPairPicker(def);
-    const measures = def.measures || [];
+    const measures = primaryFirst(def.measures);
     const [results, family] = await Promise.all([Promise.all(measures.map(loadMeasure)), loadFamily(def)]);
     if (generation !== state.generation) return;
     const versions = results.map((r) => (r.cmp && typeof r.cmp.dataVersion === 'number' ? r.cmp.dataVersion : null)).filter((v) => v !== null);
@@ -725,6 +729,7 @@ async function refresh() {
 
     $('key-panel').hidden = true;
     $('toolbar').hidden = false;
+    if (!$('downloads')) $('toolbar').after(downloadsBlock(h, state.id, base(), api));
     renderHeader(def);
     renderProgress(def);
     // Keep keyboard focus where it was when a live refresh swaps the numbers.

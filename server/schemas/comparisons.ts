@@ -7,6 +7,7 @@
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
 import { SensitivitySchema } from './sensitivity.js';
+import { MeasureRoleSchema } from './experiments.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -149,10 +150,18 @@ export const AdjustedSchema = z
     welchP: nullableNum.describe('Welch p adjusted across the whole family'),
     mannWhitneyP: nullableNum.describe('Rank-sum p adjusted across the whole family'),
     method: z.enum(['holm', 'bh', 'none']),
+    reason: z.string().optional().describe('Why the adjusted p-values are null (e.g. a process measure, outside the family)'),
   })
   .meta({ id: 'AdjustedP' });
 
-export const FamilyEntrySchema = z.object({ ...comparisonShape, adjusted: AdjustedSchema }).meta({ id: 'FamilyComparison' });
+export const FamilyEntrySchema = z
+  .object({
+    ...comparisonShape,
+    role: MeasureRoleSchema.describe("The measure's role; only outcome measures are in the adjusted family"),
+    primary: z.boolean().describe('The primary outcome'),
+    adjusted: AdjustedSchema,
+  })
+  .meta({ id: 'FamilyComparison' });
 
 export const FamilySchema = z
   .object({
@@ -160,6 +169,14 @@ export const FamilySchema = z
     dataVersion: z.number().int().describe('The data version every entry belongs to (see the README when they differ)'),
     adjust: z.enum(['holm', 'bh', 'none']),
     pairs: z.enum(['first', 'all']),
+    adjustedFamily: z
+      .object({
+        roles: z.array(z.enum(['outcome'])).describe('Roles whose comparisons form the adjusted family'),
+        measures: z.array(z.string()).describe('Measures in the adjusted family'),
+        size: z.number().int().describe('Comparisons adjusted together'),
+        description: z.string().describe('Which family was adjusted, in words'),
+      })
+      .describe('Which comparisons the adjustment covered (outcome measures only)'),
     comparisons: z.array(FamilyEntrySchema),
   })
   .meta({ id: 'ComparisonFamily' });

@@ -22,6 +22,11 @@ const ConditionInput = z.strictObject({
   label: Label.optional().describe('Defaults to the id'),
 });
 
+/** What a measure is for: compared and adjusted as an outcome, or shown as a process measure outside the adjusted family. */
+export const MeasureRoleSchema = z
+  .enum(['outcome', 'process'])
+  .describe('"outcome" (default): in the adjusted family; "process" (time spent, device type, …): compared but never adjusted with the outcomes');
+
 const MeasureInput = z
   .strictObject({
     id: Slug.refine((s) => !(RESERVED_MEASURE_IDS as readonly string[]).includes(s), {
@@ -32,6 +37,8 @@ const MeasureInput = z
     max: z.number().describe('Largest allowed value (finite, > min)'),
     integer: z.boolean().default(false).describe('Whole numbers only (default false)'),
     required: z.boolean().default(true).describe('Every response must answer it (default true)'),
+    role: MeasureRoleSchema.default('outcome'),
+    primary: z.boolean().default(false).describe('The primary outcome (at most one per experiment; shown first)'),
   })
   .superRefine((m, ctx) => {
     if (!(m.min < m.max)) ctx.addIssue({ code: 'custom', path: ['max'], message: `must be greater than min (${m.min})` });
@@ -45,6 +52,17 @@ function uniqueIds(items: { id: string }[], ctx: z.RefinementCtx, what: string):
   items.forEach((item, i) => {
     if (seen.has(item.id)) ctx.addIssue({ code: 'custom', path: [i, 'id'], message: `repeats the ${what} id "${item.id}"` });
     seen.add(item.id);
+  });
+}
+
+/** At most one primary measure, and it must be an outcome. */
+function checkPrimary(items: { role?: string; primary?: boolean }[], ctx: z.RefinementCtx): void {
+  let seen = -1;
+  items.forEach((m, i) => {
+    if (m.primary !== true) return;
+    if (seen >= 0) ctx.addIssue({ code: 'custom', path: [i, 'primary'], message: `only one measure can be primary (measures[${seen}] already is)` });
+    else seen = i;
+    if (m.role !== undefined && m.role !== 'outcome') ctx.addIssue({ code: 'custom', path: [i, 'primary'], message: 'a primary measure must have the role "outcome"' });
   });
 }
 
@@ -106,7 +124,10 @@ export const ExperimentInputSchema = z
       .array(MeasureInput)
       .min(1, 'needs at least one measure')
       .max(500)
-      .superRefine((a, ctx) => uniqueIds(a, ctx, 'measure')),
+      .superRefine((a, ctx) => {
+        uniqueIds(a, ctx, 'measure');
+        checkPrimary(a, ctx);
+      }),
     plannedPerCondition: z.number().int().min(1).max(1_000_000_000).nullable().optional().describe('Planned responses per condition'),
     alpha: z.number().gt(0).max(0.5).default(0.05).describe('Significance level for comparisons (default 0.05)'),
     thankYouUrl: HttpUrl.nullable().optional().describe('Where a browser is sent after a successful form post'),
@@ -133,9 +154,12 @@ export const ExperimentPatchSchema = z
           max: z.number().optional(),
           integer: z.boolean().optional(),
           required: z.boolean().optional(),
+          role: MeasureRoleSchema.optional(),
+          primary: z.boolean().optional().describe('true: this becomes the primary outcome; false on the primary one: none is'),
         }),
       )
       .max(500)
+      .superRefine(checkPrimary)
       .optional()
       .describe("Changes to existing measures; min, max and integer cannot change once the measure has values"),
     flagThresholds: FlagThresholdsSchema.nullable().optional().describe('Replaces the flag thresholds; null restores the defaults'),
@@ -156,8 +180,28 @@ export const ExperimentSchema = z
     status: z.enum(['open', 'closed']),
     conditions: z.array(z.object({ id: z.string(), label: z.string() })),
     measures: z.array(
-      z.object({ id: z.string(), label: z.string(), min: z.number(), max: z.number(), integer: z.boolean(), required: z.boolean() }),
+      z.object({
+        id: z.string(),
+        label: z.string(),
+        min: z.number(),
+        max: z.number(),
+        integer: z.boolean(),
+        required: z.boolean(),
+        role: MeasureRoleSchema,
+        primary: z.boolean().describe('The primary outcome'),
+      }),
     ),
+    primaryChanges: z
+      .array(
+        z.object({
+          from: z.string().nullable(),
+          to: z.string().nullable(),
+          at: z.string().describe('ISO 8601 time of the change'),
+          dataVersion: z.number().int().describe('The data version when the primary outcome changed (> 0: after data collection began)'),
+          apiKeyId: z.number().int().nullable().describe('The key that made the change'),
+        }),
+      )
+      .describe('Changes of the primary outcome made after answers existed (oldest first)'),
     plannedPerCondition: z.number().int().nullable(),
     alpha: z.number(),
     thankYouUrl: z.string().nullable(),

@@ -10,6 +10,7 @@ import { problems } from '../../schemas/common.js';
 import { ExperimentInputSchema, ExperimentListSchema, ExperimentPatchSchema, ExperimentSchema, type ExperimentView } from '../../schemas/experiments.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+import { definitionRoleOptions, patchRoleOptions, primaryChangesOf, primaryOf, roleOf } from '../../services/measure-roles.js';
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -23,7 +24,17 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
     title: e.title,
     status: e.status,
     conditions: e.conditions.map((c) => ({ id: c.id, label: c.label })),
-    measures: e.measures.map((m) => ({ id: m.id, label: m.label, min: m.min, max: m.max, integer: m.integer, required: m.required })),
+    measures: e.measures.map((m) => ({
+      id: m.id,
+      label: m.label,
+      min: m.min,
+      max: m.max,
+      integer: m.integer,
+      required: m.required,
+      role: roleOf(e, m.id),
+      primary: primaryOf(e) === m.id,
+    })),
+    primaryChanges: primaryChangesOf(e),
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
     thankYouUrl: e.thankYouUrl,
@@ -70,6 +81,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
           ...(b.flagThresholds ? { flagThresholds: b.flagThresholds } : {}),
           ...(b.monitoring ? { monitoring: b.monitoring } : {}),
           ...(b.allocation ? { allocation: b.allocation } : {}),
+          ...definitionRoleOptions(b.measures),
         },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);
@@ -132,10 +144,20 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         .map(({ m, i }) => ({ path: `measures[${i}].id`, message: `is not a measure of this experiment`, value: m.id }));
       if (unknown.length > 0) throw new RequestValidationError('body', unknown);
       const { flagThresholds, ...rest } = patch;
+      const now = new Date().toISOString();
+      const roleOptions = patchRoleOptions(e, patch.measures ?? [], now, request.principal?.keyId ?? null);
+      const primaryNow = 'primaryMeasure' in roleOptions ? (roleOptions.primaryMeasure as string | null) : primaryOf(e);
+      if (primaryNow !== null) {
+        const role = (roleOptions.measureRoles as Record<string, string> | null | undefined) === undefined ? roleOf(e, primaryNow) : ((roleOptions.measureRoles as Record<string, string> | null)?.[primaryNow] ?? 'outcome');
+        const i = (patch.measures ?? []).findIndex((m) => m.id === primaryNow);
+        if (role !== 'outcome') throw new RequestValidationError('body', [{ path: `measures[${Math.max(0, i)}].primary`, message: 'a primary measure must have the role "outcome"' }]);
+      }
+      const options = { ...(flagThresholds !== undefined ? { flagThresholds } : {}), ...roleOptions };
+      const measures = rest.measures?.map(({ role: _role, primary: _primary, ...m }) => m);
       const result = await store.experiments.update(
         e.key,
-        { ...rest, ...(flagThresholds !== undefined ? { options: { flagThresholds } } : {}) },
-        new Date().toISOString(),
+        { ...rest, ...(measures ? { measures } : {}), ...(Object.keys(options).length > 0 ? { options } : {}) },
+        now,
       );
       switch (result.kind) {
         case 'updated':

@@ -41,6 +41,7 @@ import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { comparisonBody, flagContext } from './reply.js';
+import { primaryOf, roleOf } from '../measure-roles.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 2;
@@ -204,20 +205,36 @@ export class ComparisonService {
       const expected = s;
       consistent = entries.every((e, i) => e.etag === tagOf(this.comparisonKey(targets[i], options, expected)));
     }
+    // The adjusted family is the outcome measures only: process measures (and any other role) are compared and
+    // shown, but their p-values are neither adjusted nor counted in the family (services/measure-roles.ts).
+    const roles = targets.map((t) => roleOf(experiment, t.measure.id));
+    const inFamily = roles.map((r) => r === 'outcome');
+    const members = entries.filter((_, i) => inFamily[i]);
     const welch = adjustPValues(
-      entries.map((e) => e.body.welch.p),
+      members.map((e) => e.body.welch.p),
       options.adjust,
     );
     const rankSum = adjustPValues(
-      entries.map((e) => e.body.mannWhitney.p),
+      members.map((e) => e.body.mannWhitney.p),
       options.adjust,
     );
-    const comparisons: FamilyEntry[] = entries.map((e, i) => ({
-      ...e.body,
-      adjusted: { welchP: welch[i], mannWhitneyP: rankSum[i], method: options.adjust },
-    }));
+    const primary = primaryOf(experiment);
+    let m = 0;
+    const comparisons: FamilyEntry[] = entries.map((e, i) => {
+      const adjusted: FamilyEntry['adjusted'] = inFamily[i]
+        ? { welchP: welch[m], mannWhitneyP: rankSum[m], method: options.adjust }
+        : { welchP: null, mannWhitneyP: null, method: options.adjust, reason: `A ${roles[i]} measure is not part of the adjusted family (outcome measures only).` };
+      if (inFamily[i]) m++;
+      return { ...e.body, role: roles[i], primary: targets[i].measure.id === primary, adjusted };
+    });
+    const adjustedFamily = {
+      roles: ['outcome' as const],
+      measures: [...new Set(targets.filter((_, i) => inFamily[i]).map((t) => t.measure.id))],
+      size: members.length,
+      description: `${options.adjust === 'none' ? 'No adjustment' : `${options.adjust === 'holm' ? 'Holm' : 'Benjamini–Hochberg'} adjustment`} over the ${members.length} outcome comparison${members.length === 1 ? '' : 's'}; process measures are not in the family.`,
+    };
     const dataVersion = Math.max(...entries.map((e) => e.body.dataVersion));
-    const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, comparisons };
+    const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, adjustedFamily, comparisons };
     const etag = consistent
       ? this.familyEtagFromStamp(experiment, options, s)
       : tagOf(['family-mixed', options.pairs, options.adjust, ...entries.map((e) => e.etag)].join('\n'));

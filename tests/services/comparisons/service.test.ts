@@ -445,12 +445,13 @@ describe('GET /v1/experiments/{id}/comparisons (the family)', () => {
     const res = await t.request({ method: 'GET', url: `${base}/comparisons` });
     expect(res.statusCode).toBe(200);
     const body = res.json();
-    expect(Object.keys(body)).toEqual(['experiment', 'dataVersion', 'adjust', 'pairs', 'comparisons']);
+    expect(Object.keys(body)).toEqual(['experiment', 'dataVersion', 'adjust', 'pairs', 'adjustedFamily', 'comparisons']);
     expect(body).toMatchObject({ experiment: WATER_ID, dataVersion: 1, adjust: 'holm', pairs: 'first' });
     expect(body.comparisons.map((c: { measure: string }) => c.measure)).toEqual(['satisfaction', 'trust', 'fair_price']);
     const single = (await t.request({ method: 'GET', url: `${base}/comparisons/trust` })).json();
-    const { adjusted, ...trust } = body.comparisons[1];
+    const { adjusted, role, primary, ...trust } = body.comparisons[1];
     expect(trust).toEqual(single);
+    expect([role, primary]).toEqual(['outcome', false]);
     expect(adjusted.method).toBe('holm');
     const holm = adjustPValues(
       body.comparisons.map((c: { welch: { p: number } }) => c.welch.p),

@@ -1,0 +1,189 @@
+/**
+ * The researcher's workbench on the results page, in Chromium (playwright-core with Debian's Chromium, as
+ * results-page.test.ts): the primary outcome first with its note, the adjusted family named, the sensitivity view
+ * whose every number equals the comparison JSON (whose numbers tests/stats/sensitivity.test.ts and the service test
+ * check against stats/ on the reduced data and against R), ISO 8601 times, and the download buttons whose saved
+ * files are byte for byte the API's exports. Screenshots: test-output/workbench*.png (git-ignored).
+ */
+import { execFileSync } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { formatByKind, readPath } from '../../server/pages/format.js';
+import { startTestApp, type TestApp } from '../helpers/app.js';
+
+const ROOT = fileURLToPath(new URL('../..', import.meta.url));
+const OUTPUT = join(ROOT, 'test-output');
+const STUDY = 'water-tariff-2027';
+
+function findChromium(): string | null {
+  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
+  try {
+    return execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim() || null;
+  } catch {
+    return null;
+  }
+}
+const CHROMIUM = findChromium();
+if (!CHROMIUM) console.warn('\n!! SKIPPED tests/browser/workbench.test.ts: Chromium was not found (apt-get install -y chromium)\n');
+
+// The invented water-utility survey, tariff wording variant: the main 0–100 item is declared after a second outcome
+// (so "primary first" is visible), with a handful of answers near the top in one condition; an optional process measure.
+const definition = {
+  id: STUDY,
+  title: 'Invented water-utility survey: tariff wording',
+  conditions: [{ id: 'plain', label: 'Plain tariff wording' }, { id: 'detailed', label: 'Detailed tariff wording' }],
+  plannedPerCondition: 100,
+  measures: [
+    { id: 'trust', label: 'Trust in the utility (1–7)', min: 1, max: 7, integer: true },
+    { id: 'acceptance', label: 'How acceptable is the new tariff to your household, all things considered? (0–100)', min: 0, max: 100, integer: true, primary: true },
+    { id: 'minutes', label: 'Minutes spent on the page', min: 0, max: 120, integer: false, required: false, role: 'process' },
+  ],
+};
+
+function seed(n: number) {
+  return Array.from({ length: n }, (_, i) => {
+    const detailed = i % 2 === 1;
+    const wobble = ((i * 7919) % 17) - 8;
+    const top = detailed && i % 20 === 1; // a handful of answers near the top in "detailed"
+    return {
+      responseId: `t-${i}`,
+      condition: detailed ? 'detailed' : 'plain',
+      values: {
+        trust: 1 + ((i * 5) % 7),
+        acceptance: top ? 96 + (i % 5) : 40 + wobble + (detailed ? 3 : 0),
+        minutes: Math.round((4 + ((i * 13) % 11) + (detailed ? 1.5 : 0)) * 10) / 10,
+      },
+    };
+  });
+}
+
+describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium', () => {
+  let t: TestApp;
+  let base: string;
+  let readKey: string;
+  let context: BrowserContext;
+  let page: Page;
+  let profile: string;
+  const problems: string[] = [];
+
+  beforeAll(async () => {
+    t = await startTestApp({ config: { logLevel: 'warn' } });
+    expect((await t.request({ method: 'POST', url: '/v1/experiments', payload: definition })).statusCode).toBe(201);
+    const batch = await t.request({ method: 'POST', url: `/v1/experiments/${STUDY}/responses/batch`, payload: { responses: seed(120) } });
+    expect(batch.statusCode, batch.body).toBe(201);
+    // The primary outcome moves away and back after data exist: recorded, and shown as changed.
+    for (const id of ['trust', 'acceptance']) {
+      const res = await t.request({ method: 'PATCH', url: `/v1/experiments/${STUDY}`, payload: { measures: [{ id, primary: true }] } });
+      expect(res.statusCode, res.body).toBe(200);
+    }
+    readKey = await t.key('read', STUDY, 'workbench browser test');
+    await t.app.listen({ port: 0, host: '127.0.0.1' });
+    const addr = t.app.server.address();
+    base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
+    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
+    context = await chromium.launchPersistentContext(profile, {
+      executablePath: CHROMIUM!,
+      headless: true,
+      acceptDownloads: true,
+      viewport: { width: 1280, height: 900 },
+      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
+    });
+    page = context.pages()[0] ?? (await context.newPage());
+    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
+    page.on('console', (msg) => {
+      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
+    });
+    mkdirSync(OUTPUT, { recursive: true });
+    await page.goto(`${base}/experiments/${STUDY}`);
+    await page.locator('#key-input').fill(readKey);
+    await page.locator('#key-submit').click();
+    for (const m of ['acceptance', 'trust', 'minutes']) await page.locator(`section.measure[data-measure="${m}"] .sensitivity table`).waitFor({ timeout: 20_000 });
+  }, 90_000);
+
+  afterAll(async () => {
+    await context?.close();
+    if (profile) rmSync(profile, { recursive: true, force: true });
+    await t?.close();
+  });
+
+  async function api(path: string) {
+    const res = await t.request({ method: 'GET', url: path, key: readKey });
+    expect(res.statusCode, `${path}: ${res.body}`).toBe(200);
+    return res;
+  }
+
+  it('the primary outcome comes first, says it was changed after data collection began; the family is named', async () => {
+    const order = await page.$$eval('section.measure', (els) => els.map((el) => el.getAttribute('data-measure')));
+    expect(order).toEqual(['acceptance', 'trust', 'minutes']);
+    const def = (await api(`/v1/experiments/${STUDY}`)).json();
+    const last = def.primaryChanges[def.primaryChanges.length - 1];
+    const note = await page.locator('section.measure[data-measure="acceptance"] .role-primary').textContent();
+    expect(note).toBe(`Primary outcome · changed after data collection began (on ${last.at.replace(/\.\d{3}Z$/, 'Z')}, at data version ${last.dataVersion})`);
+    expect(await page.locator('section.measure[data-measure="minutes"] .role-process').textContent()).toBe('Process measure · not part of the adjusted family');
+    const adjusted = await page.locator('section.measure[data-measure="acceptance"] .adjusted strong').textContent();
+    expect(adjusted).toBe('Adjusted over the 2 outcome comparisons (Holm; process measures are not in the family): ');
+    expect(await page.locator('section.measure[data-measure="minutes"] .adjusted strong').textContent()).toBe(
+      'A process measure is not part of the adjusted family (outcome measures only).',
+    );
+  });
+
+  it('every number of the sensitivity view equals the comparison JSON; the changed conclusions are stated', async () => {
+    let checked = 0;
+    for (const m of ['acceptance', 'trust', 'minutes']) {
+      const json = (await api(`/v1/experiments/${STUDY}/comparisons/${m}`)).json();
+      const shown = await page.$$eval(`section.measure[data-measure="${m}"] .sensitivity [data-field][data-format]`, (els) =>
+        els.map((el) => ({ field: el.getAttribute('data-field')!, format: el.getAttribute('data-format')!, text: el.textContent ?? '' })),
+      );
+      for (const s of shown) {
+        expect(s.text, `${m} ${s.field}`).toBe(formatByKind(s.format, readPath(json, s.field)));
+        checked++;
+      }
+      const sentences = await page.$$eval(`section.measure[data-measure="${m}"] .sensitivity-sentence`, (els) => els.map((el) => el.textContent));
+      expect(sentences, m).toEqual(json.sensitivity.scenarios.filter((s: { sentence: string | null }) => s.sentence).map((s: { sentence: string }) => s.sentence));
+      expect(await page.locator(`section.measure[data-measure="${m}"] .sensitivity .caveat`).textContent()).toBe(json.sensitivity.note);
+    }
+    // acceptance: all four rows; trust (1–7): only the full data and the influential-answer row have numbers.
+    expect(checked).toBeGreaterThan(40);
+    const acceptance = (await api(`/v1/experiments/${STUDY}/comparisons/acceptance`)).json();
+    expect(acceptance.sensitivity.scenarios.map((s: { result: unknown }) => s.result !== null)).toEqual([true, true, true]);
+    expect(await page.locator('section.measure[data-measure="trust"] tr.not-applicable').count()).toBe(2);
+    await page.locator('section.measure[data-measure="acceptance"] .sensitivity').scrollIntoViewIfNeeded();
+    await page.screenshot({ path: join(OUTPUT, 'workbench-sensitivity.png'), fullPage: false });
+    expect(problems).toEqual([]);
+  });
+
+  it('times are ISO 8601', async () => {
+    const computed = await page.locator('section.measure[data-measure="acceptance"] .computed').textContent();
+    expect(computed).toMatch(/computed \d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ$/);
+  });
+
+  it('each download saves exactly the bytes the API answers, with the key sent as a header', async () => {
+    for (const [what, path] of [
+      ['responses.csv', `/v1/experiments/${STUDY}/responses.csv`],
+      ['responses.ndjson', `/v1/experiments/${STUDY}/responses.ndjson`],
+      ['comparisons.csv', `/v1/experiments/${STUDY}/comparisons.csv`],
+    ] as const) {
+      const [download] = await Promise.all([page.waitForEvent('download', { timeout: 15_000 }), page.locator(`button[data-download="${what}"]`).click()]);
+      expect(download.suggestedFilename()).toBe(`${STUDY}-${what}`);
+      const saved = readFileSync((await download.path())!);
+      const expected = (await api(path)).rawPayload;
+      expect(saved.equals(expected), `${what}: ${saved.length} bytes saved, ${expected.length} from the API`).toBe(true);
+      expect(page.url()).toBe(`${base}/experiments/${STUDY}`);
+    }
+    await page.screenshot({ path: join(OUTPUT, 'workbench-top.png'), clip: { x: 0, y: 0, width: 1280, height: 900 } });
+    expect(problems).toEqual([]);
+  }, 60_000);
+
+  it('at phone width the sensitivity table scrolls inside its region', async () => {
+    await page.setViewportSize({ width: 390, height: 844 });
+    await page.locator('section.measure[data-measure="acceptance"] .sensitivity').scrollIntoViewIfNeeded();
+    const overflow = await page.evaluate(() => document.documentElement.scrollWidth - document.documentElement.clientWidth);
+    expect(overflow).toBeLessThanOrEqual(0);
+    await page.screenshot({ path: join(OUTPUT, 'workbench-phone.png') });
+    await page.setViewportSize({ width: 1280, height: 900 });
+  });
+});
