@@ -23,6 +23,7 @@ import {
   formatPExact,
 } from './format.js';
 import { dataVersionOf, readEventStream } from './sse.js';
+import { answersBlock } from './answers.js';
 import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensitivityBlock } from './workbench.js';
 
 const KEY_STORAGE = 'splitballot.readKey';
@@ -653,7 +654,8 @@ function renderMeasure(m, result) {
   if (reasons.length > 0) {
     section.append(h('div', { class: 'reasons' }, h('h4', { text: 'Why some numbers are missing' }), h('ul', {}, ...reasons.map((r) => h('li', { text: r })))));
   }
-  section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp)));
+  const answersCtx = { h, studyId: state.id, key: () => state.key, conditionLabel, onChanged: refreshNow };
+  section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp), answersBlock(answersCtx, mid, cmp)));
   section.append(sensitivityBlock(h, (field, kind, value) => num(mid, field, kind, value), cmp));
   section.append(interimBlock(mid, cmp, result.trajectory));
   section.append(

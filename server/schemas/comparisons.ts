@@ -6,7 +6,7 @@
  */
 import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
-import { SensitivitySchema } from './sensitivity.js';
+import { FlaggedAnswersSchema, SensitivitySchema } from './sensitivity.js';
 import { MeasureRoleSchema } from './experiments.js';
 
 const num = z.number();
@@ -138,6 +138,7 @@ const comparisonShape = {
   flags: z.array(FlagSchema),
   monitoring: MonitoringSchema.nullable().describe('Interim monitoring that stays valid however often you look'),
   sensitivity: SensitivitySchema.nullable().describe('Both tests without the far-out answers, winsorised, and without the most influential answer'),
+  flaggedAnswers: FlaggedAnswersSchema.nullable().describe('The answers behind the outlier and influential-answer flags (null: neither flag is raised)'),
 };
 
 export const ComparisonSchema = z.object(comparisonShape).meta({

@@ -60,3 +60,22 @@ export const SensitivitySchema = z
     note: z.string().describe('A view, not a recommendation to drop data'),
   })
   .meta({ id: 'Sensitivity', description: 'What the extreme answers do to both tests (a view, not a recommendation to drop data)' });
+
+export const FlaggedAnswersSchema = z
+  .object({
+    answers: z.array(
+      z.object({
+        flag: z.enum(['outliers', 'influential_point']).describe('The flag this answer is behind'),
+        group: z.enum(['a', 'b']),
+        condition: z.string().describe('Condition id'),
+        responseId: z.string(),
+        value: z.number(),
+        receivedAt: z.string().describe('ISO 8601 arrival time'),
+        excluded: z.boolean(),
+      }),
+    ),
+    truncated: z.boolean().describe('True when more answers have the flagged values than were listed'),
+    limitPerGroup: z.number().int().describe('At most this many answers per flag and condition'),
+    reason: z.string().optional().describe('Why no answers are listed'),
+  })
+  .meta({ id: 'FlaggedAnswers', description: 'The stored answers behind the outlier and influential-answer flags (read and admin keys)' });

@@ -229,6 +229,14 @@ export interface AuditEntry {
   redacted: boolean;
 }
 
+/** One stored answer behind a quality flag (see ResponseRepository.getAnswersWithValues). */
+export interface AnswerWithValue {
+  responseId: string;
+  value: number;
+  receivedAt: string;
+  excluded: boolean;
+}
+
 export interface AuditRepository {
   /** Newest first, at most `limit` (default 1,000). */
   list(experimentKey: number, limit?: number): Promise<AuditEntry[]>;
@@ -294,6 +302,11 @@ export interface ResponseRepository {
   recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void>;
   getRejectedCounts(experimentKey: number): Promise<RejectedCount[]>;
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null>;
+  /**
+   * The answers of one measure in one condition equal to one of `values` (the answers behind a quality flag), oldest
+   * arrival first, at most `limit` in all. Optional: an engine without it gives the comparison no answer list.
+   */
+  getAnswersWithValues?(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]>;
   /**
    * Per-value counts of an integer measure in one condition: element k counts answers equal to min + k, for
    * k = 0 … max − min. Throws RangeError for a continuous measure or a scale wider than 1,000,001 values.

@@ -178,6 +178,58 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
     expect(problems).toEqual([]);
   }, 60_000);
 
+  it('the answers behind the outlier flag: a table of ids, values and times; a read key cannot exclude, an admin key can (with a reason, confirmed)', async () => {
+    const url = `/v1/experiments/${STUDY}/comparisons/acceptance`;
+    const json = (await api(url)).json();
+    const listed = json.flaggedAnswers.answers as { responseId: string; value: number; receivedAt: string; flag: string }[];
+    expect(listed.filter((a) => a.flag === 'outliers').length).toBeGreaterThan(0);
+    const rows = page.locator('section.measure[data-measure="acceptance"] .answers-table tbody tr');
+    const shown = await rows.evaluateAll((trs) => trs.map((tr) => [...tr.querySelectorAll('th, td')].slice(0, 6).map((c) => c.textContent)));
+    expect(shown).toEqual(
+      listed.map((a) => [
+        a.flag === 'outliers' ? 'Far from the rest' : 'Decides the t-test',
+        'Detailed tariff wording',
+        a.responseId,
+        String(a.value),
+        a.receivedAt.replace(/\.\d{3}Z$/, 'Z'),
+        'included',
+      ]),
+    );
+    const target = listed[0].responseId;
+    const row = () => page.locator(`section.measure[data-measure="acceptance"] .answers-table tr[data-response="${target}"]`);
+    // The read key: the confirmation step works, the server refuses, the page says why.
+    await row().locator('button[data-action="exclude"]').click();
+    await row().locator('input[name="reason"]').fill('speeded through the page (under 20 seconds)');
+    await row().locator('button[data-confirm="exclude"]').click();
+    await page.locator('section.measure[data-measure="acceptance"] .answers-status').filter({ hasText: 'needs an admin key' }).waitFor({ timeout: 10_000 });
+    expect((await api(url)).json().groups.b.n).toBe(60);
+    problems.length = 0; // the browser logs the refused request (403) itself
+
+    // The admin key.
+    await page.locator('#forget-key-button').click();
+    await page.locator('#key-input').fill(t.adminKey);
+    await page.locator('#key-submit').click();
+    await row().locator('button[data-action="exclude"]').waitFor({ timeout: 15_000 });
+    await row().locator('button[data-action="exclude"]').click();
+    // An empty reason is not sent.
+    await row().locator('button[data-confirm="exclude"]').click();
+    await page.locator('section.measure[data-measure="acceptance"] .answers-status').filter({ hasText: 'Please say why' }).waitFor({ timeout: 5_000 });
+    await row().locator('input[name="reason"]').fill('speeded through the page (under 20 seconds)');
+    await row().locator('button[data-confirm="exclude"]').click();
+    await page.locator('section.measure[data-measure="acceptance"] [data-field="groups.b.n"]').first().filter({ hasText: /^59$/ }).waitFor({ timeout: 15_000 });
+    await row().filter({ hasText: 'excluded' }).waitFor({ timeout: 10_000 });
+    const audit = (await t.request({ method: 'GET', url: `/v1/experiments/${STUDY}/audit` })).json();
+    expect(JSON.stringify(audit)).toContain('speeded through the page (under 20 seconds)');
+    await row().scrollIntoViewIfNeeded();
+    await page.screenshot({ path: join(OUTPUT, 'workbench-answers.png') });
+    // Restore it from the same row (confirmation step, no reason needed).
+    await row().locator('button[data-action="restore"]').click();
+    await row().locator('button[data-confirm="restore"]').click();
+    await page.locator('section.measure[data-measure="acceptance"] [data-field="groups.b.n"]').first().filter({ hasText: /^60$/ }).waitFor({ timeout: 15_000 });
+    expect((await api(url)).json().groups.b.n).toBe(60);
+    expect(problems).toEqual([]);
+  }, 90_000);
+
   it('at phone width the sensitivity table scrolls inside its region', async () => {
     await page.setViewportSize({ width: 390, height: 844 });
     await page.locator('section.measure[data-measure="acceptance"] .sensitivity').scrollIntoViewIfNeeded();

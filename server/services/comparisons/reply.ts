@@ -5,6 +5,7 @@ import { type CompareResult } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { type ComparisonTarget } from '../targets.js';
 import { type ComparisonBody } from '../../schemas/comparisons.js';
+import type { FlaggedAnswers } from './flagged-answers.js';
 
 export const REJECTION_GROUPS: Record<string, 'out_of_range' | 'not_integer' | 'not_a_number'> = {
   out_of_range: 'out_of_range',
@@ -20,6 +21,7 @@ export function comparisonBody(
   dataVersion: number,
   { cmp, flags, sensitivity }: CompareResult,
   monitoring: Awaited<ReturnType<typeof computeMonitoring>> | null,
+  flaggedAnswers: FlaggedAnswers | null = null,
 ): ComparisonBody {
   return {
     experiment: ids.experiment,
@@ -38,6 +40,7 @@ export function comparisonBody(
     flags: flags as ComparisonBody['flags'],
     monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
     sensitivity: (sensitivity ?? null) as ComparisonBody['sensitivity'],
+    flaggedAnswers,
   };
 }
 

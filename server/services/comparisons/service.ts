@@ -42,6 +42,7 @@ import { experimentNotFound, familyTargets, type ComparisonTarget } from '../tar
 import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { comparisonBody, flagContext } from './reply.js';
 import { primaryOf, roleOf } from '../measure-roles.js';
+import { flaggedAnswers } from './flagged-answers.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 2;
@@ -369,7 +370,8 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags, sensitivity }, monitoring);
+    const flagged = await flaggedAnswers(this.store, t, flags, o.includeExcluded);
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags, sensitivity }, monitoring, flagged);
     return { body, snapshot };
   }
 }

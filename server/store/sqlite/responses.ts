@@ -41,6 +41,7 @@ import type {
   RunsSnapshot,
   SortedRunsReader,
   StoredResponse,
+  AnswerWithValue,
   ValidResponse,
   WeightedValues,
 } from '../types.js';
@@ -104,6 +105,10 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
 
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null> {
     return this.reads.getStored(experimentKey, responseId);
+  }
+
+  getAnswersWithValues(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]> {
+    return this.reads.getAnswersWithValues(measureKey, conditionKey, values, includeExcluded, limit);
   }
 
   getCounts(measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<Float64Array> {

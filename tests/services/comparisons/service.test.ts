@@ -81,6 +81,7 @@ const CONTRACT_KEYS = [
   'flags',
   'monitoring',
   'sensitivity',
+  'flaggedAnswers',
 ];
 
 function valuesOf(responses: ReturnType<typeof waterData>, measure: 'satisfaction' | 'trust' | 'fair_price', condition: string): number[] {
