@@ -45,7 +45,7 @@ import { primaryOf, roleOf } from '../measure-roles.js';
 import { flaggedAnswers } from './flagged-answers.js';
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
-export const CACHE_FORMAT = 2;
+export const CACHE_FORMAT = 3;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
