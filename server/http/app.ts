@@ -51,6 +51,7 @@ import { pageRoutes } from './routes/pages.js';
 import { planningRoutes } from './routes/planning.js';
 import { responseRoutes } from './routes/responses.js';
 import { resultsPageRoutes } from './routes/results-page.js';
+import { overviewRoutes } from './routes/overview.js';
 import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
 
@@ -189,6 +190,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(exportRoutes, { store, comparisons });
   app.register(importRoutes, { store });
   app.register(resultsPageRoutes, { store });
+  app.register(overviewRoutes, { store, comparisons });
   app.register(adminRoutes, {
     store,
     backupDir: backupDirOf(config),

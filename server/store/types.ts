@@ -306,6 +306,8 @@ export interface ResponseRepository {
    * The answers of one measure in one condition equal to one of `values` (the answers behind a quality flag), oldest
    * arrival first, at most `limit` in all. Optional: an engine without it gives the comparison no answer list.
    */
+  /** Responses of an experiment received at or after each ISO time (the team overview's "today" / "this week"). Optional. */
+  countReceivedSince?(experimentKey: number, since: readonly string[]): Promise<number[]>;
   getAnswersWithValues?(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]>;
   /**
    * Per-value counts of an integer measure in one condition: element k counts answers equal to min + k, for

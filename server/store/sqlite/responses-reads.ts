@@ -107,6 +107,7 @@ export class SqliteResponseReads implements SortedRunsReader {
   private readonly storedResponse;
   private readonly storedValues;
   private readonly answersAt;
+  private readonly receivedSince;
   private readonly measureRow;
   private readonly countsOne;
   private readonly countsBoth;
@@ -139,6 +140,7 @@ export class SqliteResponseReads implements SortedRunsReader {
       `SELECT m.slug AS measure, v.value AS value FROM response_values v JOIN measures m ON m.id = v.measure_id
        WHERE v.response_id = ? ORDER BY m.position`,
     );
+    this.receivedSince = db.prepare<[number, string], number>(`SELECT count(*) FROM responses WHERE experiment_id = ? AND received_at >= ?`).pluck();
     this.answersAt = db.prepare<[number, number, number, number, number], { response_id: string; value: number; received_at: string; excluded: number }>(
       `SELECT r.response_id, v.value, r.received_at, v.excluded FROM response_values v JOIN responses r ON r.id = v.response_id
        WHERE v.measure_id = ? AND v.condition_id = ? AND v.excluded = ? AND v.value = ? ORDER BY r.received_at, r.id LIMIT ?`,
@@ -218,6 +220,11 @@ export class SqliteResponseReads implements SortedRunsReader {
         excludedReason: row.excluded_reason,
       };
     })();
+  }
+
+  /** Responses received at or after each time (one read transaction; a scan of the experiment's responses). */
+  async countReceivedSince(experimentKey: number, since: readonly string[]): Promise<number[]> {
+    return this.db.transaction(() => since.map((s) => this.receivedSince.get(experimentKey, s) ?? 0))();
   }
 
   /**

@@ -107,6 +107,10 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
     return this.reads.getStored(experimentKey, responseId);
   }
 
+  countReceivedSince(experimentKey: number, since: readonly string[]): Promise<number[]> {
+    return this.reads.countReceivedSince(experimentKey, since);
+  }
+
   getAnswersWithValues(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]> {
     return this.reads.getAnswersWithValues(measureKey, conditionKey, values, includeExcluded, limit);
   }
