@@ -125,6 +125,7 @@ async function poll() {
     state.body = await res.json();
     $('key-panel').hidden = true;
     $('toolbar').hidden = false;
+    $('live-status').dataset.tone = 'on';
     render();
   } catch (err) {
     $('page-status').textContent = `The overview could not be loaded: ${err && err.message ? err.message : String(err)}. Trying again shortly.`;
