@@ -24,7 +24,7 @@ import {
 } from './format.js';
 import { dataVersionOf, readEventStream } from './sse.js';
 import { answersBlock } from './answers.js';
-import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensitivityBlock } from './workbench.js';
+import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensitivityBlock, wantsDataRange } from './workbench.js';
 
 const KEY_STORAGE = 'splitballot.readKey';
 const REFRESH_DEBOUNCE_MS = 400;
@@ -604,6 +604,7 @@ function adjustedLine(mid, entry) {
   const adj = entry.adjusted;
   const method = adj.method === 'bh' ? 'Benjamini–Hochberg' : adj.method === 'holm' ? 'Holm' : String(adj.method || 'adjusted');
   const attrs = { 'data-source': 'family' };
+  if (adj.welchP === null && adj.mannWhitneyP === null && adj.reason) return h('p', { class: 'adjusted adjusted-none', text: adj.reason });
   return h(
     'p',
     { class: 'adjusted' },
@@ -636,7 +637,12 @@ function renderMeasure(m, result) {
   const body = h(
     'div',
     { class: 'measure-body' },
-    chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
+    h(
+      'div',
+      { class: 'charts' },
+      chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
+      result.dataChart ? chartFigure('distribution-data', "Zoomed to the answers' range (the axis does not start at the scale's minimum)", result.dataChart) : null,
+    ),
     h(
       'div',
       { class: 'numbers' },
@@ -684,11 +690,12 @@ async function loadMeasure(m) {
     if (isAuthError(err)) throw err;
     return { error: `This comparison could not be loaded: ${err.message}` };
   }
-  const [chart, trajectory] = await Promise.all([
+  const [chart, trajectory, dataChart] = await Promise.all([
     loadSvg(`${path}/chart.svg${q}`),
     cmp.monitoring && cmp.monitoring.anytimeValid ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve({ svg: null, error: '' }),
+    wantsDataRange(m, cmp) ? loadSvg(`${path}/chart.svg${q ? `${q}&` : '?'}range=data`) : Promise.resolve(null),
   ]);
-  return { cmp, chart, trajectory };
+  return { cmp, chart, trajectory, dataChart };
 }
 
 /** Adjusted p-values across the family (only meaningful with several items or pairs); null when unavailable. */

@@ -209,6 +209,10 @@ export const ChartQuery = z.strictObject({
   a: ComparisonQuery.shape.a,
   b: ComparisonQuery.shape.b,
   includeExcluded,
+  range: z
+    .enum(['scale', 'data'])
+    .default('scale')
+    .describe("scale (default): the axis spans the whole scale; data: the answers' range, marked when it does not start at the scale's minimum"),
 });
 
 export const FamilyQuery = z.strictObject({

@@ -126,7 +126,7 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
     expect(await page.locator('section.measure[data-measure="minutes"] .role-process').textContent()).toBe('Process measure · not part of the adjusted family');
     const adjusted = await page.locator('section.measure[data-measure="acceptance"] .adjusted strong').textContent();
     expect(adjusted).toBe('Adjusted over the 2 outcome comparisons (Holm; process measures are not in the family): ');
-    expect(await page.locator('section.measure[data-measure="minutes"] .adjusted strong').textContent()).toBe(
+    expect(await page.locator('section.measure[data-measure="minutes"] .adjusted-none').textContent()).toBe(
       'A process measure is not part of the adjusted family (outcome measures only).',
     );
   });
@@ -229,6 +229,31 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
     expect((await api(url)).json().groups.b.n).toBe(60);
     expect(problems).toEqual([]);
   }, 90_000);
+
+  it('the chart: a data-range view beside the full scale for an item whose answers use little of it; long labels wrap', async () => {
+    const minutes = page.locator('section.measure[data-measure="minutes"]');
+    await minutes.locator('.chart-distribution-data svg').waitFor({ timeout: 15_000 });
+    expect(await minutes.locator('.chart-distribution svg').count()).toBe(1);
+    const note = (await minutes.locator('.chart-distribution-data svg .zoom-note').allTextContents()).join(' ');
+    // Answers from 4 to 16 minutes: the axis starts above 0, so the note and the break mark say it does not start at the minimum.
+    expect(note).toMatch(/^Zoomed to the answers: the axis runs from \d+ to \d+\. It does not start at the scale's minimum \(0\)\.$/);
+    expect(await minutes.locator('.chart-distribution-data svg .axis-break').count()).toBe(1);
+    // The text alternative says so too.
+    expect(await minutes.locator('.figure-distribution-data .chart-words p').textContent()).toContain('Zoomed to the answers');
+    // The full-scale view's axis runs 0–120; the zoomed one ends at 20 or below (every answer is under 20).
+    const ticks = async (sel: string) => (await minutes.locator(`${sel} svg .tick-label`).evaluateAll((els) => els.map((e) => Number(e.getAttribute('data-value')))));
+    expect((await ticks('.chart-distribution')).at(-1)).toBe(120);
+    expect((await ticks('.chart-distribution-data')).at(-1)).toBeLessThanOrEqual(20);
+    // Answers spread over the whole 0–100 scale get no zoomed view; the long label wraps onto two title lines.
+    const acceptance = page.locator('section.measure[data-measure="acceptance"]');
+    expect(await acceptance.locator('.chart-distribution-data').count()).toBe(0);
+    const titleLines = await acceptance.locator('.chart-distribution svg text.chart-title').allTextContents();
+    expect(titleLines.length).toBe(2);
+    expect(await acceptance.locator('.chart-distribution svg title').textContent()).toBe(`${definition.measures[1].label}: answers by condition`);
+    await minutes.locator('.charts').scrollIntoViewIfNeeded();
+    await page.screenshot({ path: join(OUTPUT, 'workbench-chart.png') });
+    expect(problems).toEqual([]);
+  });
 
   it('at phone width the sensitivity table scrolls inside its region', async () => {
     await page.setViewportSize({ width: 390, height: 844 });

@@ -151,9 +151,9 @@ export class ComparisonService {
     ].join('|');
   }
 
-  chartKey(t: ComparisonTarget, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>): string {
+  chartKey(t: ComparisonTarget, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>, range: 'scale' | 'data' = 'scale'): string {
     const e = t.experiment;
-    return ['svg', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, includeExcluded ? 1 : 0, s.dataVersion].join('|');
+    return ['svg', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, includeExcluded ? 1 : 0, s.dataVersion, ...(range === 'data' ? ['data'] : [])].join('|');
   }
 
   etagOf(key: string): string {
@@ -172,18 +172,19 @@ export class ComparisonService {
   }
 
   /** The distribution chart (SVG) of a target. */
-  async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
+  async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp, range: 'scale' | 'data' = 'scale'): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(t.experiment));
-    const value = await this.cached(this.chartKey(t, includeExcluded, s), async () => {
+    const value = await this.cached(this.chartKey(t, includeExcluded, s, range), async () => {
       const { snapshot, a, b } = await this.readSamples(t, includeExcluded);
       const summary = (x: Sample) => ({ ...describe(x), shapiroWilk: null });
       const svg = renderDistributionChart({
         measureLabel: t.measure.label,
         scale: { min: t.measure.min, max: t.measure.max, integer: t.measure.integer },
         groups: [distributionGroupFromSample(t.a.label, a, summary(a)), distributionGroupFromSample(t.b.label, b, summary(b))],
-        id: `chart-${t.measure.id}`,
+        id: `chart-${t.measure.id}${range === 'data' ? '-data' : ''}`,
+        range,
       });
-      return { kind: 'chart', key: this.chartKey(t, includeExcluded, snapshot), svg };
+      return { kind: 'chart', key: this.chartKey(t, includeExcluded, snapshot, range), svg };
     });
     if (value.kind !== 'chart') throw new Error('cache entry of the wrong kind');
     return { svg: value.svg, etag: tagOf(value.key) };
