@@ -641,7 +641,7 @@ function renderMeasure(m, result) {
       'div',
       { class: 'charts' },
       chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
-      result.dataChart ? chartFigure('distribution-data', "Zoomed to the answers' range (the axis does not start at the scale's minimum)", result.dataChart) : null,
+      result.dataChart ? chartFigure('distribution-data', "Zoomed to the answers' range: the axis does not span the whole scale", result.dataChart) : null,
     ),
     h(
       'div',

@@ -12,14 +12,18 @@ export function isoTime(iso) {
   return Number.isNaN(d.getTime()) ? iso : d.toISOString().replace(/\.\d{3}Z$/, 'Z');
 }
 
-/** True when the answers use less than 60 % of the scale: then the page adds the chart zoomed to their range. */
+/**
+ * True when the answers use less than half of the scale: then the page adds the chart zoomed to their range. A short
+ * whole-number scale (11 points or fewer) keeps the full view only: each of its points is readable anyway.
+ */
 export function wantsDataRange(m, cmp) {
   const g = cmp && cmp.groups;
   if (!g || typeof m.min !== 'number' || typeof m.max !== 'number' || !(m.max > m.min)) return false;
+  if (m.integer && m.max - m.min + 1 <= 11) return false;
   const lows = [g.a && g.a.min, g.b && g.b.min].filter((v) => typeof v === 'number');
   const highs = [g.a && g.a.max, g.b && g.b.max].filter((v) => typeof v === 'number');
   if (lows.length === 0 || highs.length === 0) return false;
-  return (Math.max(...highs) - Math.min(...lows)) / (m.max - m.min) < 0.6;
+  return (Math.max(...highs) - Math.min(...lows)) / (m.max - m.min) < 0.5;
 }
 
 /** The measures with the primary outcome first (the others keep their definition order). */
