@@ -14,6 +14,9 @@ const FLAG_NAMES = { outliers: 'Far from the rest', influential_point: 'Decides 
 /** Answers excluded from this page in this tab, per measure: responseId → the row as it was listed. */
 const excludedHere = new Map();
 
+/** The confirmation form that is open (at most one), kept across the live refreshes that redraw the page. */
+let openForm = null; // { measureId, responseId, reason }
+
 function rowsFor(measureId, cmp) {
   const listed = cmp.flaggedAnswers && Array.isArray(cmp.flaggedAnswers.answers) ? cmp.flaggedAnswers.answers : [];
   const mine = excludedHere.get(measureId) || new Map();
@@ -35,8 +38,16 @@ export function answersBlock(ctx, measureId, cmp) {
     const excluded = a.excluded || (excludedHere.get(measureId) || new Map()).has(a.responseId);
     const action = h('td', { class: 'answer-action' });
     const start = h('button', { type: 'button', class: 'button-quiet', 'data-action': excluded ? 'restore' : 'exclude', 'data-response': a.responseId, text: excluded ? 'Restore…' : 'Exclude…' });
-    start.addEventListener('click', () => action.replaceChildren(confirmForm(ctx, measureId, a, excluded, status, () => action.replaceChildren(start))));
-    action.append(start);
+    const cancel = () => {
+      openForm = null;
+      action.replaceChildren(start);
+    };
+    start.addEventListener('click', () => {
+      openForm = { measureId, responseId: a.responseId, reason: '' };
+      action.replaceChildren(confirmForm(ctx, measureId, a, excluded, status, cancel));
+    });
+    if (openForm && openForm.measureId === measureId && openForm.responseId === a.responseId) action.append(confirmForm(ctx, measureId, a, excluded, status, cancel));
+    else action.append(start);
     return h(
       'tr',
       { 'data-response': a.responseId, class: excluded ? 'is-excluded' : '' },
@@ -75,6 +86,12 @@ function confirmForm(ctx, measureId, answer, excluded, status, cancel) {
   const form = h('form', { class: 'answer-confirm', novalidate: true });
   const reasonId = `reason-${measureId}-${answer.responseId}`.replace(/[^A-Za-z0-9_-]/g, '-');
   const reason = excluded ? null : h('input', { id: reasonId, name: 'reason', type: 'text', required: true, maxlength: '500', autocomplete: 'off' });
+  if (reason && openForm && openForm.responseId === answer.responseId) {
+    reason.value = openForm.reason || '';
+    reason.addEventListener('input', () => {
+      if (openForm && openForm.responseId === answer.responseId) openForm.reason = reason.value;
+    });
+  }
   const confirm = h('button', { type: 'submit', 'data-confirm': excluded ? 'restore' : 'exclude', text: excluded ? 'Confirm restore' : 'Confirm exclusion' });
   const back = h('button', { type: 'button', class: 'button-quiet', text: 'Cancel' });
   back.addEventListener('click', cancel);
@@ -106,9 +123,11 @@ function confirmForm(ctx, measureId, answer, excluded, status, cancel) {
           /* not JSON */
         }
         status.textContent = res.status === 403 ? 'Excluding or restoring needs an admin key.' : `Not changed: ${detail}`;
+        if (res.status === 401 || res.status === 403) openForm = null; // another key is needed: start again with it
         confirm.disabled = false;
         return;
       }
+      openForm = null;
       const mine = excludedHere.get(measureId) || new Map();
       if (excluded) mine.delete(answer.responseId);
       else mine.set(answer.responseId, { ...answer, excluded: true });

@@ -215,6 +215,11 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
     await row().locator('button[data-confirm="exclude"]').click();
     await page.locator('section.measure[data-measure="acceptance"] .answers-status').filter({ hasText: 'Please say why' }).waitFor({ timeout: 5_000 });
     await row().locator('input[name="reason"]').fill('speeded through the page (under 20 seconds)');
+    // A live refresh while the form is open (an answer arrives in the other condition) keeps the form and its reason.
+    const version = (await api(`/v1/experiments/${STUDY}`)).json().dataVersion as number;
+    expect((await t.request({ method: 'POST', url: `/v1/experiments/${STUDY}/responses`, payload: { responseId: 'live-plain', condition: 'plain', values: { trust: 4, acceptance: 41, minutes: 6 } } })).statusCode).toBe(201);
+    await page.locator('section.measure[data-measure="acceptance"] [data-field="dataVersion"]').filter({ hasText: String(version + 1) }).waitFor({ timeout: 15_000 });
+    expect(await row().locator('input[name="reason"]').inputValue()).toBe('speeded through the page (under 20 seconds)');
     await row().locator('button[data-confirm="exclude"]').click();
     await page.locator('section.measure[data-measure="acceptance"] [data-field="groups.b.n"]').first().filter({ hasText: /^59$/ }).waitFor({ timeout: 15_000 });
     await row().filter({ hasText: 'excluded' }).waitFor({ timeout: 10_000 });
