@@ -24,6 +24,11 @@
  *   influential_point  removing one answer (each group's minimum or maximum) moves Welch p across alpha;
  *                      mean and variance are updated in O(1) (Welford downdate)                 — service rule (a leave-one-out check, cf. Cook 1977)
  *   heavy_ties         more than half of all answers share their value with another answer      — common practice, no source
+ *                      AND the ties matter: they change the rank-sum method (both groups under 50, where untied data
+ *                      would get the exact test, yet the normal approximation was used), or they make the intervals
+ *                      coarse (at most COARSE_DISTINCT_VALUES distinct values pooled, or the Hodges–Lehmann interval's
+ *                      achieved level more than 0.01 from the level asked for). Ties on a whole-number scale are
+ *                      expected and, alone, not worth a note — service rule
  *   floor_ceiling      more than 15 % of a group's answers at the scale minimum or maximum      — Terwee et al. (2007) doi:10.1016/j.jclinepi.2006.03.012
  *   interim            a planned size exists and a group has fewer answers than planned         — Armitage, McPherson & Rowe (1969): nominal p is no stopping rule
  *   excluded           excluded responses were left out                                        — service bookkeeping
@@ -392,6 +397,9 @@ function testsDisagreeFlag(cmp: Comparison, ctx: FlagContext, raised: Flag[]): F
   };
 }
 
+/** Pooled distinct values up to which tied data make the rank-based estimate and intervals coarse (see the header). */
+export const COARSE_DISTINCT_VALUES = 11;
+
 function heavyTiesFlag(cmp: Comparison, groups: GroupView[], t: FlagThresholds): Flag | null {
   // Pool both groups' values (merge of two sorted distinct lists) and count answers in tie groups.
   const a = groups[0].sample;
@@ -414,13 +422,20 @@ function heavyTiesFlag(cmp: Comparison, groups: GroupView[], t: FlagThresholds):
   if (!(fraction > t.tieFraction)) return null;
   const exact = cmp.mannWhitney.method === 'exact';
   const achieved = cmp.hodgesLehmann.ci.achievedLevel;
+  const methodChanged = !exact && a.n < 50 && b.n < 50;
+  const coarse = distinct <= COARSE_DISTINCT_VALUES || (achieved !== null && Math.abs(achieved - cmp.hodgesLehmann.ci.level) > 0.01);
+  if (!methodChanged && !coarse) return null;
   return {
     code: 'heavy_ties',
     severity: 'info',
     message: `${Math.round(fraction * 100)} % of answers share their value with another answer (${distinct} distinct values). ${
-      exact ? 'The rank-sum p-value comes from the exact distribution given these ties' : 'The rank-sum test uses the normal approximation with a tie correction'
-    }, and the Hodges–Lehmann interval sits on a lattice of possible differences${achieved !== null ? ` (its actual confidence level is ${(achieved * 100).toFixed(1)} %)` : ''}.`,
-    detail: { tieFraction: fraction, distinctValues: distinct, rankSumMethod: cmp.mannWhitney.method, achievedLevel: achieved, threshold: t.tieFraction },
+      methodChanged
+        ? 'Because of the ties the rank-sum test uses the normal approximation with a tie correction where untied groups this small would get the exact test'
+        : exact
+          ? 'The rank-sum p-value comes from the exact distribution given these ties'
+          : 'The rank-sum test uses the normal approximation with a tie correction'
+    }${coarse ? `, and the Hodges–Lehmann shift and its interval can take only a few values${achieved !== null ? ` (the interval's actual confidence level is ${(achieved * 100).toFixed(1)} %)` : ''}` : ''}.`,
+    detail: { tieFraction: fraction, distinctValues: distinct, rankSumMethod: cmp.mannWhitney.method, achievedLevel: achieved, threshold: t.tieFraction, methodChanged, coarse },
   };
 }
 

@@ -30,6 +30,8 @@
  *   weightedFromPairs / weightedFromSums / weightedFromIntegerSums   build a WeightedSample (per value: count, Σw, Σw²)
  *   compareWeighted(wa, wb, options)       weighted summaries, design-based t test, Lumley–Scott rank test   O(K)
  *   weightFlags(weighted, unweighted, ctx) unequal_weights, dominant_weight, weighting_changes_conclusion    O(1)
+ * Sensitivity view (block `sensitivity`; sensitivity.ts):
+ *   sensitivity(cmp, { a, b }, options)   both tests without far-out answers, winsorised, without the most influential answer
  * Covariate adjustment (block `adjusted`; covariate-adjustment.ts):
  *   covariateAdjusted({ outcome, inA, covariates }, options)   Lin (2013) with HC2, beside the unadjusted   O(n·p²)
  */
@@ -293,3 +295,11 @@ export function compareConditionCounts(counts: readonly ArrayLike<number>[], opt
   const { min = 0, ...rest } = options;
   return compareConditionSamples(counts.map((c, i) => fromCounts(c, min, `counts[${i}]`)), rest);
 }
+export {
+  sensitivity,
+  type Sensitivity,
+  type SensitivityOptions,
+  type SensitivityResult,
+  type SensitivityScenario,
+  type SensitivityScenarioCode,
+} from './sensitivity.js';

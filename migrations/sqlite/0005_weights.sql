@@ -9,7 +9,8 @@
 --                            values). When weighted_count is 0 both sums are 0. Ingest adds to the sums; exclusion,
 --                            restoration and erasure recompute the sums of the rows they touch from response rows
 --                            (subtracting a large weight from a running sum would leave a rounding residue).
---  measures.role             'outcome' (default) or 'covariate' (asked before the treatment; used for adjustment).
+--  measures.role             'outcome' (default), 'covariate' (asked before the treatment; used for adjustment) or
+--                            'process' (time spent, device type: compared, never in the adjusted family).
 --  rejected_weight_counts    weights refused at ingest, per experiment and reason (like rejected_value_counts).
 --
 -- Converting an existing database: every stored response had no weight (NULL), so every existing value_counts row
@@ -22,7 +23,7 @@ ALTER TABLE value_counts ADD COLUMN weighted_count INTEGER NOT NULL DEFAULT 0 CH
 ALTER TABLE value_counts ADD COLUMN weight_sum REAL NOT NULL DEFAULT 0 CHECK (weight_sum >= 0);
 ALTER TABLE value_counts ADD COLUMN weight_square_sum REAL NOT NULL DEFAULT 0 CHECK (weight_square_sum >= 0);
 
-ALTER TABLE measures ADD COLUMN role TEXT NOT NULL DEFAULT 'outcome' CHECK (role IN ('outcome', 'covariate'));
+ALTER TABLE measures ADD COLUMN role TEXT NOT NULL DEFAULT 'outcome' CHECK (role IN ('outcome', 'covariate', 'process'));
 
 CREATE TABLE rejected_weight_counts (
   experiment_id INTEGER NOT NULL REFERENCES experiments (id) ON DELETE CASCADE,

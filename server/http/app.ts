@@ -53,6 +53,7 @@ import { responseRoutes } from './routes/responses.js';
 import { resultsPageRoutes } from './routes/results-page.js';
 import { clientScriptRoutes } from './routes/client-script.js';
 import { formDefinitionRoutes } from './routes/form-definition.js';
+import { overviewRoutes } from './routes/overview.js';
 import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
 
@@ -193,6 +194,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(resultsPageRoutes, { store });
   app.register(clientScriptRoutes);
   app.register(formDefinitionRoutes, { store });
+  app.register(overviewRoutes, { store, comparisons });
   app.register(adminRoutes, {
     store,
     backupDir: backupDirOf(config),

@@ -21,6 +21,9 @@ export const PAGE_ASSETS: Readonly<Record<string, string>> = Object.freeze({
   'format.js': 'text/javascript; charset=utf-8',
   'sse.js': 'text/javascript; charset=utf-8',
   'groups.js': 'text/javascript; charset=utf-8',
+  'workbench.js': 'text/javascript; charset=utf-8',
+  'answers.js': 'text/javascript; charset=utf-8',
+  'overview.js': 'text/javascript; charset=utf-8',
   'results.css': 'text/css; charset=utf-8',
   'icon.svg': 'image/svg+xml',
 });

@@ -11,7 +11,7 @@ import type { FastifyError, FastifyInstance, FastifyReply, FastifyRequest } from
 import { API_CSP } from './security-headers.js';
 import type { Problem } from '../schemas/common.js';
 import { PROBLEM_TYPES, ProblemError, problemType, RequestValidationError, type ProblemName } from '../errors.js';
-import { errorPage, HTML_CSP } from '../views/html.js';
+import { errorPage, HTML_CSP, type RespondentLabels } from '../views/html.js';
 import { isFormContentType, prefersHtml } from './negotiate.js';
 
 /** Fastify's own 4xx errors whose messages are safe to show. */
@@ -81,12 +81,20 @@ export function sendProblem(request: FastifyRequest, reply: FastifyReply, proble
   for (const [k, v] of Object.entries(headers)) reply.header(k, v);
   if (wantsHtmlPage(request)) {
     reply.header('content-security-policy', HTML_CSP);
-    return reply.type('text/html; charset=utf-8').send(errorPage(problem));
+    return reply.type('text/html; charset=utf-8').send(errorPage(problem, request.respondentLabels ?? undefined));
   }
   return reply.type('application/problem+json').send(problem);
 }
 
+declare module 'fastify' {
+  interface FastifyRequest {
+    /** Set by a form-post route once its experiment is known: the error page then names questions by their labels. */
+    respondentLabels: RespondentLabels | null;
+  }
+}
+
 export function registerProblemHandlers(app: FastifyInstance): void {
+  app.decorateRequest('respondentLabels', null);
   app.setErrorHandler((err, request, reply) => {
     const { problem, headers, serverError } = toProblem(err, request.id);
     if (serverError) request.log.error({ err }, 'request failed');

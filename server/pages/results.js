@@ -24,6 +24,8 @@ import {
 } from './format.js';
 import { dataVersionOf, readEventStream } from './sse.js';
 import { equivalenceBlock, omnibusBlock } from './groups.js';
+import { answersBlock } from './answers.js';
+import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensitivityBlock, wantsDataRange } from './workbench.js';
 
 const KEY_STORAGE = 'splitballot.readKey';
 const REFRESH_DEBOUNCE_MS = 400;
@@ -46,6 +48,7 @@ const state = {
   live: null, // AbortController of the event-stream loop
   generation: 0, // bumps on every key change so stale responses are ignored
   familySize: 0, // comparisons in the adjusted family (0 when not loaded)
+  familyInfo: null, // the family's adjustedFamily block (which comparisons were adjusted together)
 };
 
 // ---------------------------------------------------------------------------------------------------------
@@ -527,8 +530,7 @@ function flagList(cmp) {
 
 function formatWhen(iso) {
   if (typeof iso !== 'string') return MISSING;
-  const d = new Date(iso);
-  return Number.isNaN(d.getTime()) ? iso : d.toLocaleString();
+  return isoTime(iso);
 }
 
 function interimBlock(mid, cmp, trajectory) {
@@ -603,10 +605,11 @@ function adjustedLine(mid, entry) {
   const adj = entry.adjusted;
   const method = adj.method === 'bh' ? 'Benjamini–Hochberg' : adj.method === 'holm' ? 'Holm' : String(adj.method || 'adjusted');
   const attrs = { 'data-source': 'family' };
+  if (adj.welchP === null && adj.mannWhitneyP === null && adj.reason) return h('p', { class: 'adjusted adjusted-none', text: adj.reason });
   return h(
     'p',
     { class: 'adjusted' },
-    h('strong', { text: `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
+    h('strong', { text: adjustedHeading(entry, state.familyInfo) || `Adjusted for all ${state.familySize} comparisons (${method}): ` }),
     "Welch ", h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.welchP', 'p', adj.welchP, attrs)),
     ', rank-sum ', h('em', { text: 'p' }), ...pIs(num(mid, 'adjusted.mannWhitneyP', 'p', adj.mannWhitneyP, attrs)),
   );
@@ -623,6 +626,7 @@ function renderMeasure(m, result) {
       { class: 'measure-head' },
       h('h2', { id: headingId, text: m.label || m.id }),
       h('p', { class: 'scale' }, `Scale ${scaleText(scale)}`, m.required === false ? ' · optional item' : ''),
+      roleNote(h, state.definition || {}, m),
     ),
   );
   if (result.error) {
@@ -634,7 +638,12 @@ function renderMeasure(m, result) {
   const body = h(
     'div',
     { class: 'measure-body' },
-    chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
+    h(
+      'div',
+      { class: 'charts' },
+      chartFigure('distribution', `Answers by condition: box, median, mean and every answer`, result.chart),
+      result.dataChart ? chartFigure('distribution-data', "Zoomed to the answers' range: the axis does not span the whole scale", result.dataChart) : null,
+    ),
     h(
       'div',
       { class: 'numbers' },
@@ -656,7 +665,9 @@ function renderMeasure(m, result) {
   if (reasons.length > 0) {
     section.append(h('div', { class: 'reasons' }, h('h4', { text: 'Why some numbers are missing' }), h('ul', {}, ...reasons.map((r) => h('li', { text: r })))));
   }
-  section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp)));
+  const answersCtx = { h, studyId: state.id, key: () => state.key, conditionLabel, onChanged: refreshNow };
+  section.append(h('section', { class: 'flags-block' }, h('h3', { text: 'Points to keep in mind' }), flagList(cmp), answersBlock(answersCtx, mid, cmp)));
+  section.append(sensitivityBlock(h, (field, kind, value) => num(mid, field, kind, value), cmp));
   section.append(interimBlock(mid, cmp, result.trajectory));
   section.append(
     h(
@@ -818,12 +829,13 @@ async function loadMeasure(m) {
     if (isAuthError(err)) throw err;
     return { error: `This comparison could not be loaded: ${err.message}` };
   }
-  const [chart, trajectory, omnibus] = await Promise.all([
+  const [chart, trajectory, omnibus, dataChart] = await Promise.all([
     loadSvg(`${path}/chart.svg${q}`),
     cmp.monitoring && cmp.monitoring.anytimeValid ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve({ svg: null, error: '' }),
     loadOmnibus(path),
+    wantsDataRange(m, cmp) ? loadSvg(`${path}/chart.svg${q ? `${q}&` : '?'}range=data`) : Promise.resolve(null),
   ]);
-  return { cmp, chart, trajectory, ...omnibus };
+  return { cmp, chart, trajectory, dataChart, ...omnibus };
 }
 
 /** The helpers the omnibus and equivalence blocks (groups.js) build with. */
@@ -849,6 +861,7 @@ async function loadFamily(def) {
   try {
     // With more than two conditions the family is every pair (the route takes no a/b; the entry of the chosen pair is picked below).
     const body = await (await api(`${base()}/comparisons?pairs=${state.pair ? 'all' : 'first'}&adjust=holm`)).json();
+    state.familyInfo = body && body.adjustedFamily ? body.adjustedFamily : null;
     const entries = Array.isArray(body) ? body : body.comparisons || body.items || body.results || [];
     return Array.isArray(entries) ? entries : null;
   } catch (err) {
@@ -872,7 +885,7 @@ async function refresh() {
     if (generation !== state.generation) return;
     state.definition = def;
     renderPairPicker(def);
-    const measures = outcomeMeasures(def);
+    const measures = primaryFirst(outcomeMeasures(def));
     const [results, family] = await Promise.all([Promise.all(measures.map(loadMeasure)), loadFamily(def)]);
     if (generation !== state.generation) return;
     const versions = results.map((r) => (r.cmp && typeof r.cmp.dataVersion === 'number' ? r.cmp.dataVersion : null)).filter((v) => v !== null);
@@ -882,6 +895,7 @@ async function refresh() {
 
     $('key-panel').hidden = true;
     $('toolbar').hidden = false;
+    if (!$('downloads')) $('toolbar').after(downloadsBlock(h, state.id, base(), api));
     renderHeader(def);
     renderProgress(def);
     // Keep keyboard focus where it was when a live refresh swaps the numbers.

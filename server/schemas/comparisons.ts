@@ -8,6 +8,8 @@ import { z } from 'zod';
 import { MonitoringSchema } from './monitoring.js';
 import { EquivalenceSchema, MarginQuery } from './equivalence.js';
 import { AdjustedBlockSchema, WeightedBlockSchema } from './weighted.js';
+import { FlaggedAnswersSchema, SensitivitySchema } from './sensitivity.js';
+import { MeasureRoleSchema } from './experiments.js';
 
 const num = z.number();
 const nullableNum = z.number().nullable();
@@ -145,6 +147,8 @@ const comparisonShape = {
     "Two one-sided tests against the equivalence margin (?margin=, else the measure's equivalenceMargin); null when no margin is known",
   ),
   weighted: WeightedBlockSchema.nullable().describe('The comparison with survey weights (experiments with weights); null otherwise'),
+  sensitivity: SensitivitySchema.nullable().describe('Both tests without the far-out answers, winsorised, and without the most influential answer'),
+  flaggedAnswers: FlaggedAnswersSchema.nullable().describe('The answers behind the outlier and influential-answer flags (null: neither flag is raised)'),
 };
 
 export const ComparisonSchema = z.object({
@@ -160,10 +164,18 @@ export const AdjustedSchema = z
     welchP: nullableNum.describe('Welch p adjusted across the whole family'),
     mannWhitneyP: nullableNum.describe('Rank-sum p adjusted across the whole family'),
     method: z.enum(['holm', 'bh', 'none']),
+    reason: z.string().optional().describe('Why the adjusted p-values are null (e.g. a process measure, outside the family)'),
   })
   .meta({ id: 'AdjustedP' });
 
-export const FamilyEntrySchema = z.object({ ...comparisonShape, adjusted: AdjustedSchema }).meta({ id: 'FamilyComparison' });
+export const FamilyEntrySchema = z
+  .object({
+    ...comparisonShape,
+    role: MeasureRoleSchema.describe("The measure's role; only outcome measures are in the adjusted family"),
+    primary: z.boolean().describe('The primary outcome'),
+    adjusted: AdjustedSchema,
+  })
+  .meta({ id: 'FamilyComparison' });
 
 export const FamilySchema = z
   .object({
@@ -171,6 +183,14 @@ export const FamilySchema = z
     dataVersion: z.number().int().describe('The data version every entry belongs to (see the README when they differ)'),
     adjust: z.enum(['holm', 'bh', 'none']),
     pairs: z.enum(['first', 'all']),
+    adjustedFamily: z
+      .object({
+        roles: z.array(z.enum(['outcome'])).describe('Roles whose comparisons form the adjusted family'),
+        measures: z.array(z.string()).describe('Measures in the adjusted family'),
+        size: z.number().int().describe('Comparisons adjusted together'),
+        description: z.string().describe('Which family was adjusted, in words'),
+      })
+      .describe('Which comparisons the adjustment covered (outcome measures only)'),
     comparisons: z.array(FamilyEntrySchema),
   })
   .meta({ id: 'ComparisonFamily' });
@@ -208,6 +228,10 @@ export const ChartQuery = z.strictObject({
   a: ComparisonQuery.shape.a,
   b: ComparisonQuery.shape.b,
   includeExcluded,
+  range: z
+    .enum(['scale', 'data'])
+    .default('scale')
+    .describe("scale (default): the axis spans the whole scale; data: the answers' range, marked when it does not start at the scale's minimum"),
 });
 
 export const FamilyQuery = z.strictObject({

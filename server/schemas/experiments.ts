@@ -30,6 +30,15 @@ const EquivalenceMarginInput = z
     "The smallest difference between conditions that matters, in the item's units (e.g. 0.5 on a 0–10 scale): positive and " +
       'smaller than max − min. Choose it before seeing the data. When set, every pairwise comparison carries equivalence tests.',
   );
+/** What a measure is for: an outcome compared between conditions (the adjusted family), a covariate asked before the
+ * treatment (used to adjust comparisons), or a process measure (time spent, device type, …: compared, never adjusted). */
+export const MeasureRoleSchema = z
+  .enum(['outcome', 'covariate', 'process'])
+  .describe(
+    '"outcome" (default): compared and in the adjusted family; "covariate": asked before the treatment, used to adjust ' +
+      'comparisons (?covariates=), not compared unless asked; "process" (time spent, device type, …): compared but never ' +
+      'adjusted with the outcomes. Fixed when the experiment is created.',
+  );
 
 const MeasureInput = z
   .strictObject({
@@ -42,10 +51,8 @@ const MeasureInput = z
     integer: z.boolean().default(false).describe('Whole numbers only (default false)'),
     required: z.boolean().default(true).describe('Every response must answer it (default true)'),
     equivalenceMargin: EquivalenceMarginInput.optional(),
-    role: z
-      .enum(['outcome', 'covariate'])
-      .default('outcome')
-      .describe('"covariate": asked before the treatment, used to adjust comparisons (?covariates=); default "outcome"'),
+    role: MeasureRoleSchema.default('outcome'),
+    primary: z.boolean().default(false).describe('The primary outcome (at most one per experiment; shown first)'),
   })
   .superRefine((m, ctx) => {
     if (!(m.min < m.max)) ctx.addIssue({ code: 'custom', path: ['max'], message: `must be greater than min (${m.min})` });
@@ -63,6 +70,17 @@ function uniqueIds(items: { id: string }[], ctx: z.RefinementCtx, what: string):
   items.forEach((item, i) => {
     if (seen.has(item.id)) ctx.addIssue({ code: 'custom', path: [i, 'id'], message: `repeats the ${what} id "${item.id}"` });
     seen.add(item.id);
+  });
+}
+
+/** At most one primary measure, and it must be an outcome. */
+function checkPrimary(items: { role?: string; primary?: boolean }[], ctx: z.RefinementCtx): void {
+  let seen = -1;
+  items.forEach((m, i) => {
+    if (m.primary !== true) return;
+    if (seen >= 0) ctx.addIssue({ code: 'custom', path: [i, 'primary'], message: `only one measure can be primary (measures[${seen}] already is)` });
+    else seen = i;
+    if (m.role !== undefined && m.role !== 'outcome') ctx.addIssue({ code: 'custom', path: [i, 'primary'], message: 'a primary measure must have the role "outcome"' });
   });
 }
 
@@ -137,7 +155,10 @@ export const ExperimentInputSchema = z
       .array(MeasureInput)
       .min(1, 'needs at least one measure')
       .max(500)
-      .superRefine((a, ctx) => uniqueIds(a, ctx, 'measure')),
+      .superRefine((a, ctx) => {
+        uniqueIds(a, ctx, 'measure');
+        checkPrimary(a, ctx);
+      }),
     plannedPerCondition: z.number().int().min(1).max(1_000_000_000).nullable().optional().describe('Planned responses per condition'),
     alpha: z.number().gt(0).max(0.5).default(0.05).describe('Significance level for comparisons (default 0.05)'),
     thankYouUrl: HttpUrl.nullable().optional().describe('Where a browser is sent after a successful form post'),
@@ -168,9 +189,11 @@ export const ExperimentPatchSchema = z
           integer: z.boolean().optional(),
           required: z.boolean().optional(),
           equivalenceMargin: EquivalenceMarginInput.nullable().optional().describe('New equivalence margin; null removes it'),
+          primary: z.boolean().optional().describe('true: this becomes the primary outcome; false on the primary one: none is'),
         }),
       )
       .max(500)
+      .superRefine(checkPrimary)
       .optional()
       .describe("Changes to existing measures; min, max and integer cannot change once the measure has values"),
     flagThresholds: FlagThresholdsSchema.nullable().optional().describe('Replaces the flag thresholds; null restores the defaults'),
@@ -199,9 +222,21 @@ export const ExperimentSchema = z
         integer: z.boolean(),
         required: z.boolean(),
         equivalenceMargin: z.number().nullable().describe('The declared equivalence margin (item units), or null'),
-        role: z.enum(['outcome', 'covariate']),
+        role: MeasureRoleSchema,
+        primary: z.boolean().describe('The primary outcome'),
       }),
     ),
+    primaryChanges: z
+      .array(
+        z.object({
+          from: z.string().nullable(),
+          to: z.string().nullable(),
+          at: z.string().describe('ISO 8601 time of the change'),
+          dataVersion: z.number().int().describe('The data version when the primary outcome changed (> 0: after data collection began)'),
+          apiKeyId: z.number().int().nullable().describe('The key that made the change'),
+        }),
+      )
+      .describe('Changes of the primary outcome made after answers existed (oldest first)'),
     plannedPerCondition: z.number().int().nullable(),
     alpha: z.number(),
     thankYouUrl: z.string().nullable(),

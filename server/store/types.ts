@@ -31,7 +31,7 @@ export type WeightRejectionReason = 'out_of_range' | 'not_a_number' | 'not_finit
 export type WeightsPolicy = 'none' | 'optional' | 'required';
 
 /** A measure asked before the treatment (`covariate`, for adjusted comparisons) or an outcome of it (default). */
-export type MeasureRole = 'outcome' | 'covariate';
+export type MeasureRole = 'outcome' | 'covariate' | 'process';
 
 export interface ConditionRecord {
   key: number;
@@ -291,6 +291,14 @@ export interface AuditEntry {
   redacted: boolean;
 }
 
+/** One stored answer behind a quality flag (see ResponseRepository.getAnswersWithValues). */
+export interface AnswerWithValue {
+  responseId: string;
+  value: number;
+  receivedAt: string;
+  excluded: boolean;
+}
+
 export interface AuditRepository {
   /** Newest first, at most `limit` (default 1,000). */
   list(experimentKey: number, limit?: number): Promise<AuditEntry[]>;
@@ -369,6 +377,13 @@ export interface ResponseRepository {
   /** Rows for a covariate-adjusted comparison of `outcomeKey` between two conditions (see AdjustmentRows). O(n·k). */
   getAdjustmentRows(outcomeKey: number, covariateKeys: number[], conditionKeys: [number, number], includeExcluded: boolean): Promise<AdjustmentRows>;
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null>;
+  /**
+   * The answers of one measure in one condition equal to one of `values` (the answers behind a quality flag), oldest
+   * arrival first, at most `limit` in all. Optional: an engine without it gives the comparison no answer list.
+   */
+  /** Responses of an experiment received at or after each ISO time (the team overview's "today" / "this week"). Optional. */
+  countReceivedSince?(experimentKey: number, since: readonly string[]): Promise<number[]>;
+  getAnswersWithValues?(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]>;
   /**
    * Per-value counts of an integer measure in one condition: element k counts answers equal to min + k, for
    * k = 0 … max − min. Throws RangeError for a continuous measure or a scale wider than 1,000,001 values.

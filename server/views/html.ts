@@ -51,8 +51,26 @@ export interface HtmlProblem {
   errors?: { path: string; message: string }[];
 }
 
-/** A page a respondent can read: what went wrong and what to do, never raw JSON or internals. */
-export function errorPage(problem: HtmlProblem): string {
+/** The labels a respondent saw on the form, to name measures and conditions on the error page instead of their ids. */
+export interface RespondentLabels {
+  measures: Record<string, string>;
+  conditions: Record<string, string>;
+}
+
+/** Replace known ids in a validation message by their labels (a quoted id or one in a parenthesised list). */
+function withLabels(message: string, labels: RespondentLabels | undefined): string {
+  if (!labels) return message;
+  return message.replace(/\(conditions: ([^)]*)\)/, (_, list: string) => {
+    const named = list.split(/,\s*/).map((id) => labels.conditions[id.trim()] ?? id.trim());
+    return `(the survey's versions: ${named.join('; ')})`;
+  });
+}
+
+/**
+ * A page a respondent can read: what went wrong and what to do, never raw JSON or internals. With `labels` (the
+ * experiment's measure and condition labels) the listed problems name the questions as the form showed them.
+ */
+export function errorPage(problem: HtmlProblem, labels?: RespondentLabels): string {
   const slug = problem.type.split(':').pop() ?? '';
   let title: string;
   let advice: string;
@@ -86,8 +104,9 @@ export function errorPage(problem: HtmlProblem): string {
     const items = problem.errors
       .slice(0, 50)
       .map((e) => {
-        const field = e.path.replace(/^values\./, '');
-        return `<li><strong>${escapeHtml(field)}</strong>: ${escapeHtml(e.message)}</li>`;
+        const id = e.path.replace(/^values\./, '');
+        const field = labels ? (e.path === 'condition' ? 'Questionnaire version' : (labels.measures[id] ?? id)) : id;
+        return `<li><strong>${escapeHtml(field)}</strong>: ${escapeHtml(withLabels(e.message, labels))}</li>`;
       })
       .join('');
     list = `<ul>${items}</ul>`;

@@ -40,7 +40,7 @@ describe('results page files', () => {
     expect(refs.sort()).toEqual(['/pages/icon.svg', '/pages/results.css', '/pages/results.js']);
     for (const r of refs) expect(existsSync(join(dir, r.replace('/pages/', ''))), r).toBe(true);
     const imports = [...js.matchAll(/from\s+'([^']+)'/g)].map((m) => m[1]);
-    expect(imports.sort()).toEqual(['./format.js', './groups.js', './sse.js']);
+    expect(imports.sort()).toEqual(['./answers.js', './format.js', './groups.js', './sse.js', './workbench.js']);
     for (const i of imports) expect(existsSync(join(dir, i))).toBe(true);
   });
 

@@ -47,6 +47,8 @@ const ACCESS: Record<string, Entry> = {
   'GET /readyz': { scopes: 'public' },
   'GET /thank-you': { scopes: 'public' },
   'GET /experiments/:id': { scopes: 'public' },
+  'GET /': { scopes: 'public' },
+  'GET /v1/overview': { scopes: ['admin', 'read'], limited: 'allowed' },
   'GET /pages/:name': { scopes: 'public', path: '/pages/results.css' },
   'GET /openapi.json': { scopes: 'public' },
   'GET /client/v1/:file': { scopes: 'public', path: '/client/v1/collect.js' },

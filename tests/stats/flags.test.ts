@@ -118,6 +118,24 @@ describe('quality flags', () => {
     expect(flags[1].detail.tieFraction).toBe(199 / 200); // the single answer 3 is the only one without a twin
   });
 
+  it('heavy_ties only where ties matter: not for 21 distinct values on a 0–100 scale with 60 answers per group', () => {
+    // Invented 0–100 answers, three at each whole number 40…60 in a and 45…65 in b (63 per group): every answer is
+    // tied, as on any whole-number scale, but the rank-sum method is what it would be without ties (n ≥ 50) and the
+    // interval is not coarse (26 distinct values pooled).
+    const counts = (shift: number) => Array.from({ length: 101 }, (_, v) => (v >= 40 + shift && v <= 60 + shift ? 3 : 0));
+    const a = fromCounts(counts(0), 0);
+    const b = fromCounts(counts(5), 0);
+    const wide = { ...ratingScale, scale: { min: 0, max: 100, integer: true } };
+    const { cmp, flags } = flagsOf(a, b, wide);
+    expect(cmp.mannWhitney.method).toBe('normal');
+    expect(codes(flags).includes('heavy_ties')).toBe(false);
+    // The same tie structure with only 3 distinct values (coarse) keeps the note.
+    const few = (shift: number) => Array.from({ length: 101 }, (_, v) => (v === 50 + shift || v === 55 + shift || v === 60 + shift ? 20 : 0));
+    const coarse = flagsOf(fromCounts(few(0), 0), fromCounts(few(5), 0), wide);
+    const ties = coarse.flags.find((f) => f.code === 'heavy_ties');
+    expect(ties?.detail).toMatchObject({ distinctValues: 4, coarse: true, methodChanged: false });
+  });
+
   it('floor_ceiling is absent at 5 % on the bound', () => {
     const a = fromCounts([0, 0, 4, 8, 12, 20, 20, 15, 11, 5, 5], 0);
     const b = fromCounts([0, 0, 3, 7, 12, 18, 22, 16, 12, 5, 5], 0);

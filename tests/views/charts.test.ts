@@ -487,3 +487,74 @@ describe('renderTrajectoryChart', () => {
     expect(() => renderTrajectoryChart({ alpha: 0.05, points: [{ n: 1, p: 0.5, lower: Number.NaN, upper: 1 }] })).toThrow(/lower/);
   });
 });
+
+describe('renderDistributionChart: the data-range view and long titles', () => {
+  // An optional "minutes on the page" item on 0–120 with every answer under 20 (invented).
+  function minutesInput(range?: 'scale' | 'data'): DistributionChartInput {
+    const group = (label: string, pts: number[]): DistributionGroup => ({
+      label,
+      n: pts.length,
+      q1: pts[Math.floor(pts.length / 4)],
+      median: pts[Math.floor(pts.length / 2)],
+      q3: pts[Math.floor((3 * pts.length) / 4)],
+      mean: pts.reduce((s, v) => s + v, 0) / pts.length,
+      whiskerLow: pts[0],
+      whiskerHigh: pts[pts.length - 1],
+      points: Float64Array.from(pts),
+    });
+    return {
+      measureLabel: 'Minutes spent on the page',
+      scale: { min: 0, max: 120, integer: false },
+      groups: [group('Plain', [2.5, 3, 4, 5.5, 6, 7, 8, 9.5, 12]), group('Detailed', [3.5, 4, 6, 7.5, 8, 10, 11, 14, 18.5])],
+      ...(range ? { range } : {}),
+    };
+  }
+  const ticksOf = (svg: string) => [...svg.matchAll(/class="tick-label" data-value="([^"]+)"/g)].map((m) => Number(m[1]));
+
+  it('range "data" zooms the axis to the answers, inside the scale, and says the axis does not start at the minimum', () => {
+    const full = renderDistributionChart(minutesInput());
+    const zoomed = renderDistributionChart(minutesInput('data'));
+    assertWellFormed(zoomed);
+    expect(ticksOf(full)[0]).toBe(0);
+    expect(ticksOf(full).at(-1)).toBe(120);
+    const t = ticksOf(zoomed);
+    expect(t[0]).toBeLessThanOrEqual(2.5);
+    expect(t[0]).toBeGreaterThanOrEqual(0);
+    expect(t.at(-1)).toBeGreaterThanOrEqual(18.5);
+    expect(t.at(-1)).toBeLessThanOrEqual(25);
+    expect(zoomed).toContain(`Zoomed to the answers: the axis runs from ${t[0]} to ${t.at(-1)}.`);
+    expect(zoomed).toContain(t[0] > 0 ? 'It does not start at the scale&apos;s minimum (0).' : 'It stops below the scale&apos;s maximum (120).');
+    expect(count(zoomed, 'class="axis-break"')).toBe(t[0] > 0 ? 1 : 0);
+    // Answers well above the scale's minimum: the axis starts above it, with the break mark.
+    const high = minutesInput('data');
+    const shifted: DistributionChartInput = { ...high, scale: { min: -100, max: 120, integer: false } };
+    const s2 = renderDistributionChart(shifted);
+    expect(ticksOf(s2)[0]).toBeGreaterThan(-100);
+    expect(s2).toContain('It does not start at the scale&apos;s minimum (−100).');
+    expect(count(s2, 'class="axis-break"')).toBe(1);
+    expect(zoomed).toMatch(/<desc[^>]*>[^<]*Zoomed to the answers: the axis runs from [^<]+, not over the whole scale\./);
+    expect(full).not.toContain('Zoomed');
+    expect(count(full, 'class="axis-break"')).toBe(0);
+    // Every point lies inside the plot in both views (y within the plot area).
+    const ys = (svg: string) =>
+      [...svg.matchAll(/<g class="points"[^>]*>(.*?)<\/g>/g)].flatMap((g) => [...g[1].matchAll(/cy="([^"]+)"/g)].map((m) => Number(m[1])));
+    const spread = (v: number[]) => Math.max(...v) - Math.min(...v);
+    expect(spread(ys(zoomed))).toBeGreaterThan(4 * spread(ys(full)));
+  });
+
+  it('range "data" on answers that fill the scale changes nothing', () => {
+    const input: DistributionChartInput = { ...minutesInput(), scale: { min: 2.5, max: 18.5, integer: false } };
+    expect(renderDistributionChart({ ...input, range: 'data' })).toBe(renderDistributionChart(input));
+  });
+
+  it('a long item label wraps onto a second title line; the whole label stays in the title element', () => {
+    const label = 'How acceptable is the new tariff to your household, all things considered, given what you pay today? (0–100)';
+    const svg = renderDistributionChart({ ...twoGroupInput(), measureLabel: label });
+    assertWellFormed(svg);
+    const lines = [...svg.matchAll(/<text[^>]*class="chart-title[^"]*"[^>]*>([^<]*)<\/text>/g)].map((m) => m[1]);
+    expect(lines.length).toBe(2);
+    expect(lines.every((l) => l.length <= 52)).toBe(true);
+    expect(svg).toContain(`<title id=`);
+    expect(svg).toMatch(new RegExp(`<title[^>]*>${label.replace(/[()?]/g, '\\$&')}: answers by condition</title>`));
+  });
+});

@@ -108,7 +108,8 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
         summary: 'Box plot with every answer of two conditions on one measure (SVG)',
         description:
           'Box (quartiles), median line, mean diamond, whiskers at 1.5·IQR, every answer as a jittered dot (an evenly spaced ' +
-          'subsample above 2,000 per group); the axis runs over the scale from min to max. Same cache and ETag rules as the comparison.',
+          'subsample above 2,000 per group); the axis runs over the scale from min to max, or with range=data over the answers\' ' +
+          'range, marked "axis does not start at the scale\'s minimum". Same cache and ETag rules as the comparison.',
         params: ComparisonParams,
         querystring: ChartQuery,
         produces: ['image/svg+xml'],
@@ -123,9 +124,10 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const e = await loadExperiment(store, request.params.id);
       const target = resolveTarget(e, request.params.measure, request.query.a, request.query.b);
       const includeExcluded = request.query.includeExcluded === 'true';
+      const range = request.query.range;
       const stamp = await service.stamp(e);
-      if (notModified(request, reply, service.etagOf(service.chartKey(target, includeExcluded, stamp)))) return reply;
-      const { svg, etag } = await service.chart(target, includeExcluded, stamp);
+      if (notModified(request, reply, service.etagOf(service.chartKey(target, includeExcluded, stamp, range)))) return reply;
+      const { svg, etag } = await service.chart(target, includeExcluded, stamp, range);
       return reply.header('etag', etag).type(SVG_CONTENT_TYPE).send(svg);
     },
   );

@@ -18,6 +18,7 @@ function weightsView(e: ExperimentRecord): { weights: ExperimentView['weights'];
   const w = weightsOf(e.options);
   return { weights: w.weights, maxWeight: w.weights === 'none' ? null : w.maxWeight };
 }
+import { definitionRoleOptions, patchRoleOptions, primaryChangesOf, primaryOf, roleOf } from '../../services/measure-roles.js';
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -40,7 +41,9 @@ export function experimentView(e: ExperimentRecord): ExperimentView {
       required: m.required,
       equivalenceMargin: declaredMargin(e, m),
       role: m.role,
+      primary: primaryOf(e) === m.id,
     })),
+    primaryChanges: primaryChangesOf(e),
     plannedPerCondition: e.plannedPerCondition,
     alpha: e.alpha,
     thankYouUrl: e.thankYouUrl,
@@ -90,6 +93,7 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
           ...(b.allocation ? { allocation: b.allocation } : {}),
           ...marginsOption(b.measures),
           ...(b.weights !== 'none' ? { weights: b.weights, maxWeight: b.maxWeight ?? DEFAULT_MAX_WEIGHT } : {}),
+          ...definitionRoleOptions(b.measures),
         },
       });
       if (result.kind === 'duplicate') throw new ProblemError('already-exists', `An experiment with id ${b.id} already exists.`);
@@ -152,16 +156,24 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
         .map(({ m, i }) => ({ path: `measures[${i}].id`, message: `is not a measure of this experiment`, value: m.id }));
       if (unknown.length > 0) throw new RequestValidationError('body', unknown);
       const { flagThresholds, ...rest } = patch;
+      const now = new Date().toISOString();
       const margins = patchedMargins(e, patch.measures ?? []);
-      if (rest.measures) rest.measures = rest.measures.map(({ equivalenceMargin: _margin, ...m }) => m);
+      const roleOptions = patchRoleOptions(e, patch.measures ?? [], now, request.principal?.keyId ?? null);
+      const primaryNow = 'primaryMeasure' in roleOptions ? (roleOptions.primaryMeasure as string | null) : primaryOf(e);
+      if (primaryNow !== null && roleOf(e, primaryNow) !== 'outcome') {
+        const i = (patch.measures ?? []).findIndex((m) => m.id === primaryNow);
+        throw new RequestValidationError('body', [{ path: `measures[${Math.max(0, i)}].primary`, message: 'a primary measure must have the role "outcome"' }]);
+      }
       const options = {
         ...(flagThresholds !== undefined ? { flagThresholds } : {}),
         ...(margins !== undefined ? { [MARGINS_OPTION]: margins } : {}),
+        ...roleOptions,
       };
+      const measures = rest.measures?.map(({ equivalenceMargin: _margin, primary: _primary, ...m }) => m);
       const result = await store.experiments.update(
         e.key,
-        { ...rest, ...(Object.keys(options).length > 0 ? { options } : {}) },
-        new Date().toISOString(),
+        { ...rest, ...(measures ? { measures } : {}), ...(Object.keys(options).length > 0 ? { options } : {}) },
+        now,
       );
       switch (result.kind) {
         case 'updated':

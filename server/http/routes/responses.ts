@@ -116,6 +116,12 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       const receivedAt = new Date().toISOString();
       const experiment = await loadOpenExperiment(store, id);
       const isForm = isFormContentType(request.headers['content-type']);
+      if (isForm) {
+        request.respondentLabels = {
+          measures: Object.fromEntries(experiment.measures.map((m) => [m.id, m.label])),
+          conditions: Object.fromEntries(experiment.conditions.map((c) => [c.id, c.label])),
+        };
+      }
       let body: unknown = request.body;
       const errors: FieldError[] = [];
       if (isForm) {

@@ -6,6 +6,7 @@ import { computeMonitoring } from '../monitoring/interim.js';
 import { type ComparisonTarget } from '../targets.js';
 import { type ComparisonBody } from '../../schemas/comparisons.js';
 import type { WeightedBlock } from '../../schemas/weighted.js';
+import type { FlaggedAnswers } from './flagged-answers.js';
 
 export const REJECTION_GROUPS: Record<string, 'out_of_range' | 'not_integer' | 'not_a_number'> = {
   out_of_range: 'out_of_range',
@@ -19,9 +20,9 @@ export const REJECTION_GROUPS: Record<string, 'out_of_range' | 'not_integer' | '
 export function comparisonBody(
   ids: { experiment: string; measure: string; a: string; b: string },
   dataVersion: number,
-  { cmp, flags }: CompareResult,
+  { cmp, flags, sensitivity }: CompareResult,
   monitoring: Awaited<ReturnType<typeof computeMonitoring>> | null,
-  weighted: WeightedBlock | null = null,
+  extras: { weighted?: WeightedBlock | null; flaggedAnswers?: FlaggedAnswers | null } = {},
 ): ComparisonBody {
   return {
     experiment: ids.experiment,
@@ -40,7 +41,9 @@ export function comparisonBody(
     flags: flags as ComparisonBody['flags'],
     monitoring: (monitoring ?? null) as ComparisonBody['monitoring'],
     equivalence: null,
-    weighted,
+    weighted: extras.weighted ?? null,
+    sensitivity: (sensitivity ?? null) as ComparisonBody['sensitivity'],
+    flaggedAnswers: extras.flaggedAnswers ?? null,
   };
 }
 

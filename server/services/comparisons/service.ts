@@ -34,7 +34,7 @@ import type { ComparisonStamp, ExperimentRecord, MeasureRecord, MeasureSnapshot,
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
 import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
 import { LruCache } from './cache.js';
-import { compareSorted, omnibusSorted, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
+import { compareSorted, omnibusSorted, sensitivityOf, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { computeTrajectory, type TrajectoryBody } from '../monitoring/trajectory.js';
 import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
@@ -56,8 +56,11 @@ import { computeWeighted } from './weighted.js';
 import { computeAdjusted } from './adjusted.js';
 import type { AdjustedBlock } from '../../schemas/weighted.js';
 
+import { primaryOf, roleOf } from '../measure-roles.js';
+import { flaggedAnswers } from './flagged-answers.js';
+
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
-export const CACHE_FORMAT = 2;
+export const CACHE_FORMAT = 4;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
@@ -220,9 +223,9 @@ export class ComparisonService {
     return { svg: value.svg, etag: tagOf(value.key) };
   }
 
-  chartKey(t: ComparisonTarget, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>): string {
+  chartKey(t: ComparisonTarget, includeExcluded: boolean, s: Pick<Stamp, 'dataVersion'>, range: 'scale' | 'data' = 'scale'): string {
     const e = t.experiment;
-    return ['svg', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, includeExcluded ? 1 : 0, s.dataVersion].join('|');
+    return ['svg', CACHE_FORMAT, e.key, e.updatedAt, t.measure.key, t.a.key, t.b.key, includeExcluded ? 1 : 0, s.dataVersion, ...(range === 'data' ? ['data'] : [])].join('|');
   }
 
   /** The trajectory depends on the definition (alpha, planned size), the measure, the pair and the dataVersion. */
@@ -316,18 +319,19 @@ export class ComparisonService {
   }
 
   /** The distribution chart (SVG) of a target. */
-  async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
+  async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp, range: 'scale' | 'data' = 'scale'): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(t.experiment));
-    const value = await this.cached(this.chartKey(t, includeExcluded, s), async () => {
+    const value = await this.cached(this.chartKey(t, includeExcluded, s, range), async () => {
       const { snapshot, a, b } = await this.readSamples(t, includeExcluded);
       const summary = (x: Sample) => ({ ...describe(x), shapiroWilk: null });
       const svg = renderDistributionChart({
         measureLabel: t.measure.label,
         scale: { min: t.measure.min, max: t.measure.max, integer: t.measure.integer },
         groups: [distributionGroupFromSample(t.a.label, a, summary(a)), distributionGroupFromSample(t.b.label, b, summary(b))],
-        id: `chart-${t.measure.id}`,
+        id: `chart-${t.measure.id}${range === 'data' ? '-data' : ''}`,
+        range,
       });
-      return { kind: 'chart', key: this.chartKey(t, includeExcluded, snapshot), svg };
+      return { kind: 'chart', key: this.chartKey(t, includeExcluded, snapshot, range), svg };
     });
     if (value.kind !== 'chart') throw new Error('cache entry of the wrong kind');
     return { svg: value.svg, etag: tagOf(value.key) };
@@ -350,20 +354,36 @@ export class ComparisonService {
       const expected = s;
       consistent = entries.every((e, i) => e.etag === tagOf(this.comparisonKey(targets[i], options, expected)));
     }
+    // The adjusted family is the outcome measures only: process measures (and any other role) are compared and
+    // shown, but their p-values are neither adjusted nor counted in the family (services/measure-roles.ts).
+    const roles = targets.map((t) => roleOf(experiment, t.measure.id));
+    const inFamily = roles.map((r) => r === 'outcome');
+    const members = entries.filter((_, i) => inFamily[i]);
     const welch = adjustPValues(
-      entries.map((e) => e.body.welch.p),
+      members.map((e) => e.body.welch.p),
       options.adjust,
     );
     const rankSum = adjustPValues(
-      entries.map((e) => e.body.mannWhitney.p),
+      members.map((e) => e.body.mannWhitney.p),
       options.adjust,
     );
-    const comparisons: FamilyEntry[] = entries.map((e, i) => ({
-      ...e.body,
-      adjusted: { welchP: welch[i], mannWhitneyP: rankSum[i], method: options.adjust },
-    }));
+    const primary = primaryOf(experiment);
+    let m = 0;
+    const comparisons: FamilyEntry[] = entries.map((e, i) => {
+      const adjusted: FamilyEntry['adjusted'] = inFamily[i]
+        ? { welchP: welch[m], mannWhitneyP: rankSum[m], method: options.adjust }
+        : { welchP: null, mannWhitneyP: null, method: options.adjust, reason: `A ${roles[i]} measure is not part of the adjusted family (outcome measures only).` };
+      if (inFamily[i]) m++;
+      return { ...e.body, role: roles[i], primary: targets[i].measure.id === primary, adjusted };
+    });
+    const adjustedFamily = {
+      roles: ['outcome' as const],
+      measures: [...new Set(targets.filter((_, i) => inFamily[i]).map((t) => t.measure.id))],
+      size: members.length,
+      description: `${options.adjust === 'none' ? 'No adjustment' : `${options.adjust === 'holm' ? 'Holm' : 'Benjamini–Hochberg'} adjustment`} over the ${members.length} outcome comparison${members.length === 1 ? '' : 's'}; process measures are not in the family.`,
+    };
     const dataVersion = Math.max(...entries.map((e) => e.body.dataVersion));
-    const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, comparisons };
+    const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, adjustedFamily, comparisons };
     const etag = consistent
       ? this.familyEtagFromStamp(experiment, options, s)
       : tagOf(['family-mixed', options.pairs, options.adjust, ...entries.map((e) => e.etag)].join('\n'));
@@ -453,7 +473,8 @@ export class ComparisonService {
       const { a, b } = samplesOf(t.measure, snapshot);
       const cmp = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
       this.paths.inThreadComputes++;
-      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), a, b };
+      const view = sensitivityOf(cmp, { a, b }, ctx, o.alternative, o.confidenceLevel);
+      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), sensitivity: view, a, b };
     }
     const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : shareable(x));
     const big = snapshot.groups[0].length + snapshot.groups[1].length >= this.workerMinValues;
@@ -496,7 +517,7 @@ export class ComparisonService {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
-    const { cmp, flags: unweightedFlags } = await this.compareAndFlag(t, o, snapshot);
+    const { cmp, flags: unweightedFlags, sensitivity } = await this.compareAndFlag(t, o, snapshot);
     const weighted = await computeWeighted(this.store, t, o, cmp);
     const flags = weighted ? [...unweightedFlags, ...weighted.flags] : unweightedFlags;
     const ga = cmp.groups.a;
@@ -513,7 +534,11 @@ export class ComparisonService {
       dataVersion: snapshot.dataVersion,
       includeExcluded: o.includeExcluded,
     });
-    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags }, monitoring, weighted?.block ?? null);
+    const flagged = await flaggedAnswers(this.store, t, flags, o.includeExcluded);
+    const body = comparisonBody({ experiment: e.id, measure: m.id, a: t.a.id, b: t.b.id }, snapshot.dataVersion, { cmp, flags, sensitivity }, monitoring, {
+      weighted: weighted?.block ?? null,
+      flaggedAnswers: flagged,
+    });
     const margin = effectiveMargin(t, o);
     if (margin !== null) {
       // The two TOSTs read the same snapshot (O(distinct values) for counts; the sorted values otherwise).

@@ -33,7 +33,9 @@ import {
   type Alternative,
   type Comparison,
   type ConditionsComparison,
+  type Sample,
 } from '../../../stats/index.js';
+import { sensitivity, type Sensitivity } from '../../../stats/sensitivity.js';
 import type { RunsSnapshot } from '../../store/types.js';
 import { trajectoryPoints, type ArrivalArrays, type TrajectoryOptions, type TrajectoryPointView } from '../monitoring/trajectory-points.js';
 
@@ -59,6 +61,21 @@ export interface CompareTask {
 export interface CompareResult {
   cmp: Comparison;
   flags: readonly Flag[];
+  /** The sensitivity view (stats/sensitivity.ts); absent only where a caller needs no view (warm-up). */
+  sensitivity?: Sensitivity;
+}
+
+/** The sensitivity view of a comparison, with the flags' alpha, scale, labels and fence multipliers. */
+export function sensitivityOf(cmp: Comparison, samples: { a: Sample; b: Sample }, ctx: FlagContext, alternative: Alternative, confidenceLevel: number): Sensitivity {
+  return sensitivity(cmp, samples, {
+    alternative,
+    confidenceLevel,
+    alpha: ctx.alpha,
+    scale: ctx.scale,
+    labels: ctx.labels,
+    ...(ctx.thresholds?.tukeyMultiplier !== undefined ? { tukeyMultiplier: ctx.thresholds.tukeyMultiplier } : {}),
+    ...(ctx.thresholds?.farOutMultiplier !== undefined ? { farOutMultiplier: ctx.thresholds.farOutMultiplier } : {}),
+  });
 }
 
 /** Every condition of a continuous measure at once (the omnibus route; omnibus.ts). */
@@ -108,7 +125,7 @@ export function compareSorted(task: Omit<CompareTask, 'kind'>): CompareResult {
   const b = fromSortedValues(task.b, 'b');
   const cmp = compareSamples(a, b, { alternative: task.alternative, confidenceLevel: task.confidenceLevel });
   const flags = computeFlags(cmp, { a, b }, task.flagContext, task.alternative);
-  return { cmp, flags };
+  return { cmp, flags, sensitivity: sensitivityOf(cmp, { a, b }, task.flagContext, task.alternative, task.confidenceLevel) };
 }
 
 // ───────────────────────────── inside a worker ─────────────────────────────

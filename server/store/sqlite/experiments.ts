@@ -11,6 +11,7 @@ import type {
   ExperimentRecord,
   ExperimentRepository,
   MeasureRecord,
+  MeasureRole,
   NewExperiment,
   UpdateExperimentResult,
 } from '../types.js';
@@ -47,7 +48,7 @@ interface MeasureRow {
   is_integer: number;
   required: number;
   position: number;
-  role: 'outcome' | 'covariate';
+  role: MeasureRole;
 }
 
 /** Synchronous reads shared with the other SQLite repositories (they run inside their transactions). */

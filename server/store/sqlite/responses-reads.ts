@@ -17,7 +17,7 @@ import type {
   StoredResponse,
   WeightedValues,
 } from '../types.js';
-import { MAX_DENSE_COUNTS, type RunsSnapshot, type SnapshotRun, type SortedRunsReader } from '../types.js';
+import { MAX_DENSE_COUNTS, type AnswerWithValue, type RunsSnapshot, type SnapshotRun, type SortedRunsReader } from '../types.js';
 
 /**
  * A merge reads only rows with responses.id above the cached last id; when more responses than this share of the
@@ -107,6 +107,8 @@ export class SqliteResponseReads implements SortedRunsReader {
   private readonly rejectedOf;
   private readonly storedResponse;
   private readonly storedValues;
+  private readonly answersAt;
+  private readonly receivedSince;
   private readonly measureRow;
   private readonly countsOne;
   private readonly countsBoth;
@@ -138,6 +140,11 @@ export class SqliteResponseReads implements SortedRunsReader {
     this.storedValues = db.prepare<[number], { measure: string; value: number }>(
       `SELECT m.slug AS measure, v.value AS value FROM response_values v JOIN measures m ON m.id = v.measure_id
        WHERE v.response_id = ? ORDER BY m.position`,
+    );
+    this.receivedSince = db.prepare<[number, string], number>(`SELECT count(*) FROM responses WHERE experiment_id = ? AND received_at >= ?`).pluck();
+    this.answersAt = db.prepare<[number, number, number, number, number], { response_id: string; value: number; received_at: string; excluded: number }>(
+      `SELECT r.response_id, v.value, r.received_at, v.excluded FROM response_values v JOIN responses r ON r.id = v.response_id
+       WHERE v.measure_id = ? AND v.condition_id = ? AND v.excluded = ? AND v.value = ? ORDER BY r.received_at, r.id LIMIT ?`,
     );
     this.measureRow = db.prepare<[number], MeasureRow>(`SELECT id, min, max, is_integer FROM measures WHERE id = ?`);
     this.countsOne = db
@@ -214,6 +221,29 @@ export class SqliteResponseReads implements SortedRunsReader {
         excluded: row.excluded === 1,
         excludedReason: row.excluded_reason,
       };
+    })();
+  }
+
+  /** Responses received at or after each time (one read transaction; a scan of the experiment's responses). */
+  async countReceivedSince(experimentKey: number, since: readonly string[]): Promise<number[]> {
+    return this.db.transaction(() => since.map((s) => this.receivedSince.get(experimentKey, s) ?? 0))();
+  }
+
+  /**
+   * The answers equal to each of `values` (one indexed lookup per value on (measure, condition, excluded, value)),
+   * oldest arrival first within a value, at most `limit` in all, in ONE read transaction.
+   */
+  async getAnswersWithValues(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]> {
+    return this.db.transaction(() => {
+      const out: AnswerWithValue[] = [];
+      for (const value of values) {
+        if (out.length >= limit) break;
+        for (const excluded of includeExcluded ? [0, 1] : [0]) {
+          const rows = this.answersAt.all(measureKey, conditionKey, excluded, value, limit - out.length);
+          for (const r of rows) out.push({ responseId: r.response_id, value: r.value, receivedAt: r.received_at, excluded: r.excluded === 1 });
+        }
+      }
+      return out;
     })();
   }
 

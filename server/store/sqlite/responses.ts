@@ -45,6 +45,7 @@ import type {
   RunsSnapshot,
   SortedRunsReader,
   StoredResponse,
+  AnswerWithValue,
   ValidResponse,
   WeightedValues,
   AdjustmentRows,
@@ -130,6 +131,14 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
 
   getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null> {
     return this.reads.getStored(experimentKey, responseId);
+  }
+
+  countReceivedSince(experimentKey: number, since: readonly string[]): Promise<number[]> {
+    return this.reads.countReceivedSince(experimentKey, since);
+  }
+
+  getAnswersWithValues(measureKey: number, conditionKey: number, values: readonly number[], includeExcluded: boolean, limit: number): Promise<AnswerWithValue[]> {
+    return this.reads.getAnswersWithValues(measureKey, conditionKey, values, includeExcluded, limit);
   }
 
   getCounts(measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<Float64Array> {

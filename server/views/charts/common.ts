@@ -70,6 +70,11 @@ export interface DistributionChartInput {
   maxPoints?: number;
   /** Prefix for the title/desc element ids (must be unique on a page); default derived from the label. */
   id?: string;
+  /**
+   * "scale" (default): the axis spans the item's whole scale. "data": the axis spans the answers' range (nice ticks,
+   * inside the scale), marked "axis does not start at the scale's minimum" when it does not.
+   */
+  range?: 'scale' | 'data';
 }
 
 export interface TrajectoryPoint {

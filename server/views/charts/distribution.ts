@@ -19,6 +19,39 @@ const D = {
 };
 
 
+/** Characters per line of the chart's title (17 px, about 52 in the narrowest chart). */
+const TITLE_LINE_CHARS = 52;
+
+/**
+ * The value axis: the whole scale, or (range "data") the answers' range widened to nice ticks and kept inside the
+ * scale; `zoomed` when that range is narrower than the scale.
+ */
+function axisRange(input: DistributionChartInput): { min: number; max: number; zoomed: boolean } {
+  const { scale } = input;
+  if (input.range !== 'data') return { min: scale.min, max: scale.max, zoomed: false };
+  let lo = Infinity;
+  let hi = -Infinity;
+  for (const g of input.groups) {
+    for (const v of g.points) {
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+    for (const v of [g.whiskerLow, g.whiskerHigh, g.q1, g.q3, g.mean]) {
+      if (v === null || v === undefined) continue;
+      if (v < lo) lo = v;
+      if (v > hi) hi = v;
+    }
+  }
+  if (!(lo < hi)) return { min: scale.min, max: scale.max, zoomed: false };
+  const ticks = niceTicks(lo, hi, 6, scale.integer);
+  // niceTicks puts its ends at lo and hi; the step is between inner ticks.
+  const step = ticks.length > 2 ? ticks[2] - ticks[1] : hi - lo;
+  const min = Math.max(scale.min, Math.floor(lo / step) * step);
+  const max = Math.min(scale.max, Math.ceil(hi / step) * step);
+  const zoomed = min > scale.min || max < scale.max;
+  return zoomed && max > min ? { min, max, zoomed } : { min: scale.min, max: scale.max, zoomed: false };
+}
+
 /** Box plot of one measure, one box per condition with every answer (or a subsample) as a jittered point. */
 export function renderDistributionChart(input: DistributionChartInput): string {
   const { scale, groups } = input;
@@ -33,15 +66,20 @@ export function renderDistributionChart(input: DistributionChartInput): string {
   });
 
   const id = safeId(input.id ?? `sb-dist-${hashString(input.measureLabel).toString(36)}`);
+  const axis = axisRange(input);
+  // A long item label wraps onto a second title line (then "…"); the whole label stays in <title> and the description.
+  const titleLines = wrapLabel(input.measureLabel, TITLE_LINE_CHARS);
+  const titleExtra = titleLines.length > 1 ? 20 : 0;
+  const plotTop = D.plotTop + titleExtra + (axis.zoomed ? 34 : 0);
   const width = Math.max(D.minWidth, D.left + groups.length * D.band + D.right);
-  const plotBottom = D.plotTop + D.plotHeight;
+  const plotBottom = plotTop + D.plotHeight;
   const plotRight = width - D.right;
   const y = (v: number): number => {
-    const clamped = Math.min(scale.max, Math.max(scale.min, v));
-    return plotBottom - D.pad - ((clamped - scale.min) / (scale.max - scale.min)) * (D.plotHeight - 2 * D.pad);
+    const clamped = Math.min(axis.max, Math.max(axis.min, v));
+    return plotBottom - D.pad - ((clamped - axis.min) / (axis.max - axis.min)) * (D.plotHeight - 2 * D.pad);
   };
-  const ticks = niceTicks(scale.min, scale.max, 6, scale.integer);
-  const tickStep = ticks.length > 2 ? ticks[2] - ticks[1] : scale.max - scale.min;
+  const ticks = niceTicks(axis.min, axis.max, 6, scale.integer);
+  const tickStep = ticks.length > 2 ? ticks[2] - ticks[1] : axis.max - axis.min;
   const labelTop = plotBottom + 24;
   // Condition labels longer than one line (about 21 characters at this size in a 196-px band) wrap onto a
   // second line, and everything below moves down by one line.
@@ -63,6 +101,7 @@ export function renderDistributionChart(input: DistributionChartInput): string {
   const descParts = [
     `Box plots of ${input.measureLabel} on a scale from ${scaleText}, one per condition, with each answer drawn as a dot beside its box.`,
   ];
+  if (axis.zoomed) descParts.push(`Zoomed to the answers: the axis runs from ${formatChartNumber(axis.min)} to ${formatChartNumber(axis.max)}, not over the whole scale.`);
   groups.forEach((g, i) => {
     if (g.n === 0 || g.median === null) {
       descParts.push(`${g.label}: no answers yet.`);
@@ -79,10 +118,17 @@ export function renderDistributionChart(input: DistributionChartInput): string {
   });
 
   const out: string[] = [svgOpen(id, width, height, 'distribution', title, descParts.join(' '))];
-  out.push(text(16, 26, input.measureLabel, { class: 'chart-title', 'font-size': 17, 'font-weight': 600 }));
+  titleLines.forEach((line, k) => out.push(text(16, 26 + 20 * k, line, { class: k === 0 ? 'chart-title' : 'chart-title chart-title-more', 'font-size': 17, 'font-weight': 600 })));
   out.push(
-    text(16, 48, `Scale ${scaleText}. Each dot is one answer.`, { class: 'chart-subtitle', 'font-size': 13, fill: MUTED }),
+    text(16, 48 + titleExtra, `Scale ${scaleText}. Each dot is one answer.`, { class: 'chart-subtitle', 'font-size': 13, fill: MUTED }),
   );
+  if (axis.zoomed) {
+    const zoomLines = [
+      `Zoomed to the answers: the axis runs from ${formatChartNumber(axis.min)} to ${formatChartNumber(axis.max)}.`,
+      axis.min > scale.min ? `It does not start at the scale's minimum (${formatChartNumber(scale.min)}).` : `It stops below the scale's maximum (${formatChartNumber(scale.max)}).`,
+    ];
+    zoomLines.forEach((line, k) => out.push(text(16, 66 + titleExtra + 17 * k, line, { class: 'zoom-note', 'font-size': 13, 'font-weight': 600, fill: INK })));
+  }
 
   // Axis and grid.
   out.push(`<g class="axis axis-value" data-min="${escapeXml(String(scale.min))}" data-max="${escapeXml(String(scale.max))}" font-size="14" fill="${MUTED}">`);
@@ -92,7 +138,14 @@ export function renderDistributionChart(input: DistributionChartInput): string {
     out.push(`<line class="tick" x1="${D.left - 6}" x2="${D.left}" y1="${c(ty)}" y2="${c(ty)}" stroke="${AXIS}" stroke-width="1"/>`);
     out.push(text(D.left - 10, ty + 4.5, tickLabel(t, tickStep), { 'text-anchor': 'end', class: 'tick-label', 'data-value': String(t) }));
   }
-  out.push(`<line class="axis-line" x1="${D.left}" x2="${D.left}" y1="${c(y(scale.max))}" y2="${c(y(scale.min))}" stroke="${AXIS}" stroke-width="1"/>`);
+  out.push(`<line class="axis-line" x1="${D.left}" x2="${D.left}" y1="${c(y(axis.max))}" y2="${c(y(axis.min))}" stroke="${AXIS}" stroke-width="1"/>`);
+  if (axis.zoomed && axis.min > scale.min) {
+    // The usual axis-break mark: two short slanted strokes across the axis at its bottom.
+    const by = plotBottom - 2;
+    out.push(
+      `<path class="axis-break" d="M${D.left - 7} ${c(by + 3)}L${D.left + 7} ${c(by - 3)}M${D.left - 7} ${c(by + 8)}L${D.left + 7} ${c(by + 2)}" stroke="${INK}" stroke-width="2" fill="none"/>`,
+    );
+  }
   out.push('</g>');
 
   groups.forEach((g, i) => {
@@ -120,7 +173,7 @@ export function renderDistributionChart(input: DistributionChartInput): string {
         s = e;
       }
       const seed = hashString(input.measureLabel + '\u0000' + g.label);
-      const step = (D.plotHeight - 2 * D.pad) / (scale.max - scale.min);
+      const step = (D.plotHeight - 2 * D.pad) / (axis.max - axis.min);
       const yJitter = scale.integer ? Math.min(0.16 * step, 4) : 0;
       for (let s = 0; s < m; ) {
         let e = s + 1;
@@ -162,7 +215,7 @@ export function renderDistributionChart(input: DistributionChartInput): string {
         );
       }
     } else {
-      out.push(text(x0 + D.band / 2, D.plotTop + D.plotHeight / 2, 'no answers yet', { 'text-anchor': 'middle', 'font-size': 13, fill: MUTED, class: 'empty-note' }));
+      out.push(text(x0 + D.band / 2, plotTop + D.plotHeight / 2, 'no answers yet', { 'text-anchor': 'middle', 'font-size': 13, fill: MUTED, class: 'empty-note' }));
     }
     // Label, n and (if any) the subsample note under the group.
     const cx = x0 + D.band / 2;

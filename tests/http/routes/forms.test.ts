@@ -170,11 +170,21 @@ describe('form posts from browsers (HTML answers)', () => {
     expect(res.headers['content-type']).toBe('text/html; charset=utf-8');
     expect(res.headers['content-security-policy']).toContain("default-src 'none'");
     expect(res.body).toContain('<h1>Some answers could not be accepted</h1>');
-    expect(res.body).toContain('<li><strong>satisfaction</strong>: &quot;&lt;script&gt;alert(1)&lt;/script&gt;&quot; is not a number</li>');
-    expect(res.body).toContain('<li><strong>trust</strong>: 70 is outside the scale from 1 to 7</li>');
+    // The questions are named by their labels, as the form showed them (not by their ids).
+    expect(res.body).toContain('<li><strong>Overall satisfaction (0–10)</strong>: &quot;&lt;script&gt;alert(1)&lt;/script&gt;&quot; is not a number</li>');
+    expect(res.body).toContain('<li><strong>Trust in the utility (1–7)</strong>: 70 is outside the scale from 1 to 7</li>');
     expect(res.body).not.toContain('<script>');
     expect(res.body).not.toContain('{"');
     expect(res.body).not.toContain(ingest);
+  });
+
+  it('an unknown condition is named by the versions\' labels, not their ids', async () => {
+    const res = await postForm({ ...GOOD, condition: 'menu-first', ingestKey: ingest }, { accept: BROWSER_ACCEPT });
+    expect(res.statusCode).toBe(422);
+    expect(res.body).toContain(
+      "<li><strong>Questionnaire version</strong>: is not a condition of this experiment (the survey&#39;s versions: The bill questions come first; The service questions come first)</li>",
+    );
+    expect(res.body).not.toContain('bill-first');
   });
 
   it('a closed survey, a bad key and an unknown survey also get pages', async () => {

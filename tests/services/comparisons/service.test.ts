@@ -8,7 +8,7 @@ import { afterEach, beforeEach, describe, expect, it, vi } from 'vitest';
 import { ifNoneMatchMatches } from '../../../server/http/conditional.js';
 import { LruCache } from '../../../server/services/comparisons/cache.js';
 import { adjustPValues } from '../../../stats/adjust.js';
-import { compare } from '../../../stats/index.js';
+import { compare, fromValues, sensitivity } from '../../../stats/index.js';
 import { startTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
 import rReference from '../../fixtures/r-reference.json' with { type: 'json' };
 import rAdjust from '../../fixtures/r-adjust.json' with { type: 'json' };
@@ -82,6 +82,8 @@ const CONTRACT_KEYS = [
   'monitoring',
   'equivalence',
   'weighted',
+  'sensitivity',
+  'flaggedAnswers',
 ];
 
 function valuesOf(responses: ReturnType<typeof waterData>, measure: 'satisfaction' | 'trust' | 'fair_price', condition: string): number[] {
@@ -110,6 +112,16 @@ describe('GET /v1/experiments/{id}/comparisons/{measure}', () => {
       // The water study plans 400 per condition: the interim flag is always there while it runs.
       expect(body.flags.map((f: { code: string }) => f.code)).toContain('interim');
       expect(body).toHaveProperty('monitoring');
+      // The sensitivity view is stats' sensitivity() on the same answers, with the study's alpha, scale and labels.
+      const xa = fromValues(valuesOf(data, measure, 'bill-first'), 'a');
+      const xb = fromValues(valuesOf(data, measure, 'service-first'), 'b');
+      const scale = { satisfaction: { min: 0, max: 10, integer: true }, trust: { min: 1, max: 7, integer: true }, fair_price: { min: 0, max: 200, integer: false } }[measure]!;
+      const view = sensitivity(compare(valuesOf(data, measure, 'bill-first'), valuesOf(data, measure, 'service-first')), { a: xa, b: xb }, {
+        alpha: 0.05,
+        scale,
+        labels: { a: 'The bill questions come first', b: 'The service questions come first' },
+      });
+      expect(body.sensitivity).toEqual(JSON.parse(JSON.stringify(view)));
     }
   });
 
@@ -436,12 +448,13 @@ describe('GET /v1/experiments/{id}/comparisons (the family)', () => {
     const res = await t.request({ method: 'GET', url: `${base}/comparisons` });
     expect(res.statusCode).toBe(200);
     const body = res.json();
-    expect(Object.keys(body)).toEqual(['experiment', 'dataVersion', 'adjust', 'pairs', 'comparisons']);
+    expect(Object.keys(body)).toEqual(['experiment', 'dataVersion', 'adjust', 'pairs', 'adjustedFamily', 'comparisons']);
     expect(body).toMatchObject({ experiment: WATER_ID, dataVersion: 1, adjust: 'holm', pairs: 'first' });
     expect(body.comparisons.map((c: { measure: string }) => c.measure)).toEqual(['satisfaction', 'trust', 'fair_price']);
     const single = (await t.request({ method: 'GET', url: `${base}/comparisons/trust` })).json();
-    const { adjusted, ...trust } = body.comparisons[1];
+    const { adjusted, role, primary, ...trust } = body.comparisons[1];
     expect(trust).toEqual(single);
+    expect([role, primary]).toEqual(['outcome', false]);
     expect(adjusted.method).toBe('holm');
     const holm = adjustPValues(
       body.comparisons.map((c: { welch: { p: number } }) => c.welch.p),
