@@ -114,14 +114,16 @@ describe('measure roles and the primary outcome', () => {
     expect(changes[0]).toMatchObject({ from: 'trust', to: 'acceptance', dataVersion: 1 });
     expect(typeof changes[0].apiKeyId).toBe('number');
     expect(changes[0].at).toMatch(/^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{3}Z$/);
-    // A process measure cannot become primary; a role change keeps the other fields.
+    // A process measure cannot become primary; a role is fixed when the experiment is created (a PATCH of it is refused, nothing changes).
     const bad = await t.request({ method: 'PATCH', url, payload: { measures: [{ id: 'minutes', primary: true }] } });
     expect(bad.statusCode).toBe(422);
     expect(bad.json().errors).toEqual([{ path: 'measures[0].primary', message: 'a primary measure must have the role "outcome"' }]);
     const role = await t.request({ method: 'PATCH', url, payload: { measures: [{ id: 'trust', role: 'process' }] } });
-    expect(role.statusCode, role.body).toBe(200);
-    expect(role.json().measures.find((m: { id: string }) => m.id === 'trust')).toMatchObject({ role: 'process', min: 1, max: 7, label: 'Trust in the utility (1–7)' });
+    expect(role.statusCode, role.body).toBe(422);
+    expect(role.json().errors).toEqual([{ path: 'measures[0].role', message: 'is not a known field' }]);
+    const now = (await t.request({ method: 'GET', url })).json();
+    expect(now.measures.find((m: { id: string }) => m.id === 'trust')).toMatchObject({ role: 'outcome', min: 1, max: 7 });
     const family = (await t.request({ method: 'GET', url: `${url}/comparisons` })).json();
-    expect(family.adjustedFamily.measures).toEqual(['acceptance']);
+    expect(family.adjustedFamily.measures).toEqual(['acceptance', 'trust']);
   });
 });
