@@ -169,8 +169,6 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   registerRequestMetrics(app, metrics);
   registerOpenApi(app);
 
-  // Ingest rate limit: per (API key, client address), after authentication so that the key is known. A form post
-  // without an Authorization header is counted per address until its ingestKey field is read.
   app.register(async (instance) => {
     await store.apiKeys.syncEnvironmentKey(config.adminKeyHash, new Date().toISOString());
     instance.log.debug('environment admin key synchronised');

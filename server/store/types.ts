@@ -15,7 +15,12 @@
 
 import type { AssignmentRepository, LookRepository } from './monitoring-types.js';
 
-export type Scope = 'admin' | 'ingest' | 'read';
+/**
+ * admin: everything; ingest: post answers (single, batch, CSV) and assign respondents, server-side only; read:
+ * definitions, comparisons, exports; form: what a respondent's page does (one answer at a time, a new respondent's
+ * assignment), the only scope meant to be embedded in a public page.
+ */
+export type Scope = 'admin' | 'ingest' | 'read' | 'form';
 export type ExperimentStatus = 'open' | 'closed';
 
 /** Why a value was refused at ingest. Counted per (experiment, measure, reason). */
