@@ -32,7 +32,7 @@ import type { Store } from '../store/types.js';
 import { registerAuth, type RouteAccess } from './auth.js';
 import { registerCors } from './cors.js';
 import { registerJsonParser } from './json-body.js';
-import { REDACTED_LOG_PATHS } from './logging.js';
+import { REDACTED_LOG_PATHS, requestSerializer } from './logging.js';
 import { instrumentStore, metricsRoutes, registerRequestMetrics, ServiceMetrics } from './metrics.js';
 import { registerOpenApi } from './openapi-document.js';
 import { clientErrorHandler, registerProblemHandlers, sendProblem } from './problem-handler.js';
@@ -102,6 +102,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     logger: {
       level: config.logLevel,
       redact: { paths: REDACTED_LOG_PATHS, censor: '[redacted]' },
+      serializers: { req: requestSerializer as (req: unknown) => Record<string, unknown> },
       ...(deps.logStream ? { stream: deps.logStream } : {}),
     },
     bodyLimit: SINGLE_BODY_LIMIT,
