@@ -40,8 +40,11 @@ export function redactUrl(url: string): string {
   return `${path}?${query}`;
 }
 
-/** What pino writes for `req` (fastify's default fields, with the URL redacted). */
+/** What pino writes for `req` (fastify's default fields, with the URL redacted; anything else logged as `req` is left to the redaction paths). */
 export function requestSerializer(request: FastifyRequest): Record<string, unknown> {
+  if (!request || typeof request !== 'object' || typeof request.url !== 'string' || typeof request.method !== 'string') {
+    return request as unknown as Record<string, unknown>;
+  }
   return {
     method: request.method,
     url: redactUrl(request.url),
