@@ -30,7 +30,7 @@ export async function serveCommand(args: string[], io: CliIo): Promise<number> {
   }
   let store: SqliteStore;
   try {
-    store = openStore(config);
+    store = openStore(config, io);
   } catch (err) {
     lock.release();
     throw err;

@@ -244,7 +244,10 @@ describe('splitballot import', () => {
     expect(await cli(['import', '--experiment', WATER_ID, join(t.dir, 'none.csv')])).toMatchObject({ code: 1, stderr: expect.stringContaining('does not exist') });
     const file = join(t.dir, 'one.csv');
     writeFileSync(file, HEADER);
-    expect(await cli(['import', '--experiment', 'nope', file])).toMatchObject({ code: 1, stderr: 'splitballot import: there is no experiment nope\n' });
+    expect(await cli(['import', '--experiment', 'nope', file])).toMatchObject({
+      code: 1,
+      stderr: `splitballot import: database ${t.dbPath} (SPLITBALLOT_DB)\nsplitballot import: there is no experiment nope in ${t.dbPath} (SPLITBALLOT_DB)\n`,
+    });
   });
 });
 
