@@ -54,6 +54,9 @@ import { resultsPageRoutes } from './routes/results-page.js';
 import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
 
+/** Longest path parameter the router accepts (as sent, percent-encoded); longer → 414. */
+export const MAX_PATH_PARAM_LENGTH = 1024;
+
 export interface AppDeps {
   /** Use this store instead of opening config.dbPath (the caller then closes it). */
   store?: Store;
@@ -108,7 +111,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     bodyLimit: SINGLE_BODY_LIMIT,
     // Path parameters carry responseIds (up to 128 characters) and respondent references (up to 256, URL-encoded):
     // fastify's default of 100 would answer 414 for ids that ingest accepted.
-    routerOptions: { maxParamLength: 1024 },
+    routerOptions: { maxParamLength: MAX_PATH_PARAM_LENGTH },
     requestTimeout,
     keepAliveTimeout: KEEP_ALIVE_TIMEOUT_MS,
     // Node checks request and header timeouts on this interval (default 30 s, far too coarse for a 1–60 s limit).
@@ -128,7 +131,9 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
         type: problemType('malformed-request'),
         title: tooLong ? 'URI too long' : 'Malformed request',
         status: tooLong ? 414 : 400,
-        detail: tooLong ? 'A part of the URL path is longer than 100 characters.' : 'The URL is not valid (bad percent-encoding).',
+        detail: tooLong
+          ? `A part of the URL path is longer than ${MAX_PATH_PARAM_LENGTH.toLocaleString('en-US')} characters.`
+          : 'The URL is not valid (bad percent-encoding).',
       });
     },
   });
