@@ -41,6 +41,7 @@ import { adminRoutes } from './routes/admin.js';
 import { assignmentRoutes } from './routes/assignments.js';
 import { comparisonRoutes } from './routes/comparisons.js';
 import { eventRoutes } from './routes/events.js';
+import { cleanUpRoutes } from './routes/clean-up.js';
 import { exclusionRoutes } from './routes/exclusions.js';
 import { experimentRoutes } from './routes/experiments.js';
 import { exportRoutes } from './routes/exports.js';
@@ -186,6 +187,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(responseRoutes, { store });
   app.register(comparisonRoutes, { store, comparisons });
   app.register(exclusionRoutes, { store });
+  app.register(cleanUpRoutes, { store });
   app.register(lookRoutes, { store });
   app.register(planningRoutes, { store });
   app.register(assignmentRoutes, { store });

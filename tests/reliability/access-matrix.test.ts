@@ -101,6 +101,10 @@ const ACCESS: Record<string, Entry> = {
     path: `/v1/experiments/${WATER_ID}/respondents/respondent-to-erase`,
   },
   'GET /v1/experiments/:id/audit': { scopes: ['admin'] },
+  'POST /v1/experiments/:id/clean-up': {
+    scopes: ['admin'],
+    payload: () => ({ action: 'exclude', reason: 'access matrix (dry run)', receivedFrom: '2000-01-01T00:00:00Z' }),
+  },
 
   'POST /v1/experiments/:id/looks': { scopes: ['admin'], ok: [200, 201, 409, 422], payload: () => ({ measure: 'satisfaction' }) },
   'GET /v1/experiments/:id/looks': { scopes: ['admin', 'read'] },

@@ -6,9 +6,18 @@
 import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
 import type {
+  CleanUpOutcome,
+  CleanUpRequest,
   ErasureOutcome,
   ExclusionOutcome,
 } from '../types.js';
+
+interface CleanUpRow {
+  id: number;
+  response_id: string;
+  condition_id: number;
+  excluded: number;
+}
 
 
 /** Exclusion, restoration and erasure: each ONE write transaction keeping the invariants (see responses.ts). */
@@ -30,6 +39,8 @@ export class SqliteExclusionWriter {
   private readonly audit: AuditWriter;
   private readonly exclusionTx;
   private readonly erasureTx;
+  private readonly matching;
+  private readonly cleanUpTx;
 
   constructor(db: SqliteDatabase) {
     this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
@@ -134,6 +145,49 @@ export class SqliteExclusionWriter {
       return { kind: 'erased', erased: rows.length, dataVersion };
     });
 
+    this.matching = db.prepare<[number, string | null, string | null, string | null, string | null, number | null, number | null], CleanUpRow>(
+      `SELECT id, response_id, condition_id, excluded FROM responses
+       WHERE experiment_id = ? AND (? IS NULL OR received_at >= ?) AND (? IS NULL OR received_at <= ?) AND (? IS NULL OR api_key_id = ?)
+       ORDER BY id`,
+    );
+    this.cleanUpTx = db.transaction((experimentKey: number, request: CleanUpRequest, apiKeyId: number | null, at: string): CleanUpOutcome => {
+      const state = this.experimentState.get(experimentKey);
+      if (!state) return { kind: 'not-found' };
+      const f = request.filter;
+      const rows = this.matching.all(experimentKey, f.receivedFrom, f.receivedFrom, f.receivedTo, f.receivedTo, f.apiKeyId, f.apiKeyId);
+      const targets = request.action === 'exclude' ? rows.filter((r) => r.excluded === 0) : rows;
+      if (request.dryRun || targets.length === 0) return { kind: 'done', matched: rows.length, changed: targets.length, dataVersion: state.data_version };
+      const dataVersion = this.bumpVersion.get(experimentKey) as number;
+      if (request.action === 'exclude') {
+        const perCondition = new Map<number, number>();
+        for (const row of targets) {
+          this.setResponseExcluded.run(1, request.reason, row.id);
+          this.setValuesExcluded.run(1, row.id);
+          for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, 0, 1);
+          perCondition.set(row.condition_id, (perCondition.get(row.condition_id) ?? 0) + 1);
+          // One audit row per response, so that each can be restored (and its exclusion traced) one by one.
+          this.audit.record({ experimentKey, action: 'exclude', responseId: row.response_id, reason: request.reason, count: 1, apiKeyId, at, dataVersion });
+        }
+        for (const [conditionKey, n] of perCondition) this.bumpExcluded.run(n, conditionKey);
+      } else {
+        const perCondition = new Map<number, { responses: number; excluded: number }>();
+        for (const row of targets) {
+          for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, row.excluded as 0 | 1, null);
+          this.deleteValuesOf.run(row.id);
+          this.deleteResponse.run(row.id);
+          this.audit.redactResponse(experimentKey, row.response_id);
+          const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
+          c.responses += 1;
+          c.excluded += row.excluded;
+          perCondition.set(row.condition_id, c);
+        }
+        for (const [conditionKey, c] of perCondition) this.dropCondition.run(c.responses, c.excluded, conditionKey);
+        // The count, the reason given and the key that asked; no response ids.
+        this.audit.record({ experimentKey, action: 'erase', responseId: null, reason: request.reason, count: targets.length, apiKeyId, at, dataVersion });
+      }
+      return { kind: 'done', matched: rows.length, changed: targets.length, dataVersion };
+    });
+
   }
 
 
@@ -160,5 +214,9 @@ export class SqliteExclusionWriter {
 
   async eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome> {
     return this.erasureTx.immediate(experimentKey, respondent, apiKeyId, at);
+  }
+
+  async cleanUp(experimentKey: number, request: CleanUpRequest, apiKeyId: number | null, at: string): Promise<CleanUpOutcome> {
+    return this.cleanUpTx.immediate(experimentKey, request, apiKeyId, at);
   }
 }
