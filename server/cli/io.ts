@@ -52,7 +52,8 @@ Commands:
   check                 verify the database: integrity and the stored counts
 
 Run "splitballot <command> --help" for a command's options. Run it as "npx splitballot" in the project folder,
-or "node dist/server/main.js" after "npm run build". Commands that open a database name the file on stderr.
+or "node dist/server/main.js" after "npm run build". Commands that open a database name the file on stderr
+(serve: in its log).
 
 ${ENVIRONMENT_HELP}
 `,
