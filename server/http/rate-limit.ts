@@ -10,9 +10,11 @@
  * `perMinute` answers a minute, however they are packed into requests. (Before, a 10,000-answer batch counted once.)
  *
  * The answers of a request are counted after its body is parsed and its key is known (preHandler): a batch counts
- * its items, a CSV import its non-empty lines after the header, everything else 1.
+ * its items, a CSV import its non-empty lines after the header, everything else 1. A request whose key (sent in the
+ * header) has no answer left at all is refused earlier, in onRequest, before its body is read, so that a flood of
+ * large batches costs the service no parsing.
  */
-import type { FastifyInstance, FastifyRequest } from 'fastify';
+import type { FastifyInstance, FastifyReply, FastifyRequest } from 'fastify';
 import { isIngestRoute } from './auth.js';
 import type { ServiceMetrics } from './metrics.js';
 import { sendProblem } from './problem-handler.js';
@@ -84,6 +86,17 @@ export class AnswerBudget {
     };
   }
 
+  /** Whether one answer could be admitted now (nothing is charged). */
+  hasRoom(id: string, now: number): { room: boolean; retryAfterS: number; resetS: number } {
+    const b = this.refill(id, now);
+    const missing = Math.max(0, 1 - b.tokens);
+    return {
+      room: b.tokens >= 1,
+      retryAfterS: Math.max(1, Math.ceil(missing / this.perMs / 1000)),
+      resetS: Math.ceil((this.perMinute - b.tokens) / this.perMs / 1000),
+    };
+  }
+
   private sweep(now: number): void {
     for (const [id, b] of this.buckets) {
       if (b.tokens + (now - b.at) * this.perMs >= this.perMinute) this.buckets.delete(id);
@@ -94,25 +107,40 @@ export class AnswerBudget {
 export function registerIngestRateLimit(app: FastifyInstance, perMinute: number, metrics: ServiceMetrics, now: () => number = Date.now): void {
   if (perMinute <= 0) return;
   const budget = new AnswerBudget(perMinute);
+  const bucketOf = (request: FastifyRequest) => `${request.principal?.keyId ?? 'none'}|${request.ip}`;
+  // Before the body is read: a header key with no answer left is refused at once.
+  app.addHook('onRequest', async (request, reply) => {
+    if (!request.principal || !isIngestRoute(request)) return;
+    const r = budget.hasRoom(bucketOf(request), now());
+    if (r.room) return;
+    reply.header('x-ratelimit-limit', String(perMinute));
+    reply.header('x-ratelimit-remaining', '0');
+    reply.header('x-ratelimit-reset', String(r.resetS));
+    return refuse(request, reply, r.retryAfterS, null);
+  });
   app.addHook('preHandler', async (request, reply) => {
     if (!isIngestRoute(request)) return;
     const answers = answersInRequest(request);
-    const r = budget.take(`${request.principal?.keyId ?? 'none'}|${request.ip}`, answers, now());
+    const r = budget.take(bucketOf(request), answers, now());
     reply.header('x-ratelimit-limit', String(perMinute));
     reply.header('x-ratelimit-remaining', String(r.remaining));
     reply.header('x-ratelimit-reset', String(r.resetS));
     if (r.admitted) return;
+    return refuse(request, reply, r.retryAfterS, answers);
+  });
+
+  function refuse(request: FastifyRequest, reply: FastifyReply, retryAfterS: number, answers: number | null) {
     const route = request.routeOptions.url ?? 'unmatched';
     metrics.recordRateLimited(route);
-    reply.header('retry-after', String(r.retryAfterS));
+    reply.header('retry-after', String(retryAfterS));
     request.log.info({ route, keyId: request.principal?.keyId ?? null, answers }, 'ingest rate limit reached');
     return sendProblem(request, reply, {
       type: RATE_LIMITED_TYPE,
       title: 'Too many requests',
       status: 429,
       detail:
-        `More than ${perMinute} answers per minute from this key and address; retry after ${r.retryAfterS} s. ` +
+        `More than ${perMinute} answers per minute from this key and address; retry after ${retryAfterS} s. ` +
         'The limit counts answers, not requests: a batch or CSV import is charged one per answer.',
     });
-  });
+  }
 }
