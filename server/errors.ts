@@ -21,6 +21,7 @@ export const PROBLEM_TYPES = {
   'monitoring-not-configured': { status: 409, title: 'Monitoring not configured' },
   'look-not-possible': { status: 409, title: 'Look not possible' },
   'allocation-unusable': { status: 409, title: 'Allocation unusable' },
+  'already-assigned': { status: 409, title: 'Respondent already assigned' },
   'request-timeout': { status: 408, title: 'Request timeout' },
   'rate-limited': { status: 429, title: 'Too many requests' },
   'headers-too-large': { status: 431, title: 'Request headers too large' },

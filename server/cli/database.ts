@@ -14,7 +14,7 @@ export async function migrateCommand(args: string[], io: CliIo): Promise<number>
     return 0;
   }
   const config = loadConfig(io.env);
-  const store = openStore(config);
+  const store = openStore(config, io);
   try {
     const { applied, alreadyApplied } = store.migration;
     io.stdout.write(

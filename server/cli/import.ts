@@ -8,7 +8,7 @@
 import { closeSync, existsSync, openSync, writeSync } from 'node:fs';
 import { parseArgs } from 'node:util';
 import { stringify } from 'csv-stringify/sync';
-import type { CliIo } from './io.js';
+import { describeDatabase, type CliIo } from './io.js';
 import { loadConfig } from '../config.js';
 import { importCsvFile } from '../services/ingest/csv-import.js';
 import { describeProblem, type ImportProblem } from '../services/ingest/csv-rows.js';
@@ -73,13 +73,14 @@ export async function importCommand(argv: string[], io: CliIo): Promise<number> 
   const rejectsPath = values.rejects ?? (skipInvalid ? `${file}.rejects.csv` : null);
 
   const config = loadConfig(io.env);
+  io.stderr.write(`splitballot import: database ${describeDatabase(config, io.env)}\n`);
   const store = openSqliteStore(config.dbPath);
   let rejectsFd: number | null = null;
   const started = Date.now();
   try {
     const experiment = await store.experiments.getBySlug(values.experiment);
     if (!experiment) {
-      io.stderr.write(`splitballot import: there is no experiment ${values.experiment}\n`);
+      io.stderr.write(`splitballot import: there is no experiment ${values.experiment} in ${describeDatabase(config, io.env)}\n`);
       return 1;
     }
     if (experiment.status !== 'open') {

@@ -3,6 +3,7 @@
  * error (exit code 2) and how a command opens the database. The commands live one group per file beside this one
  * (serve.ts, keys.ts, database.ts, import.ts); run.ts dispatches.
  */
+import { resolve } from 'node:path';
 import { SHUTDOWN_GRACE_DEFAULT_MS, type Config } from '../config.js';
 import { openSqliteStore, type SqliteStore } from '../store/sqlite/store.js';
 
@@ -20,10 +21,13 @@ export const SHUTDOWN_GRACE_MS = SHUTDOWN_GRACE_DEFAULT_MS;
 const ENVIRONMENT_HELP = `Environment:
   PORT                      port to listen on (default 8080)
   HOST                      address to listen on (default 127.0.0.1)
-  SPLITBALLOT_DB            SQLite database file (default ./data/splitballot.db; the folder is created)
+  SPLITBALLOT_DB            SQLite database file (default ./data/splitballot.db, relative to the current folder; the
+                            folder is created 0700, the file 0600). Every command must see the SAME value as the
+                            server: "keys create" on another file makes a key the server never sees.
   SPLITBALLOT_ADMIN_KEY     optional: this exact secret (32+ characters) is accepted as an admin key
   SPLITBALLOT_CORS_ORIGINS  comma-separated browser origins allowed to call the API (default: none)
-  SPLITBALLOT_RATE_LIMIT_INGEST  ingest requests per minute per API key and client address (default 600; 0 = off)
+  SPLITBALLOT_RATE_LIMIT_INGEST  answers per minute per API key and client address (default 600; 0 = off); a batch
+                                 or CSV import counts each answer
   SPLITBALLOT_REQUEST_TIMEOUT    seconds within which a whole request must arrive (default 60)
   SPLITBALLOT_SHUTDOWN_TIMEOUT   seconds in-flight requests may take after SIGTERM (default 10)
   SPLITBALLOT_BACKUP_DIR    folder for POST /v1/admin/backup (default: "backups" beside the database)
@@ -47,7 +51,9 @@ Commands:
   restore BACKUP        replace the database by a backup (the service must be stopped)
   check                 verify the database: integrity and the stored counts
 
-Run "splitballot <command> --help" for a command's options.
+Run "splitballot <command> --help" for a command's options. Run it as "npx splitballot" in the project folder,
+or "node dist/server/main.js" after "npm run build". Commands that open a database name the file on stderr
+(serve: in its log).
 
 ${ENVIRONMENT_HELP}
 `,
@@ -72,7 +78,7 @@ and exit. Refuses, changing nothing, when an applied migration was edited or is 
 `,
   keys: `Usage: splitballot keys <create|list|revoke> [options]
 
-  keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
+  keys create --scope form|ingest|read|admin [--experiment ID] [--label TEXT]
   keys list [--json]
   keys revoke ID
 
@@ -100,14 +106,17 @@ foreign_key_check, then the counts the service keeps at ingest against the store
 and every experiment's data version. Read-only; safe while the service runs. Prints one summary line; with
 problems, one line per problem on stderr and exit code 1.
 `,
-  'keys create': `Usage: splitballot keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
+  'keys create': `Usage: splitballot keys create --scope form|ingest|read|admin [--experiment ID] [--label TEXT]
 
 Make an API key and print its secret on stdout, once (only its SHA-256 hash is stored).
-  --scope admin|ingest|read   admin: everything; ingest: post responses only; read: definitions and results
+  --scope form|ingest|read|admin
+                              form: the key for a public survey page (one answer at a time, a new respondent's
+                              assignment; nothing else); ingest: server-side posting (batches, CSV imports) and
+                              assignment, never embed it in a page; read: definitions and results; admin: everything
   --experiment ID             limit the key to one experiment (it must exist)
   --label TEXT                a note for "keys list", e.g. "panel form, wave 2"
 
-Example: KEY=$(splitballot keys create --scope ingest --experiment water-bill-2027 --label "web form")
+Example: KEY=$(splitballot keys create --scope form --experiment water-bill-2027 --label "web form")
 `,
   'keys list': `Usage: splitballot keys list [--json]
 
@@ -122,7 +131,14 @@ Revoke the key with this id (see "keys list"). Takes effect at once, also in a r
 
 export class UsageError extends Error {}
 
-export function openStore(config: Config): SqliteStore {
+/** The database file a command uses, as shown to the operator: the absolute path and where it came from. */
+export function describeDatabase(config: Config, env: NodeJS.ProcessEnv | Record<string, string | undefined>): string {
+  return `${resolve(config.dbPath)} (${env.SPLITBALLOT_DB ? 'SPLITBALLOT_DB' : 'the default; SPLITBALLOT_DB is not set'})`;
+}
+
+/** Open (and migrate) the database of `config`; with `io`, first say on stderr which file is used. */
+export function openStore(config: Config, io?: CliIo): SqliteStore {
+  if (io) io.stderr.write(`splitballot: database ${describeDatabase(config, io.env)}\n`);
   return openSqliteStore(config.dbPath);
 }
 

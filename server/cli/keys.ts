@@ -3,7 +3,7 @@ import { parseArgs } from 'node:util';
 import { generateSecret, hashSecret, SCOPES } from '../services/keys.js';
 import { loadConfig } from '../config.js';
 import type { Scope } from '../store/types.js';
-import { HELP, openStore, pad, UsageError, type CliIo } from './io.js';
+import { describeDatabase, HELP, openStore, pad, UsageError, type CliIo } from './io.js';
 
 export async function keysCommand(args: string[], io: CliIo): Promise<number> {
   const sub = args[0];
@@ -27,13 +27,16 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
       throw new UsageError(`--scope must be one of ${SCOPES.join(', ')}`);
     }
     const config = loadConfig(io.env);
-    const store = openStore(config);
+    const store = openStore(config, io);
     try {
       let experimentKey: number | null = null;
       if (values.experiment !== undefined) {
         const e = await store.experiments.getBySlug(values.experiment);
         if (!e) {
-          io.stderr.write(`splitballot: there is no experiment ${values.experiment}\n`);
+          io.stderr.write(
+            `splitballot: there is no experiment ${values.experiment} in ${describeDatabase(config, io.env)}; ` +
+              'the CLI must use the same SPLITBALLOT_DB as the server\n',
+          );
           return 1;
         }
         experimentKey = e.key;
@@ -63,7 +66,7 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
       io.stdout.write(HELP['keys list']);
       return 0;
     }
-    const store = openStore(loadConfig(io.env));
+    const store = openStore(loadConfig(io.env), io);
     try {
       const keys = await store.apiKeys.list();
       if (values.json) {
@@ -89,7 +92,7 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
     }
     if (positionals.length !== 1 || !/^\d+$/.test(positionals[0])) throw new UsageError('keys revoke needs one key id (a number; see "keys list")');
     const id = Number(positionals[0]);
-    const store = openStore(loadConfig(io.env));
+    const store = openStore(loadConfig(io.env), io);
     try {
       const r = await store.apiKeys.revoke(id, new Date().toISOString());
       if (r === 'not-found') {

@@ -6,7 +6,7 @@ import { ensureAdminKey } from '../services/keys.js';
 import { loadConfig } from '../config.js';
 import { acquireServerLock, lockPathOf } from '../store/sqlite/lock.js';
 import type { SqliteStore } from '../store/sqlite/store.js';
-import { HELP, openStore, SHUTDOWN_GRACE_MS, type CliIo } from './io.js';
+import { describeDatabase, HELP, openStore, SHUTDOWN_GRACE_MS, type CliIo } from './io.js';
 
 function defaultShutdownSignal(): Promise<string> {
   return new Promise((resolve) => {
@@ -44,6 +44,8 @@ export async function serveCommand(args: string[], io: CliIo): Promise<number> {
     throw err;
   }
   const app = buildApp(config, { store, processMetrics: true });
+  // Which file this server uses, in its log (stdout): a `keys create` must be run with the same SPLITBALLOT_DB.
+  app.log.info({ database: describeDatabase(config, io.env) }, 'database opened');
   try {
     await app.listen({ port: config.port, host: config.host });
   } catch (err) {

@@ -32,7 +32,7 @@ import type { Store } from '../store/types.js';
 import { registerAuth, type RouteAccess } from './auth.js';
 import { registerCors } from './cors.js';
 import { registerJsonParser } from './json-body.js';
-import { REDACTED_LOG_PATHS } from './logging.js';
+import { REDACTED_LOG_PATHS, requestSerializer } from './logging.js';
 import { instrumentStore, metricsRoutes, registerRequestMetrics, ServiceMetrics } from './metrics.js';
 import { registerOpenApi } from './openapi-document.js';
 import { clientErrorHandler, registerProblemHandlers, sendProblem } from './problem-handler.js';
@@ -41,6 +41,7 @@ import { adminRoutes } from './routes/admin.js';
 import { assignmentRoutes } from './routes/assignments.js';
 import { comparisonRoutes } from './routes/comparisons.js';
 import { eventRoutes } from './routes/events.js';
+import { cleanUpRoutes } from './routes/clean-up.js';
 import { exclusionRoutes } from './routes/exclusions.js';
 import { experimentRoutes } from './routes/experiments.js';
 import { exportRoutes } from './routes/exports.js';
@@ -56,6 +57,9 @@ import { formDefinitionRoutes } from './routes/form-definition.js';
 import { overviewRoutes } from './routes/overview.js';
 import { API_CSP, registerSecurityHeaders, SECURITY_HEADERS } from './security-headers.js';
 import { zodValidatorCompiler } from './validator.js';
+
+/** Longest path parameter the router accepts (as sent, percent-encoded); longer → 414. */
+export const MAX_PATH_PARAM_LENGTH = 1024;
 
 export interface AppDeps {
   /** Use this store instead of opening config.dbPath (the caller then closes it). */
@@ -105,12 +109,13 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     logger: {
       level: config.logLevel,
       redact: { paths: REDACTED_LOG_PATHS, censor: '[redacted]' },
+      serializers: { req: requestSerializer as (req: unknown) => Record<string, unknown> },
       ...(deps.logStream ? { stream: deps.logStream } : {}),
     },
     bodyLimit: SINGLE_BODY_LIMIT,
     // Path parameters carry responseIds (up to 128 characters) and respondent references (up to 256, URL-encoded):
     // fastify's default of 100 would answer 414 for ids that ingest accepted.
-    routerOptions: { maxParamLength: 1024 },
+    routerOptions: { maxParamLength: MAX_PATH_PARAM_LENGTH },
     requestTimeout,
     keepAliveTimeout: KEEP_ALIVE_TIMEOUT_MS,
     // Node checks request and header timeouts on this interval (default 30 s, far too coarse for a 1–60 s limit).
@@ -130,7 +135,9 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
         type: problemType('malformed-request'),
         title: tooLong ? 'URI too long' : 'Malformed request',
         status: tooLong ? 414 : 400,
-        detail: tooLong ? 'A part of the URL path is longer than 100 characters.' : 'The URL is not valid (bad percent-encoding).',
+        detail: tooLong
+          ? `A part of the URL path is longer than ${MAX_PATH_PARAM_LENGTH.toLocaleString('en-US')} characters.`
+          : 'The URL is not valid (bad percent-encoding).',
       });
     },
   });
@@ -172,8 +179,6 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   registerRequestMetrics(app, metrics);
   registerOpenApi(app);
 
-  // Ingest rate limit: per (API key, client address), after authentication so that the key is known. A form post
-  // without an Authorization header is counted per address until its ingestKey field is read.
   app.register(async (instance) => {
     await store.apiKeys.syncEnvironmentKey(config.adminKeyHash, new Date().toISOString());
     instance.log.debug('environment admin key synchronised');
@@ -185,6 +190,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(responseRoutes, { store });
   app.register(comparisonRoutes, { store, comparisons });
   app.register(exclusionRoutes, { store });
+  app.register(cleanUpRoutes, { store });
   app.register(lookRoutes, { store, comparisons });
   app.register(planningRoutes, { store });
   app.register(assignmentRoutes, { store });

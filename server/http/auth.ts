@@ -1,15 +1,16 @@
 /**
  * The auth hooks: who may call which route (secrets, hashes and the first admin key are services/keys.ts).
  *
- * Scopes: admin (everything), ingest (post responses only — it can never read results), read (definitions,
- * comparisons, exports). A key may be limited to one experiment.
+ * Scopes: admin (everything), ingest (post responses singly, in batches or as CSV, and assign respondents — it can
+ * never read results; server-side only), read (definitions, comparisons, exports), form (what a respondent's page
+ * does: FORM_SCOPE_ROUTES below). A key may be limited to one experiment.
  *
  * Every route declares `config.access`; a route without one cannot be registered (onRoute throws), so nothing
  * is public by accident. Missing/malformed/unknown/revoked key → 401; wrong scope or experiment → 403.
  *
  * HTML forms cannot send headers: on routes with `formKey`, a form post without an Authorization header may carry
- * an INGEST key in the form field `ingestKey`, checked after the body is parsed. Admin and read keys are refused
- * there (403), because a key in a web page is visible to everyone who opens it.
+ * a form (or, for older pages, an ingest) key in the form field `ingestKey`, checked after the body is parsed. Admin
+ * and read keys are refused there (403), because a key in a web page is visible to everyone who opens it.
  */
 import type { FastifyInstance, FastifyRequest } from 'fastify';
 import { activeKeyByHash, hashSecret } from '../services/keys.js';
@@ -17,6 +18,22 @@ import type { ApiKeyRecord, Scope, Store } from '../store/types.js';
 import { FORM_KEY_FIELD } from '../schemas/responses.js';
 import { isFormContentType } from './negotiate.js';
 import { ProblemError } from '../errors.js';
+
+/**
+ * THE list of what a public form key may do: the routes a respondent's page calls. A route that a survey page needs
+ * (posting one answer, a new respondent's assignment, a public form definition) lists `'form'` among its scopes by
+ * spreading `RESPONDENT_SCOPES`; everything else (batches, CSV imports, reads, admin) must not. The access matrix
+ * (tests/reliability/access-matrix.test.ts) checks the routes one by one.
+ */
+export const FORM_SCOPE_ROUTES: readonly string[] = [
+  'POST /v1/experiments/:id/responses',
+  'POST /v1/experiments/:id/assignments',
+  'GET /v1/experiments/:id/form',
+];
+/** Scopes of a route a respondent's page calls: the public form key, plus server-side ingest and admin keys. */
+export const RESPONDENT_SCOPES: readonly Scope[] = ['form', 'ingest', 'admin'];
+/** Scopes that may arrive in the `ingestKey` field of a form post. */
+const FORM_FIELD_SCOPES: readonly Scope[] = ['form', 'ingest'];
 
 /** last_used_at is written at most this often per key (ms), so that reads do not turn into writes. */
 export const TOUCH_INTERVAL_MS = 60_000;
@@ -94,11 +111,11 @@ function toPrincipal(key: ApiKeyRecord, via: Principal['via']): Principal {
   return { keyId: key.id, scope: key.scope, experiment: key.experiment, experimentKey: key.experimentKey, via };
 }
 
-/** A POST to a route that an ingest key may call (what the ingest rate limit and the refused-response counter watch). */
+/** A POST to a route that an ingest or form key may call (what the ingest rate limit and the refused-response counter watch). */
 export function isIngestRoute(request: FastifyRequest): boolean {
   if (request.method !== 'POST' || request.is404) return false;
   const access = request.routeOptions.config.access;
-  return access !== undefined && !access.public && access.scopes.includes('ingest');
+  return access !== undefined && !access.public && (access.scopes.includes('ingest') || access.scopes.includes('form'));
 }
 
 export function registerAuth(app: FastifyInstance, store: Store, now: () => Date = () => new Date()): void {
@@ -156,9 +173,9 @@ export function registerAuth(app: FastifyInstance, store: Store, now: () => Date
     }
     if (secret.length > 512) throw unauthorized('The API key is not valid (unknown or revoked).');
     const key = await authenticate(store, secret);
-    if (key.scope !== 'ingest') {
+    if (!FORM_FIELD_SCOPES.includes(key.scope)) {
       request.log.warn({ keyId: key.id, scope: key.scope }, `a key with the ${key.scope} scope was sent in a form field and refused; it may be exposed in a web page, consider revoking it`);
-      throw new ProblemError('forbidden', `Only an ingest key may be sent in the form field ${FORM_KEY_FIELD}; admin and read keys are refused there.`);
+      throw new ProblemError('forbidden', `Only a form (or ingest) key may be sent in the form field ${FORM_KEY_FIELD}; admin and read keys are refused there.`);
     }
     authorize(key, access, request);
     request.principal = toPrincipal(key, 'form');

@@ -1,4 +1,7 @@
-/** CORS for the configured browser origins only (none by default: then no CORS headers at all). */
+/**
+ * CORS for the configured browser origins only (none by default: then no CORS headers at all). Retry-After and the
+ * rate-limit headers are exposed, so that a survey page's script can wait as long as the service asks.
+ */
 import cors from '@fastify/cors';
 import type { FastifyInstance } from 'fastify';
 
@@ -8,7 +11,7 @@ export function registerCors(app: FastifyInstance, origins: string[]): void {
         origin: origins,
         methods: ['GET', 'HEAD', 'POST', 'PATCH', 'DELETE'],
         allowedHeaders: ['Authorization', 'Content-Type', 'If-None-Match'],
-        exposedHeaders: ['ETag', 'Location', 'Retry-After'],
+        exposedHeaders: ['ETag', 'Location', 'Retry-After', 'X-RateLimit-Limit', 'X-RateLimit-Remaining', 'X-RateLimit-Reset'],
         maxAge: 600,
       });
     }

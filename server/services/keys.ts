@@ -12,7 +12,7 @@ import { sha256 } from '../config.js';
 import type { ApiKeyRecord, Scope, Store } from '../store/types.js';
 
 export const SECRET_PREFIX = 'sb_';
-export const SCOPES: readonly Scope[] = ['admin', 'ingest', 'read'];
+export const SCOPES: readonly Scope[] = ['admin', 'ingest', 'read', 'form'];
 
 export function generateSecret(): string {
   return SECRET_PREFIX + randomBytes(32).toString('base64url');

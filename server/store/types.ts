@@ -15,7 +15,12 @@
 
 import type { AssignmentRepository, LookRepository } from './monitoring-types.js';
 
-export type Scope = 'admin' | 'ingest' | 'read';
+/**
+ * admin: everything; ingest: post answers (single, batch, CSV) and assign respondents, server-side only; read:
+ * definitions, comparisons, exports; form: what a respondent's page does (one answer at a time, a new respondent's
+ * assignment), the only scope meant to be embedded in a public page.
+ */
+export type Scope = 'admin' | 'ingest' | 'read' | 'form';
 export type ExperimentStatus = 'open' | 'closed';
 
 /** Why a value was refused at ingest. Counted per (experiment, measure, reason). */
@@ -420,7 +425,42 @@ export interface ResponseRepository {
    * count and time, and earlier audit rows of the erased responses redacted. 0 responses is not an error.
    */
   eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome>;
+  /**
+   * Bulk clean-up: exclude or erase every response of an experiment that matches `filter` (received in a time window,
+   * through one API key, or both), in ONE write transaction keeping the same invariants as setExcluded and
+   * eraseRespondent, with dataVersion + 1 once (when anything changed) and audit rows (exclude: one per response with
+   * the reason; erase: one row with the count and the reason). With `dryRun` nothing is written: the counts only.
+   */
+  cleanUp(experimentKey: number, request: CleanUpRequest, apiKeyId: number | null, at: string): Promise<CleanUpOutcome>;
 }
+
+/** Which responses a bulk clean-up takes: every given condition must hold (at least one is given). */
+export interface CleanUpFilter {
+  /** received_at ≥ this ISO time (inclusive), or null. */
+  receivedFrom: string | null;
+  /** received_at ≤ this ISO time (inclusive), or null. */
+  receivedTo: string | null;
+  /** Stored through this API key id, or null. */
+  apiKeyId: number | null;
+}
+
+export interface CleanUpRequest {
+  action: 'exclude' | 'erase';
+  reason: string;
+  filter: CleanUpFilter;
+  dryRun: boolean;
+}
+
+export type CleanUpOutcome =
+  | { kind: 'not-found' }
+  | {
+      kind: 'done';
+      /** Responses matching the filter. */
+      matched: number;
+      /** Responses changed (or that would be, in a dry run): matched ones not already excluded, or all matched for erase. */
+      changed: number;
+      dataVersion: number;
+    };
 
 export interface ApiKeyRecord {
   id: number;

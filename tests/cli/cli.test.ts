@@ -22,7 +22,7 @@ describe('help', () => {
       [['serve', '--help'], 'Usage: splitballot serve'],
       [['migrate', '--help'], 'Usage: splitballot migrate'],
       [['keys', '--help'], 'Usage: splitballot keys <create|list|revoke>'],
-      [['keys', 'create', '--help'], 'Usage: splitballot keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]'],
+      [['keys', 'create', '--help'], 'Usage: splitballot keys create --scope form|ingest|read|admin [--experiment ID] [--label TEXT]'],
       [['keys', 'list', '--help'], 'Usage: splitballot keys list'],
       [['keys', 'revoke', '--help'], 'Usage: splitballot keys revoke ID'],
     ];
@@ -36,7 +36,7 @@ describe('help', () => {
   it('usage errors exit 2 with a one-line reason', async () => {
     expect(await cli([])).toMatchObject({ code: 2 });
     expect(await cli(['launch'])).toMatchObject({ code: 2, stderr: 'splitballot: unknown command "launch"\nRun "splitballot --help" for usage.\n' });
-    expect(await cli(['keys', 'create', '--scope', 'owner'])).toMatchObject({ code: 2, stderr: expect.stringContaining('--scope must be one of admin, ingest, read') });
+    expect(await cli(['keys', 'create', '--scope', 'owner'])).toMatchObject({ code: 2, stderr: expect.stringContaining('--scope must be one of admin, ingest, read, form') });
     expect(await cli(['keys', 'revoke', 'abc'])).toMatchObject({ code: 2 });
     expect(await cli(['migrate', '--force'])).toMatchObject({ code: 2, stderr: expect.stringContaining("Unknown option '--force'") });
   });
@@ -47,7 +47,7 @@ describe('migrate and keys', () => {
     const db = join(tempDir(), 'sub', 'cli.db');
     const first = await cli(['migrate'], { SPLITBALLOT_DB: db });
     const names = loadMigrations().map((m) => m.name);
-    expect(first).toEqual({ code: 0, stdout: `Applied ${names.length} migrations to ${db}: ${names.join(', ')}\n`, stderr: '' });
+    expect(first).toEqual({ code: 0, stdout: `Applied ${names.length} migrations to ${db}: ${names.join(', ')}\n`, stderr: `splitballot: database ${db} (SPLITBALLOT_DB)\n` });
     const again = await cli(['migrate'], { SPLITBALLOT_DB: db });
     expect(again.stdout).toBe(`${db} is up to date (${names.length} migrations applied earlier).\n`);
   });
@@ -57,7 +57,7 @@ describe('migrate and keys', () => {
     const created = await cli(['keys', 'create', '--scope', 'read', '--label', 'dashboard'], { SPLITBALLOT_DB: db });
     expect(created.code).toBe(0);
     expect(created.stdout).toMatch(/^sb_[A-Za-z0-9_-]{43}\n$/);
-    expect(created.stderr).toBe('Created key 1 (read). The secret above is shown only this once; store it now.\n');
+    expect(created.stderr).toBe(`splitballot: database ${db} (SPLITBALLOT_DB)\nCreated key 1 (read). The secret above is shown only this once; store it now.\n`);
     const secret = created.stdout.trim();
     const list = await cli(['keys', 'list'], { SPLITBALLOT_DB: db });
     expect(list.stdout).toMatch(/^ID\s+SCOPE\s+EXPERIMENT\s+ORIGIN\s+CREATED\s+LAST USED\s+REVOKED\s+LABEL\n1\s+read\s+\*\s+cli\s+\S+\s+-\s+-\s+dashboard\n$/);
@@ -66,11 +66,17 @@ describe('migrate and keys', () => {
     expect(JSON.stringify(json)).not.toContain(secret.slice(3));
     expect(await cli(['keys', 'revoke', '1'], { SPLITBALLOT_DB: db })).toMatchObject({ code: 0, stdout: 'Revoked key 1.\n' });
     expect(await cli(['keys', 'revoke', '1'], { SPLITBALLOT_DB: db })).toMatchObject({ code: 0, stdout: 'Key 1 was already revoked.\n' });
-    expect(await cli(['keys', 'revoke', '7'], { SPLITBALLOT_DB: db })).toMatchObject({ code: 1, stderr: 'splitballot: there is no key 7\n' });
+    expect(await cli(['keys', 'revoke', '7'], { SPLITBALLOT_DB: db })).toMatchObject({ code: 1, stderr: `splitballot: database ${db} (SPLITBALLOT_DB)\nsplitballot: there is no key 7\n` });
+    // A key for an experiment that this file lacks: the message names the file looked in (often the wrong SPLITBALLOT_DB).
     expect(await cli(['keys', 'create', '--scope', 'ingest', '--experiment', 'nope'], { SPLITBALLOT_DB: db })).toMatchObject({
       code: 1,
-      stderr: 'splitballot: there is no experiment nope\n',
+      stderr:
+        `splitballot: database ${db} (SPLITBALLOT_DB)\n` +
+        `splitballot: there is no experiment nope in ${db} (SPLITBALLOT_DB); the CLI must use the same SPLITBALLOT_DB as the server\n`,
     });
+    const form = await cli(['keys', 'create', '--scope', 'form', '--label', 'survey page'], { SPLITBALLOT_DB: db });
+    expect(form.code).toBe(0);
+    expect(form.stderr).toContain('Created key 2 (form).');
   });
 
   it('a bad variable or an edited migration stops with one line and exit code 1', async () => {

@@ -59,6 +59,10 @@ describe('over HTTP with supertest', () => {
       .send(waterResponse());
     expect(post.status).toBe(201);
     expect(post.headers['access-control-allow-origin']).toBe('https://survey.example.org');
+    // A page's script may read how long to wait after a 429, and the rate-limit headers.
+    expect(String(post.headers['access-control-expose-headers']).split(',').map((h) => h.trim().toLowerCase()).sort()).toEqual(
+      ['etag', 'location', 'retry-after', 'x-ratelimit-limit', 'x-ratelimit-remaining', 'x-ratelimit-reset'],
+    );
     const evil = await request(server).post(`/v1/experiments/${WATER_ID}/responses`).set('origin', 'https://evil.example.com').set('authorization', `Bearer ${t.adminKey}`).send(waterResponse());
     expect(evil.headers['access-control-allow-origin']).toBeUndefined();
   });

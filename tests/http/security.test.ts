@@ -97,7 +97,7 @@ describe('ingest rate limit', () => {
   const post = (key: string, remoteAddress = '127.0.0.1', payload: unknown = waterResponse()) =>
     t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, key, payload: payload as Record<string, unknown>, remoteAddress });
 
-  it('per key and address: the 6th request in a minute gets 429 problem+json with Retry-After; others are unaffected', async () => {
+  it('per key and address: the 6th answer in a minute gets 429 problem+json with Retry-After; others are unaffected', async () => {
     const a = await t.key('ingest', null, 'form a');
     const b = await t.key('ingest', null, 'form b');
     for (let i = 0; i < 5; i++) {
@@ -116,7 +116,7 @@ describe('ingest rate limit', () => {
       type: 'urn:splitballot:problem:rate-limited',
       title: 'Too many requests',
       status: 429,
-      detail: `More than 5 ingest requests per minute from this key and address; retry after ${retryAfter} s. Send many responses in one batch request (POST …/responses/batch counts once).`,
+      detail: `More than 5 answers per minute from this key and address; retry after ${retryAfter} s. The limit counts answers, not requests: a batch or CSV import is charged one per answer.`,
     });
     // Another key from the same address, and the same key from another address, have their own budgets.
     expect((await post(b)).statusCode).toBe(201);
@@ -131,15 +131,33 @@ describe('ingest rate limit', () => {
     expect(metrics).toContain('splitballot_ingest_refused_total{reason="rate-limited"} 1');
   });
 
-  it('a batch of 100 responses counts as one request', async () => {
+  it('a batch counts its answers: one batch of 100 is admitted on a full budget, then the key waits until the 100 are paid back', async () => {
     const c = await t.key('ingest', null, 'batch');
-    const batch = { responses: Array.from({ length: 100 }, () => waterResponse()) };
-    for (let i = 0; i < 5; i++) {
-      const res = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, key: c, payload: batch, remoteAddress: '10.9.9.9' });
-      expect(res.statusCode).toBe(201);
-    }
-    const res = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, key: c, payload: batch, remoteAddress: '10.9.9.9' });
-    expect(res.statusCode).toBe(429);
+    const batch = () => ({ responses: Array.from({ length: 100 }, () => waterResponse()) });
+    const first = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, key: c, payload: batch(), remoteAddress: '10.9.9.9' });
+    expect(first.statusCode).toBe(201);
+    expect(first.headers['x-ratelimit-remaining']).toBe('0');
+    const second = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/batch`, key: c, payload: batch(), remoteAddress: '10.9.9.9' });
+    expect(second.statusCode).toBe(429);
+    // Refused before its body is read (the key has no answer left): Retry-After is when ONE answer fits again —
+    // 5 answers a minute, 95 overdrawn → (95 + 1) / 5 per minute = 1152 s (± 1 s of test time).
+    expect(Math.abs(Number(second.headers['retry-after']) - 1152)).toBeLessThanOrEqual(1);
+    const single = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, key: c, payload: waterResponse(), remoteAddress: '10.9.9.9' });
+    expect(single.statusCode).toBe(429);
+  });
+
+  it('a CSV import counts its rows', async () => {
+    const c = await t.key('ingest', null, 'csv');
+    const rows = Array.from({ length: 7 }, (_, i) => `csv-rate-${i},bill-first,5,4,20`).join('\n');
+    const csv = (n: number) => `responseId,condition,satisfaction,trust,fair_price\n${rows.replaceAll('csv-rate', `csv-rate-${n}`)}\n`;
+    const send = (n: number) =>
+      t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses/import`, key: c, headers: { 'content-type': 'text/csv' }, payload: csv(n), remoteAddress: '10.9.9.8' });
+    expect((await send(1)).statusCode).toBe(201);
+    const refused = await send(2);
+    expect(refused.statusCode).toBe(429);
+    // 7 rows charged on a budget of 5: 2 overdrawn; refused before the body is read, Retry-After is when one answer
+    // fits again: (2 + 1) / 5 per minute = 36 s.
+    expect(Math.abs(Number(refused.headers['retry-after']) - 36)).toBeLessThanOrEqual(1);
   });
 
   it('an HTML form without a header key is limited per address, and a browser gets a readable page', async () => {
@@ -159,7 +177,7 @@ describe('ingest rate limit', () => {
     expect(page.statusCode).toBe(429);
     expect(page.headers['content-type']).toContain('text/html');
     expect(page.headers['retry-after']).toBeDefined();
-    expect(page.body).toContain('More than 5 ingest requests per minute from this key and address');
+    expect(page.body).toContain('More than 5 answers per minute from this key and address');
     expect(page.body).toContain('(status 429)');
   });
 

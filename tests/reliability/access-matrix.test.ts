@@ -1,6 +1,6 @@
 /**
  * Access matrix (issue 6, test 3): every registered route × {no key, malformed header, unknown key, revoked
- * key, ingest key, read key, admin key, admin key limited to another experiment} → the expected status.
+ * key, form key, ingest key, read key, admin key, admin key limited to another experiment} → the expected status.
  *
  * ACCESS below is the one table; it is the specification, written by hand (not derived from the routes'
  * config.access, which would make the test repeat the code). Every route the app registers must have an entry:
@@ -11,7 +11,8 @@
  *  - public: every variant gets one of `ok` (an Authorization header, even a bad one, is ignored);
  *  - otherwise no / malformed / unknown / revoked key → 401; a scope not in `scopes` → 403; the admin key limited
  *    to another experiment → 403 where `limited` is 'denied', else one of `ok`; an allowed key → one of `ok`.
- * In particular an ingest key can never read a comparison, an export or a definition's counts.
+ * In particular an ingest key can never read a comparison, an export or a definition's counts, and a public form key
+ * (scope form) can only post single answers and assign new respondents: no batch, no CSV import, no read.
  */
 import { request as httpRequest } from 'node:http';
 import type { InjectOptions } from 'fastify';
@@ -19,8 +20,8 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { Scope } from '../../server/store/types.js';
 import { startTestApp, waterBillDefinition, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
-type Variant = 'no key' | 'malformed header' | 'unknown key' | 'revoked key' | 'ingest key' | 'read key' | 'admin key' | 'key limited to another experiment';
-const VARIANTS: Variant[] = ['no key', 'malformed header', 'unknown key', 'revoked key', 'ingest key', 'read key', 'key limited to another experiment', 'admin key'];
+type Variant = 'no key' | 'malformed header' | 'unknown key' | 'revoked key' | 'form key' | 'ingest key' | 'read key' | 'admin key' | 'key limited to another experiment';
+const VARIANTS: Variant[] = ['no key', 'malformed header', 'unknown key', 'revoked key', 'form key', 'ingest key', 'read key', 'key limited to another experiment', 'admin key'];
 
 interface Entry {
   /** 'public', or the scopes that may call it. */
@@ -61,10 +62,10 @@ const ACCESS: Record<string, Entry> = {
   },
   'GET /v1/experiments': { scopes: ['admin', 'read'], limited: 'allowed' },
   'GET /v1/experiments/:id': { scopes: ['admin', 'read'] },
-  'GET /v1/experiments/:id/form': { scopes: ['ingest', 'read', 'admin'] },
+  'GET /v1/experiments/:id/form': { scopes: ['form', 'ingest', 'read', 'admin'] },
   'PATCH /v1/experiments/:id': { scopes: ['admin'], payload: () => ({ title: 'Water utility survey 2027 (renamed)' }) },
 
-  'POST /v1/experiments/:id/responses': { scopes: ['ingest', 'admin'], ok: [201], payload: () => waterResponse() },
+  'POST /v1/experiments/:id/responses': { scopes: ['form', 'ingest', 'admin'], ok: [201], payload: () => waterResponse() },
   'POST /v1/experiments/:id/responses/batch': {
     scopes: ['ingest', 'admin'],
     ok: [201],
@@ -107,6 +108,10 @@ const ACCESS: Record<string, Entry> = {
     path: `/v1/experiments/${WATER_ID}/respondents/respondent-to-erase`,
   },
   'GET /v1/experiments/:id/audit': { scopes: ['admin'] },
+  'POST /v1/experiments/:id/clean-up': {
+    scopes: ['admin'],
+    payload: () => ({ action: 'exclude', reason: 'access matrix (dry run)', receivedFrom: '2000-01-01T00:00:00Z' }),
+  },
 
   'POST /v1/experiments/:id/looks': { scopes: ['admin'], ok: [200, 201, 409, 422], payload: () => ({ measure: 'satisfaction' }) },
   'GET /v1/experiments/:id/looks': { scopes: ['admin', 'read'] },
@@ -115,7 +120,7 @@ const ACCESS: Record<string, Entry> = {
     limited: 'allowed',
     payload: () => ({ test: 'welch', effectSize: 0.5, alpha: 0.05, power: 0.8 }),
   },
-  'POST /v1/experiments/:id/assignments': { scopes: ['ingest', 'admin'], ok: [200, 201, 409], payload: () => ({ respondent: `r-${Math.random()}` }) },
+  'POST /v1/experiments/:id/assignments': { scopes: ['form', 'ingest', 'admin'], ok: [200, 201, 409], payload: () => ({ respondent: `r-${Math.random()}` }) },
   'GET /v1/experiments/:id/assignments/summary': { scopes: ['admin', 'read'], ok: [200, 409] },
 
   'POST /v1/admin/backup': { scopes: ['admin'], ok: [201], payload: () => ({}) },
@@ -140,6 +145,7 @@ beforeAll(async () => {
   keys['malformed header'] = 'malformed';
   keys['unknown key'] = 'sb_' + 'A'.repeat(43);
   keys['revoked key'] = revoked;
+  keys['form key'] = await t.key('form');
   keys['ingest key'] = await t.key('ingest');
   keys['read key'] = await t.key('read');
   keys['admin key'] = t.adminKey;

@@ -1,6 +1,9 @@
 /**
  * Balanced assignment of respondents to conditions:
- *   POST /v1/experiments/{id}/assignments            (ingest or admin) sticky, permuted-block assignment
+ *   POST /v1/experiments/{id}/assignments            (form, ingest or admin) sticky, permuted-block assignment; a form
+ *                                                    key assigns NEW respondents only: for one assigned before it gets
+ *                                                    409 without the condition (a public key must not reveal another
+ *                                                    person's condition)
  *   GET  /v1/experiments/{id}/assignments/summary    (read or admin) assigned / answered / not answered per condition
  * The block plan (server/services/monitoring/interim.ts blockPlan) comes from options.allocation; the block sequence is drawn with
  * crypto.randomInt inside the store's write transaction and never leaves the server.
@@ -14,6 +17,7 @@ import { problems } from '../../schemas/common.js';
 import { AssignmentInputSchema, AssignmentSchema, AssignmentSummarySchema } from '../../schemas/monitoring.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
+import { RESPONDENT_SCOPES } from '../auth.js';
 
 function closed(id: string): ProblemError {
   return new ProblemError('experiment-closed', `Experiment ${id} is closed and assigns no more respondents.`);
@@ -26,7 +30,7 @@ export async function assignmentRoutes(base: FastifyInstance, opts: { store: Sto
   app.post(
     '/v1/experiments/:id/assignments',
     {
-      config: { access: { scopes: ['ingest', 'admin'], experimentParam: 'id' } },
+      config: { access: { scopes: RESPONDENT_SCOPES, experimentParam: 'id' } },
       schema: {
         tags: ['assignments'],
         summary: 'Assign a respondent to a condition (sticky, balanced by permuted blocks)',
@@ -35,7 +39,9 @@ export async function assignmentRoutes(base: FastifyInstance, opts: { store: Sto
           'the planned allocation (equal unless the definition gives `allocation` weights): the smallest whole-number weights ' +
           'with the same ratios, repeated until a block has at least 4 slots ([1, 1] → blocks of 4, [1, 2] → 6). Blocks are ' +
           'shuffled with a cryptographic random source and never exposed. Send the respondent id again with the response ' +
-          '(`respondent`) so that drop-out per condition shows in …/assignments/summary.',
+          '(`respondent`) so that drop-out per condition shows in …/assignments/summary. A public form key (scope `form`) may ' +
+          'assign new respondents only: for a respondent assigned before it gets 409 `already-assigned` without the condition, ' +
+          'so that a key visible in a web page cannot learn another person\'s condition (the page keeps the condition it was given).',
         params: ExperimentParams,
         body: AssignmentInputSchema,
         response: {
@@ -62,6 +68,12 @@ export async function assignmentRoutes(base: FastifyInstance, opts: { store: Sto
       if (outcome.kind === 'closed') throw closed(e.id);
       const condition = e.conditions.find((c) => c.key === outcome.conditionKey);
       if (!condition) throw new Error('assigned condition not in the experiment');
+      if (!outcome.created && request.principal?.scope === 'form') {
+        throw new ProblemError(
+          'already-assigned',
+          'This respondent was assigned before; a form key assigns new respondents only and does not reveal an earlier assignment.',
+        );
+      }
       reply.code(outcome.created ? 201 : 200);
       return { condition: condition.id, respondent, new: outcome.created };
     },

@@ -13,6 +13,12 @@
  * covariate-adjusted columns (all declared covariates) in one that declares covariates. The file can be imported again
  * (`splitballot import` ignores receivedAt, excluded and excludedReason). Numbers are written in JavaScript's
  * shortest round-trip form, so a value survives export → import unchanged.
+ *
+ * Spreadsheet safety (CSV injection, after OWASP's "CSV Injection" guidance): by default every TEXT cell that begins
+ * with `=`, `+`, `-`, `@`, a tab or a carriage return is written with a leading apostrophe and quoted, so that a
+ * spreadsheet shows it as text instead of running it as a formula. Numbers are never changed (a negative value stays
+ * -3). `?spreadsheetSafe=false` writes text cells unchanged (for a file to import again); `?bom=true` starts the file
+ * with a UTF-8 byte-order mark, which some spreadsheets need to read UTF-8.
  */
 import { Readable } from 'node:stream';
 import { stringify } from 'csv-stringify';
@@ -46,8 +52,8 @@ function csvRecord(row: ExportRow, withWeight: boolean): (string | number)[] {
     row.responseId,
     row.condition,
     row.respondent ?? '',
-    ...row.values.map((v) => (v === null ? '' : String(v))),
-    ...(withWeight ? [row.weight === null ? '' : String(row.weight)] : []),
+    ...row.values.map((v) => (v === null ? '' : v)),
+    ...(withWeight ? [row.weight === null ? '' : row.weight] : []),
     row.submittedAt,
     row.receivedAt,
     row.excluded ? 'true' : 'false',
@@ -88,10 +94,47 @@ async function* ndjsonChunks(store: Store, e: ExperimentRecord): AsyncGenerator<
   }
 }
 
-/** An RFC 4180 CSV stream (CRLF line ends, fields with commas, quotes or line breaks quoted, quotes doubled). */
-export function csvStream(columns: string[], records: AsyncIterable<(string | number | null)[]> | Iterable<(string | number | null)[]>): Readable {
-  const stringifier = stringify({ header: true, columns, record_delimiter: 'windows', quoted_match: [/[\r\n]/, /^\s|\s$/] });
-  const source = Readable.from(records, { objectMode: true });
+/** First characters that make a spreadsheet read a cell as a formula (OWASP, CSV Injection). */
+const FORMULA_START = /^[=+\-@\t\r]/;
+
+/** A text cell made safe to open in a spreadsheet: a leading apostrophe before a formula-starting character. */
+export function neutraliseCell(text: string): string {
+  return FORMULA_START.test(text) ? `'${text}` : text;
+}
+
+export interface CsvOptions {
+  /** Neutralise text cells that a spreadsheet would run as formulas (default true). Numbers are never changed. */
+  spreadsheetSafe?: boolean;
+  /** Start with a UTF-8 byte-order mark (default false). */
+  bom?: boolean;
+}
+
+function neutraliseRecord(record: (string | number | null)[]): (string | number | null)[] {
+  return record.map((c) => (typeof c === 'string' ? neutraliseCell(c) : c));
+}
+
+async function* neutralised(records: AsyncIterable<(string | number | null)[]> | Iterable<(string | number | null)[]>) {
+  for await (const r of records) yield neutraliseRecord(r);
+}
+
+/**
+ * An RFC 4180 CSV stream (CRLF line ends, fields with commas, quotes or line breaks quoted, quotes doubled); text cells
+ * neutralised for spreadsheets unless `spreadsheetSafe: false` (neutralised cells are quoted too).
+ */
+export function csvStream(
+  columns: string[],
+  records: AsyncIterable<(string | number | null)[]> | Iterable<(string | number | null)[]>,
+  options: CsvOptions = {},
+): Readable {
+  const safe = options.spreadsheetSafe !== false;
+  const stringifier = stringify({
+    header: true,
+    columns: safe ? columns.map(neutraliseCell) : columns,
+    record_delimiter: 'windows',
+    bom: options.bom === true,
+    quoted_match: safe ? [/[\r\n]/, /^\s|\s$/, /^'[=+\-@\t\r]/] : [/[\r\n]/, /^\s|\s$/],
+  });
+  const source = Readable.from(safe ? neutralised(records) : records, { objectMode: true });
   source.on('error', (err) => stringifier.destroy(err));
   return source.pipe(stringifier);
 }
@@ -104,10 +147,27 @@ function download(reply: FastifyReply, type: string, filename: string): FastifyR
 }
 
 const ComparisonsCsvQuery = FamilyQuery.extend({
+  spreadsheetSafe: z.enum(['true', 'false']).default('true').describe('As for responses.csv: neutralise formula-like text cells (default true)'),
+  bom: z.enum(['true', 'false']).default('false').describe('true: start the file with a UTF-8 byte-order mark'),
   pairs: z.enum(['first', 'all']).default('all').describe('all (default): every pair of conditions; first: the first two conditions'),
 });
 
 const READ = { scopes: ['read', 'admin'] as const, experimentParam: 'id' };
+
+const CsvFileQuery = z.object({
+  spreadsheetSafe: z
+    .enum(['true', 'false'])
+    .default('true')
+    .describe(
+      "true (default): text cells beginning with =, +, -, @, tab or carriage return get a leading apostrophe (OWASP's CSV-injection " +
+        'guidance), so a spreadsheet does not run them as formulas; numbers are never changed. false: text exactly as stored (for `splitballot import`).',
+    ),
+  bom: z.enum(['true', 'false']).default('false').describe('true: start the file with a UTF-8 byte-order mark, for spreadsheets that need one to read UTF-8'),
+});
+
+function csvOptions(q: { spreadsheetSafe?: 'true' | 'false'; bom?: 'true' | 'false' }): CsvOptions {
+  return { spreadsheetSafe: q.spreadsheetSafe !== 'false', bom: q.bom === 'true' };
+}
 const EXPORT_PROBLEMS = problems(400, 401, 403, 404, 500);
 
 /** The responses of a download route: 200 with a text file of `contentType` (documented by `example`), or a problem. */
@@ -129,9 +189,12 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
         description:
           'One row per stored response, in the order they were stored: responseId, condition, respondent, one column per measure id ' +
           '(empty = not answered), submittedAt, receivedAt, excluded (true/false), excludedReason. Lines end with CRLF; fields ' +
-          'containing commas, quotes or line breaks are quoted, quotes doubled. Responses stored after the export began are not ' +
-          'included. The file can be imported into another service with `splitballot import` (the last three columns are ignored there).',
+          'containing commas, quotes or line breaks are quoted, quotes doubled. Text cells that a spreadsheet would run as a formula ' +
+          '(first character =, +, -, @, tab or carriage return) get a leading apostrophe unless `spreadsheetSafe=false`. Responses stored ' +
+          'after the export began are not included. The file can be imported into another service with `splitballot import` (the last ' +
+          'three columns are ignored there; export with `spreadsheetSafe=false` for that).',
         params: ExperimentParams,
+        querystring: CsvFileQuery,
         response: fileResponse(
           'CSV file',
           'text/csv',
@@ -143,7 +206,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
     async (request, reply) => {
       const e = await loadExperiment(store, request.params.id);
       download(reply, 'text/csv; charset=utf-8', `${e.id}-responses.csv`);
-      return reply.send(csvStream(responseCsvColumns(e), csvRows(store, e)) as unknown as string);
+      return reply.send(csvStream(responseCsvColumns(e), csvRows(store, e), csvOptions(request.query)) as unknown as string);
     },
   );
 
@@ -209,7 +272,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
         includeExcluded: q.includeExcluded === 'true',
       });
       download(reply, 'text/csv; charset=utf-8', `${e.id}-comparisons.csv`);
-      return reply.send(csvStream(comparisonCsvColumns(e), rows) as unknown as string);
+      return reply.send(csvStream(comparisonCsvColumns(e), rows, csvOptions(q)) as unknown as string);
     },
   );
 

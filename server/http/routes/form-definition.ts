@@ -30,7 +30,7 @@ export async function formDefinitionRoutes(base: FastifyInstance, opts: { store:
   app.get(
     '/v1/experiments/:id/form',
     {
-      config: { access: { scopes: ['ingest', 'read', 'admin'], experimentParam: 'id' } },
+      config: { access: { scopes: ['form', 'ingest', 'read', 'admin'], experimentParam: 'id' } },
       schema: {
         tags: ['responses'],
         summary: "What a survey form needs to check answers before sending them (readable with the experiment's ingest key)",

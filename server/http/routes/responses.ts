@@ -25,6 +25,7 @@ import {
 import { bodyPassThroughCompiler } from '../validator.js';
 import { experimentNotFound, loadExperiment } from '../../services/targets.js';
 import { THANK_YOU_PATH } from '../../views/html.js';
+import { RESPONDENT_SCOPES } from '../auth.js';
 
 function closed(id: string): ProblemError {
   return new ProblemError('experiment-closed', `Experiment ${id} is closed and accepts no new responses.`);
@@ -89,7 +90,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
   app.post(
     '/v1/experiments/:id/responses',
     {
-      config: { access: { scopes: ['ingest', 'admin'], experimentParam: 'id', formKey: true } },
+      config: { access: { scopes: RESPONDENT_SCOPES, experimentParam: 'id', formKey: true } },
       bodyLimit: SINGLE_BODY_LIMIT,
       validatorCompiler: bodyPassThroughCompiler,
       schema: {
@@ -98,7 +99,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
         description:
           'A form posts `condition`, optional `responseId`, `respondent` and `submittedAt`, one field per measure id, `weight` in an ' +
           'experiment with survey weights, and — when it ' +
-          'cannot send an Authorization header — an ingest key in the field `ingestKey`. A form post whose Accept header prefers ' +
+          'cannot send an Authorization header — a form key (scope `form`) in the field `ingestKey`. A form post whose Accept header prefers ' +
           'text/html is answered with 303 to the thank-you page, or an HTML error page.',
         consumes: ['application/json', 'application/x-www-form-urlencoded'],
         params: ExperimentParams,
@@ -160,7 +161,7 @@ export async function responseRoutes(base: FastifyInstance, opts: { store: Store
       validatorCompiler: bodyPassThroughCompiler,
       schema: {
         tags: ['responses'],
-        summary: 'Post up to 10,000 responses at once: all are stored, or none',
+        summary: 'Post up to 10,000 responses at once: all are stored, or none (ingest or admin key; never a form key)',
         params: ExperimentParams,
         body: BatchInputSchema,
         response: {

@@ -244,7 +244,7 @@ export async function importCsvBuffer(run: ImportRun, csv: Buffer | string): Pro
     await streamRecords(() => Readable.from(slices(bytes)), (record, pos) => imp.validate(record, pos));
   } catch (err) {
     if (!(err instanceof CsvError)) throw err;
-    imp.setFatal(parseErrorProblem(err));
+    imp.setFatal(parseErrorProblem(err, imp.checker.columnNames));
   }
   const { proceed, rejected, rejectedWeights } = imp.endValidation();
   if (rejected.length > 0) await run.store.responses.recordRejected(run.experiment.key, rejected);
@@ -317,7 +317,7 @@ export async function importCsvFile(run: ImportRun, path: string): Promise<Impor
     });
   } catch (err) {
     if (!(err instanceof CsvError)) throw err;
-    imp.setFatal(parseErrorProblem(err));
+    imp.setFatal(parseErrorProblem(err, imp.checker.columnNames));
   }
   run.onProgress?.(1, imp.counts.rows);
   const { proceed, rejected, rejectedWeights } = imp.endValidation();

@@ -103,6 +103,11 @@ export class CsvRowChecker {
   private columns: { name: string; role: 'responseId' | 'condition' | 'respondent' | 'submittedAt' | 'measure' | 'weight' | 'ignored' }[] = [];
   readonly ignoredColumns: string[] = [];
 
+  /** The header's column names, in file order (empty before the header is read). */
+  get columnNames(): readonly string[] {
+    return this.columns.map((c) => c.name);
+  }
+
   constructor(
     readonly experiment: ExperimentRecord,
     readonly receivedAt: string,
@@ -192,12 +197,22 @@ export class CsvRowChecker {
   }
 }
 
-export function parseErrorProblem(err: unknown): ImportProblem {
+export function parseErrorProblem(err: unknown, columnNames: readonly string[] = []): ImportProblem {
   const e = err as { lines?: number; message?: string; code?: string };
+  let column = '';
+  // The CSV parser counts fields from 0 ("field 0"); every other message names columns, so name it too, or count from 1.
   const message = String(e.message ?? err)
     .replace(/\s+/g, ' ')
-    .trim();
-  return { line: typeof e.lines === 'number' ? e.lines : 0, column: '', message: `the file is not valid CSV: ${message}` };
+    .trim()
+    .replace(/\bfield (\d+)\b/g, (_m, n: string) => {
+      const index = Number(n);
+      if (columnNames[index] !== undefined && columnNames[index] !== '') {
+        column = columnNames[index];
+        return `column ${columnNames[index]}`;
+      }
+      return `column ${index + 1} (counted from 1)`;
+    });
+  return { line: typeof e.lines === 'number' ? e.lines : 0, column, message: `the file is not valid CSV: ${message}` };
 }
 
 /** Format a problem as one line of text: "line 12, column trust: 11 is outside the scale from 1 to 7". */

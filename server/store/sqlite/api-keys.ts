@@ -8,7 +8,9 @@ import type { ApiKeyRecord, ApiKeyRepository, NewApiKey, Scope } from '../types.
 interface KeyRow {
   id: number;
   hash: Buffer;
-  scope: Scope;
+  scope: Exclude<Scope, 'form'>;
+  /** 1 for a public form key (stored as scope 'ingest', see migrations/sqlite/0006_form_keys.sql). */
+  form: number;
   experiment_id: number | null;
   experiment: string | null;
   label: string;
@@ -18,13 +20,13 @@ interface KeyRow {
   last_used_at: string | null;
 }
 
-const SELECT_KEYS = `SELECT k.id, k.hash, k.scope, k.experiment_id, e.slug AS experiment, k.label, k.origin,
+const SELECT_KEYS = `SELECT k.id, k.hash, k.scope, k.form, k.experiment_id, e.slug AS experiment, k.label, k.origin,
   k.created_at, k.revoked_at, k.last_used_at FROM api_keys k LEFT JOIN experiments e ON e.id = k.experiment_id`;
 
 function toRecord(row: KeyRow): ApiKeyRecord {
   return {
     id: row.id,
-    scope: row.scope,
+    scope: row.form === 1 ? 'form' : row.scope,
     experiment: row.experiment,
     experimentKey: row.experiment_id,
     label: row.label,
@@ -47,8 +49,8 @@ export class SqliteApiKeyRepository implements ApiKeyRepository {
   private readonly syncTx;
 
   constructor(db: SqliteDatabase) {
-    this.insert = db.prepare<[Uint8Array, Scope, number | null, string, string, string]>(
-      `INSERT INTO api_keys (hash, scope, experiment_id, label, origin, created_at) VALUES (?, ?, ?, ?, ?, ?)`,
+    this.insert = db.prepare<[Uint8Array, Exclude<Scope, 'form'>, number, number | null, string, string, string]>(
+      `INSERT INTO api_keys (hash, scope, form, experiment_id, label, origin, created_at) VALUES (?, ?, ?, ?, ?, ?, ?)`,
     );
     this.byId = db.prepare<[number], KeyRow>(`${SELECT_KEYS} WHERE k.id = ?`);
     this.byHash = db.prepare<[Uint8Array], KeyRow>(`${SELECT_KEYS} WHERE k.hash = ?`);
@@ -69,16 +71,16 @@ export class SqliteApiKeyRepository implements ApiKeyRepository {
         const existing = this.byHash.get(hash);
         if (existing) {
           // The same secret was used before (revoked) or exists as another key: reinstate it as the environment key.
-          db.prepare(`UPDATE api_keys SET revoked_at = NULL, scope = 'admin', experiment_id = NULL, origin = 'environment' WHERE id = ?`).run(existing.id);
+          db.prepare(`UPDATE api_keys SET revoked_at = NULL, scope = 'admin', form = 0, experiment_id = NULL, origin = 'environment' WHERE id = ?`).run(existing.id);
         } else {
-          this.insert.run(hash, 'admin', null, 'SPLITBALLOT_ADMIN_KEY', 'environment', now);
+          this.insert.run(hash, 'admin', 0, null, 'SPLITBALLOT_ADMIN_KEY', 'environment', now);
         }
       }
     });
   }
 
   async create(key: NewApiKey): Promise<ApiKeyRecord> {
-    const info = this.insert.run(key.hash, key.scope, key.experimentKey, key.label, key.origin, key.createdAt);
+    const info = this.insert.run(key.hash, key.scope === 'form' ? 'ingest' : key.scope, key.scope === 'form' ? 1 : 0, key.experimentKey, key.label, key.origin, key.createdAt);
     const row = this.byId.get(Number(info.lastInsertRowid));
     if (!row) throw new Error('API key vanished after insert');
     return toRecord(row);

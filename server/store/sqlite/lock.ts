@@ -1,7 +1,7 @@
 /** The server lock: one process (serve or restore) at a time owns a database file (a lock file beside it). */
-import { mkdirSync } from 'node:fs';
-import { dirname, resolve } from 'node:path';
+import { resolve } from 'node:path';
 import Database from 'better-sqlite3';
+import { ownerOnlyFile } from './open.js';
 
 // ---------------------------------------------------------------------------------------------------------------
 // Server lock
@@ -21,8 +21,9 @@ export function lockPathOf(dbPath: string): string {
  */
 export function acquireServerLock(dbPath: string, holder = 'serve'): ServerLock | null {
   const path = lockPathOf(dbPath);
-  // On a first start the database folder (./data by default) does not exist yet: create it, as opening the store would.
-  mkdirSync(dirname(resolve(path)), { recursive: true });
+  // On a first start the database folder (./data by default) does not exist yet: create it (0700) with the lock file
+  // (0600), as opening the store would.
+  ownerOnlyFile(path);
   const db = new Database(path);
   try {
     db.pragma('busy_timeout = 0');

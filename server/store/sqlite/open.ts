@@ -14,8 +14,12 @@
  *
  * The folder of the file is created if missing. ":memory:" works (journal_mode then stays "memory"), but the
  * service and the tests use files.
+ *
+ * File modes: the database holds every answer and the key hashes, so a new database file is created readable and
+ * writable by its owner only (0600) in a new folder of mode 0700 (`ownerOnlyFile`), as backups are. SQLite gives its
+ * -wal and -shm files the mode of the database file. An existing file or folder keeps the mode it has.
  */
-import { mkdirSync } from 'node:fs';
+import { closeSync, existsSync, mkdirSync, openSync } from 'node:fs';
 import { dirname, resolve } from 'node:path';
 import Database from 'better-sqlite3';
 
@@ -25,9 +29,26 @@ export const BUSY_TIMEOUT_MS = 5000;
 /** Page cache of the writing connection, KiB (see the header). */
 export const WRITER_CACHE_KIB = 65536;
 
+/** Folder mode and file mode of new database, WAL and lock files. */
+export const OWNER_ONLY_DIR_MODE = 0o700;
+export const OWNER_ONLY_FILE_MODE = 0o600;
+
+/** Create the folder of `path` (0700) and an empty `path` (0600) unless they exist. */
+export function ownerOnlyFile(path: string): void {
+  mkdirSync(dirname(resolve(path)), { recursive: true, mode: OWNER_ONLY_DIR_MODE });
+  if (!existsSync(path)) {
+    try {
+      closeSync(openSync(path, 'wx', OWNER_ONLY_FILE_MODE));
+    } catch (err) {
+      // Made by another process between the check and the open: it is there, which is all we need.
+      if ((err as { code?: string }).code !== 'EEXIST') throw err;
+    }
+  }
+}
+
 export function openDatabase(path: string, options: { readonly?: boolean } = {}): SqliteDatabase {
   const inMemory = path === ':memory:';
-  if (!inMemory && !options.readonly) mkdirSync(dirname(resolve(path)), { recursive: true });
+  if (!inMemory && !options.readonly) ownerOnlyFile(path);
   const db = new Database(path, { readonly: options.readonly ?? false, fileMustExist: options.readonly ?? false });
   try {
     db.pragma(`busy_timeout = ${BUSY_TIMEOUT_MS}`);

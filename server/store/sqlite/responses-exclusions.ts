@@ -8,9 +8,18 @@
 import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
 import type {
+  CleanUpOutcome,
+  CleanUpRequest,
   ErasureOutcome,
   ExclusionOutcome,
 } from '../types.js';
+
+interface CleanUpRow {
+  id: number;
+  response_id: string;
+  condition_id: number;
+  excluded: number;
+}
 
 
 /** Exclusion, restoration and erasure: each ONE write transaction keeping the invariants (see responses.ts). */
@@ -34,6 +43,8 @@ export class SqliteExclusionWriter {
   private readonly audit: AuditWriter;
   private readonly exclusionTx;
   private readonly erasureTx;
+  private readonly matching;
+  private readonly cleanUpTx;
 
   constructor(db: SqliteDatabase) {
     this.experimentState = db.prepare<[number], { status: string; data_version: number }>(
@@ -146,24 +157,47 @@ export class SqliteExclusionWriter {
       if (!state) return { kind: 'not-found' };
       const rows = this.responsesOfRespondent.all(experimentKey, respondent);
       const perCondition = new Map<number, { responses: number; excluded: number }>();
-      for (const row of rows) {
-        const weight = this.weightOf.get(row.id) ?? null;
-        const integerValues = this.integerValuesOf.all(row.id);
-        // Rows first, counts after: a weighted row's sums are recomputed from what remains (see recomputeWeightSums).
-        this.deleteValuesOf.run(row.id);
-        this.deleteResponse.run(row.id);
-        for (const [measureKey, value] of integerValues) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
-        this.audit.redactResponse(experimentKey, row.response_id);
-        const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
-        c.responses += 1;
-        c.excluded += row.excluded;
-        perCondition.set(row.condition_id, c);
-      }
+      for (const row of rows) this.eraseRow(experimentKey, row, perCondition);
       for (const [conditionKey, c] of perCondition) this.dropCondition.run(c.responses, c.excluded, conditionKey);
       const dataVersion = rows.length > 0 ? (this.bumpVersion.get(experimentKey) as number) : state.data_version;
       // Only the count and the time (and the key that asked): nothing that identifies the respondent.
       this.audit.record({ experimentKey, action: 'erase', responseId: null, reason: null, count: rows.length, apiKeyId, at, dataVersion });
       return { kind: 'erased', erased: rows.length, dataVersion };
+    });
+
+    this.matching = db.prepare<[number, string | null, string | null, string | null, string | null, number | null, number | null], CleanUpRow>(
+      `SELECT id, response_id, condition_id, excluded FROM responses
+       WHERE experiment_id = ? AND (? IS NULL OR received_at >= ?) AND (? IS NULL OR received_at <= ?) AND (? IS NULL OR api_key_id = ?)
+       ORDER BY id`,
+    );
+    this.cleanUpTx = db.transaction((experimentKey: number, request: CleanUpRequest, apiKeyId: number | null, at: string): CleanUpOutcome => {
+      const state = this.experimentState.get(experimentKey);
+      if (!state) return { kind: 'not-found' };
+      const f = request.filter;
+      const rows = this.matching.all(experimentKey, f.receivedFrom, f.receivedFrom, f.receivedTo, f.receivedTo, f.apiKeyId, f.apiKeyId);
+      const targets = request.action === 'exclude' ? rows.filter((r) => r.excluded === 0) : rows;
+      if (request.dryRun || targets.length === 0) return { kind: 'done', matched: rows.length, changed: targets.length, dataVersion: state.data_version };
+      const dataVersion = this.bumpVersion.get(experimentKey) as number;
+      if (request.action === 'exclude') {
+        const perCondition = new Map<number, number>();
+        for (const row of targets) {
+          this.setResponseExcluded.run(1, request.reason, row.id);
+          this.setValuesExcluded.run(1, row.id);
+          const weight = this.weightOf.get(row.id) ?? null;
+          for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, 0, 1);
+          perCondition.set(row.condition_id, (perCondition.get(row.condition_id) ?? 0) + 1);
+          // One audit row per response, so that each can be restored (and its exclusion traced) one by one.
+          this.audit.record({ experimentKey, action: 'exclude', responseId: row.response_id, reason: request.reason, count: 1, apiKeyId, at, dataVersion });
+        }
+        for (const [conditionKey, n] of perCondition) this.bumpExcluded.run(n, conditionKey);
+      } else {
+        const perCondition = new Map<number, { responses: number; excluded: number }>();
+        for (const row of targets) this.eraseRow(experimentKey, row, perCondition);
+        for (const [conditionKey, c] of perCondition) this.dropCondition.run(c.responses, c.excluded, conditionKey);
+        // The count, the reason given and the key that asked; no response ids.
+        this.audit.record({ experimentKey, action: 'erase', responseId: null, reason: request.reason, count: targets.length, apiKeyId, at, dataVersion });
+      }
+      return { kind: 'done', matched: rows.length, changed: targets.length, dataVersion };
     });
 
   }
@@ -174,6 +208,28 @@ export class SqliteExclusionWriter {
    * A count that reaches 0 is deleted, so value_counts stays equal to a GROUP BY over response_values. `weight` is the
    * response's weight (null: none), moved with the answer in the weighted count and sums.
    */
+  /**
+   * Delete one response with its values, take its answers out of the counts, redact it from the audit trail and add it
+   * to the per-condition tally. Rows first, counts after: a weighted row's sums are recomputed from what remains (see
+   * recomputeWeightSums). Runs inside the caller's transaction.
+   */
+  private eraseRow(
+    experimentKey: number,
+    row: { id: number; response_id: string; condition_id: number; excluded: number },
+    perCondition: Map<number, { responses: number; excluded: number }>,
+  ): void {
+    const weight = this.weightOf.get(row.id) ?? null;
+    const integerValues = this.integerValuesOf.all(row.id);
+    this.deleteValuesOf.run(row.id);
+    this.deleteResponse.run(row.id);
+    for (const [measureKey, value] of integerValues) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
+    this.audit.redactResponse(experimentKey, row.response_id);
+    const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
+    c.responses += 1;
+    c.excluded += row.excluded;
+    perCondition.set(row.condition_id, c);
+  }
+
   private moveCount(measureKey: number, conditionKey: number, value: number, weight: number | null, from: 0 | 1, to: 0 | 1 | null): void {
     const w = weight ?? 0;
     const weighted = weight === null ? 0 : 1;
@@ -200,5 +256,9 @@ export class SqliteExclusionWriter {
 
   async eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome> {
     return this.erasureTx.immediate(experimentKey, respondent, apiKeyId, at);
+  }
+
+  async cleanUp(experimentKey: number, request: CleanUpRequest, apiKeyId: number | null, at: string): Promise<CleanUpOutcome> {
+    return this.cleanUpTx.immediate(experimentKey, request, apiKeyId, at);
   }
 }

@@ -34,6 +34,7 @@ import { SqliteExclusionWriter } from './responses-exclusions.js';
 import { SqliteIngestWriter } from './responses-ingest.js';
 import { SqliteResponseReads } from './responses-reads.js';
 import type {
+  CleanUpOutcome,
   ComparisonStamp,
   ErasureOutcome,
   ExclusionOutcome,
@@ -109,6 +110,10 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
 
   eraseRespondent(experimentKey: number, respondent: string, apiKeyId: number | null, at: string): Promise<ErasureOutcome> {
     return this.exclusions.eraseRespondent(experimentKey, respondent, apiKeyId, at);
+  }
+
+  cleanUp(...args: Parameters<ResponseRepository['cleanUp']>): Promise<CleanUpOutcome> {
+    return this.exclusions.cleanUp(...args);
   }
 
   // Reads

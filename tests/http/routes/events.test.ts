@@ -148,3 +148,90 @@ describe('heartbeats and the shared poll (short timings)', () => {
     expect(watcher.watchedExperiments).toBe(0);
   });
 });
+
+describe('revoked keys and limits per key and per experiment', () => {
+  it("a revoked key's open stream is closed at once (within one poll), another key's stays open", async () => {
+    const doomed = await t.key('read', WATER_ID, 'to revoke');
+    const other = await t.key('read', WATER_ID, 'stays');
+    const a = await open(`${base}/v1/experiments/${WATER_ID}/events`, doomed);
+    const b = await open(`${base}/v1/experiments/${WATER_ID}/events`, other);
+    await a.waitFor(/data: /);
+    await b.waitFor(/data: /);
+    const ended = new Promise<number>((resolve) => a.res.once('end', () => resolve(Date.now())));
+    const id = (await t.store.apiKeys.list()).find((k) => k.label === 'to revoke')!.id;
+    const revokedAt = Date.now();
+    await t.store.apiKeys.revoke(id, new Date().toISOString());
+    const endedAt = await ended;
+    // The key table is read once per poll interval (1 s): closed within 2 s, allowing for a loaded machine.
+    expect(endedAt - revokedAt).toBeLessThan(2000);
+    expect(b.res.readableEnded).toBe(false);
+    b.close();
+    expect(t.logs.text()).toContain('event stream closed: its key was revoked');
+  });
+
+  it('refuses a stream beyond the limit per key (429) and per experiment (503), logged at warn without a stack', async () => {
+    const store = openStore(t.dbPath);
+    const lines: string[] = [];
+    const app = Fastify({ logger: { level: 'info', stream: { write: (l: string) => void lines.push(l) } } });
+    app.setValidatorCompiler(zodValidatorCompiler);
+    app.setSerializerCompiler(serializerCompiler);
+    registerProblemHandlers(app);
+    // A stand-in for the auth hook: the key id comes from a header.
+    app.decorateRequest('principal', null);
+    app.addHook('onRequest', async (request) => {
+      const id = Number(request.headers['x-test-key']);
+      request.principal = { keyId: id, scope: 'read', experiment: null, experimentKey: null, via: 'header' };
+    });
+    await app.register(eventRoutes, { store, timings: { pollMs: 50, heartbeatMs: 10_000 }, limits: { perKey: 2, perExperiment: 3, total: 100 } });
+    await app.listen({ port: 0, host: '127.0.0.1' });
+    const addr = app.server.address();
+    const url = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}/v1/experiments/${WATER_ID}/events`;
+    const streams: { close: () => void }[] = [];
+    const get = (keyId: number) =>
+      new Promise<{ status: number; body: string; retryAfter?: string; close: () => void }>((resolve, reject) => {
+        const req = httpRequest(url, { headers: { 'x-test-key': String(keyId) } }, (res) => {
+          if (res.statusCode === 200) {
+            resolve({ status: 200, body: '', close: () => req.destroy() });
+            return;
+          }
+          let body = '';
+          res.setEncoding('utf8');
+          res.on('data', (c: string) => (body += c));
+          res.on('end', () => resolve({ status: res.statusCode ?? 0, body, retryAfter: res.headers['retry-after'] as string | undefined, close: () => undefined }));
+        });
+        req.on('error', reject);
+        req.end();
+      });
+    try {
+      for (const keyId of [1, 1]) {
+        const s = await get(keyId);
+        expect(s.status).toBe(200);
+        streams.push(s);
+      }
+      const third = await get(1);
+      expect(third.status).toBe(429);
+      expect(third.retryAfter).toBe('30');
+      expect(JSON.parse(third.body)).toMatchObject({ type: 'urn:splitballot:problem:rate-limited', detail: 'This key already holds 2 open event streams (the limit per key); close one or try again later.' });
+      streams.push(await get(2)); // the experiment's 3rd
+      const fourth = await get(3);
+      expect(fourth.status).toBe(503);
+      expect(JSON.parse(fourth.body).detail).toBe(`Experiment ${WATER_ID} already has 3 open event streams (the limit per experiment); try again later.`);
+      // Closing one stream frees its slots.
+      streams.shift()!.close();
+      await new Promise((r) => setTimeout(r, 100));
+      const again = await get(3);
+      expect(again.status).toBe(200);
+      streams.push(again);
+      const refusals = lines.map((l) => JSON.parse(l) as Record<string, unknown>).filter((l) => String(l.msg).startsWith('event stream refused'));
+      expect(refusals.map((l) => [l.level, l.status])).toEqual([
+        [40, 429],
+        [40, 503],
+      ]);
+      expect(refusals.some((l) => 'err' in l || 'stack' in l)).toBe(false);
+    } finally {
+      for (const s of streams) s.close();
+      await app.close();
+      await store.close();
+    }
+  });
+});

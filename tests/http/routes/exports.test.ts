@@ -39,10 +39,52 @@ describe('GET …/responses.csv', () => {
   it('csvStream quotes line breaks, quotes, commas and edge spaces, and parses back to the same fields', async () => {
     const fields = ['plain', 'a,b', 'say "hi"', 'two\nlines', 'cr\r\nlf', ' lead', 'trail ', '', '=1+1'];
     let text = '';
-    for await (const chunk of csvStream(['v'], fields.map((f) => [f]))) text += String(chunk);
+    for await (const chunk of csvStream(['v'], fields.map((f) => [f]), { spreadsheetSafe: false })) text += String(chunk);
     expect(text).toBe('v\r\nplain\r\n"a,b"\r\n"say ""hi"""\r\n"two\nlines"\r\n"cr\r\nlf"\r\n" lead"\r\n"trail "\r\n\r\n=1+1\r\n');
     const back = parse(text, { columns: true, skip_empty_lines: false }) as { v: string }[];
     expect(back.map((r) => r.v)).toEqual(fields);
+  });
+
+  it('neutralises formula-like text cells by default (OWASP CSV injection), keeps numbers, and writes text unchanged with spreadsheetSafe=false', async () => {
+    const hostile = ['=HYPERLINK("http://example.invalid","x")', '+1', '-2+3', '@SUM(A1)', 'plain', 'mid=dle'];
+    for (const [i, respondent] of hostile.entries()) {
+      await post(waterResponse({ responseId: `inj-${i}`, respondent, submittedAt: '2027-03-01T12:00:00Z' }, { fair_price: 0.5 }));
+    }
+    await t.request({ method: 'POST', url: `${BASE}/responses/inj-0/exclusion`, payload: { reason: '=cmd|" /C calc"!A0' } });
+    const res = await t.request({ method: 'GET', url: `${BASE}/responses.csv` });
+    expect(res.statusCode).toBe(200);
+    const rows = parse(res.body, { columns: true }) as Record<string, string>[];
+    expect(rows.map((r) => r.respondent)).toEqual([
+      `'=HYPERLINK("http://example.invalid","x")`,
+      "'+1",
+      "'-2+3",
+      "'@SUM(A1)",
+      'plain',
+      'mid=dle',
+    ]);
+    expect(rows[0].excludedReason).toBe(`'=cmd|" /C calc"!A0`);
+    expect(rows.every((r) => r.fair_price === '0.5')).toBe(true);
+    expect(res.body.split('\r\n')[2]).toMatch(/^inj-1,bill-first,"'\+1",7,5,0\.5,/);
+    // Numbers stay numbers: a negative number is written bare; only text that looks like one is neutralised.
+    let text = '';
+    // Tab and carriage return (which respondent ids cannot hold, but other text might) are neutralised too.
+    for await (const chunk of csvStream(['n', 's'], [[-3.5, '-3.5'], [-0.001, '+7'], [0, '\tx'], [1, '\ry']])) text += String(chunk);
+    expect(text).toBe(`n,s\r\n-3.5,"'-3.5"\r\n-0.001,"'+7"\r\n0,"'\tx"\r\n1,"'\ry"\r\n`);
+    // Raw, for import elsewhere.
+    const raw = await t.request({ method: 'GET', url: `${BASE}/responses.csv?spreadsheetSafe=false` });
+    expect((parse(raw.body, { columns: true }) as Record<string, string>[]).map((r) => r.respondent)).toEqual(hostile);
+  });
+
+  it('writes a UTF-8 byte-order mark with bom=true, and none by default', async () => {
+    await post(waterResponse({ responseId: 'bom-1', respondent: 'Zoë' }));
+    const plain = await t.request({ method: 'GET', url: `${BASE}/responses.csv` });
+    expect(plain.rawPayload.subarray(0, 3).equals(Buffer.from([0xef, 0xbb, 0xbf]))).toBe(false);
+    const withBom = await t.request({ method: 'GET', url: `${BASE}/responses.csv?bom=true` });
+    expect([...withBom.rawPayload.subarray(0, 3)]).toEqual([0xef, 0xbb, 0xbf]);
+    expect(withBom.rawPayload.subarray(3).toString('utf8')).toBe(plain.body);
+    const comparisons = await t.request({ method: 'GET', url: `${BASE}/comparisons.csv?bom=true` });
+    expect([...comparisons.rawPayload.subarray(0, 3)]).toEqual([0xef, 0xbb, 0xbf]);
+    expect((await t.request({ method: 'GET', url: `${BASE}/responses.csv?bom=maybe` })).statusCode).toBe(400);
   });
 
   it('pages through 2,500 responses in storage order with every value', async () => {

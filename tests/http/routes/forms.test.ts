@@ -53,7 +53,7 @@ describe('form posts from scripts (JSON answers)', () => {
       type: 'urn:splitballot:problem:forbidden',
       title: 'Forbidden',
       status: 403,
-      detail: 'Only an ingest key may be sent in the form field ingestKey; admin and read keys are refused there.',
+      detail: 'Only a form (or ingest) key may be sent in the form field ingestKey; admin and read keys are refused there.',
     });
     expect((await postForm({ ...GOOD, ingestKey: read })).statusCode).toBe(403);
     const none = await postForm(GOOD);

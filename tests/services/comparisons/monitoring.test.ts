@@ -61,3 +61,17 @@ it('long ids: a responseId of 128 characters and a respondent of 256 reach their
   expect(er.statusCode, er.body).toBe(200);
   expect(er.json().erased).toBe(1);
 });
+
+it('path parts: a 150-character id reaches its route (404 for an unknown experiment); beyond 1,024 characters → 414 naming the limit', async () => {
+  const mid = await t.request({ method: 'GET', url: `/v1/experiments/${'a'.repeat(150)}/comparisons` });
+  expect(mid.statusCode).toBe(404);
+  const long = await t.request({ method: 'DELETE', url: `/v1/experiments/${WATER_ID}/responses/${'r'.repeat(1025)}/exclusion` });
+  expect(long.statusCode).toBe(414);
+  expect(long.json()).toEqual({
+    type: 'urn:splitballot:problem:malformed-request',
+    title: 'URI too long',
+    status: 414,
+    detail: 'A part of the URL path is longer than 1,024 characters.',
+  });
+  expect((await t.request({ method: 'DELETE', url: `/v1/experiments/${WATER_ID}/responses/${'r'.repeat(1024)}/exclusion` })).statusCode).not.toBe(414);
+});

@@ -147,6 +147,13 @@ describe('POST …/responses/import', () => {
     const unclosed = await post(`${HEADER}\nx-1,bill-first,"open,7,5,1\n`);
     expect(unclosed.statusCode).toBe(422);
     expect(unclosed.json().detail).toMatch(/^The file cannot be imported: line 2: the file is not valid CSV: Quote Not Closed/);
+    // A quote inside an unquoted field: the parser's "field 1" (counted from 0) becomes the column counted from 1, as
+    // spreadsheets count (the parser stops before the header reaches the checker, so the name is not known here).
+    const quoteInside = await post(`${HEADER}\nx-2,bill"first,7,5,1\n`);
+    expect(quoteInside.statusCode).toBe(422);
+    expect(quoteInside.json().detail).toBe(
+      'The file cannot be imported: line 2: the file is not valid CSV: Invalid Opening Quote: a quote is found on column 2 (counted from 1) at line 2, value is "bill". Nothing was stored.',
+    );
     const empty = await post('');
     expect(empty.statusCode).toBe(422);
     expect(empty.json().detail).toBe('The file cannot be imported: line 1: the file is empty (a header row is required). Nothing was stored.');
@@ -244,7 +251,10 @@ describe('splitballot import', () => {
     expect(await cli(['import', '--experiment', WATER_ID, join(t.dir, 'none.csv')])).toMatchObject({ code: 1, stderr: expect.stringContaining('does not exist') });
     const file = join(t.dir, 'one.csv');
     writeFileSync(file, HEADER);
-    expect(await cli(['import', '--experiment', 'nope', file])).toMatchObject({ code: 1, stderr: 'splitballot import: there is no experiment nope\n' });
+    expect(await cli(['import', '--experiment', 'nope', file])).toMatchObject({
+      code: 1,
+      stderr: `splitballot import: database ${t.dbPath} (SPLITBALLOT_DB)\nsplitballot import: there is no experiment nope in ${t.dbPath} (SPLITBALLOT_DB)\n`,
+    });
   });
 });
 
