@@ -74,7 +74,7 @@ function headline(s) {
     h('span', { class: 'line' }, 'Mean difference ', num(s.id, 'primary.welch.estimate', 'number', p.welch.estimate), ' ', num(s.id, 'primary.welch', 'interval', p.welch), ', Welch ', h('em', { text: 'p' }), ' ', num(s.id, 'primary.welch.p', 'p', p.welch.p)),
     h('span', { class: 'line' }, 'Hodges–Lehmann ', num(s.id, 'primary.rankSum.estimate', 'number', p.rankSum.estimate), ' ', num(s.id, 'primary.rankSum', 'interval', p.rankSum), ', rank-sum ', h('em', { text: 'p' }), ' ', num(s.id, 'primary.rankSum.p', 'p', p.rankSum.p)),
   ];
-  if (p.anytimeValid) parts.push(h('span', { class: 'line' }, 'Always-valid ', h('em', { text: 'p' }), ' ', num(s.id, 'primary.anytimeValid.p', 'p', p.anytimeValid.p), ' ', num(s.id, 'primary.anytimeValid', 'interval', p.anytimeValid)));
+  if (p.anytimeValid) parts.push(h('span', { class: 'line' }, 'Anytime-valid ', h('em', { text: 'p' }), ' ', num(s.id, 'primary.anytimeValid.p', 'p', p.anytimeValid.p), ' ', num(s.id, 'primary.anytimeValid', 'interval', p.anytimeValid)));
   if (p.changedAfterDataCollectionBegan) parts.push(h('span', { class: 'line role-changed', text: 'Primary outcome changed after data collection began' }));
   return h('div', { class: 'headline' }, ...parts);
 }

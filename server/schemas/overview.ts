@@ -36,7 +36,7 @@ export const OverviewStudySchema = z
         anytimeValid: z
           .object({ p: nullableNum, lower: nullableNum, upper: nullableNum })
           .nullable()
-          .describe('The always-valid p and confidence sequence (open studies only)'),
+          .describe('The anytime-valid p and confidence sequence (open studies only)'),
         changedAfterDataCollectionBegan: z.boolean(),
       })
       .nullable()

@@ -1,7 +1,7 @@
 /**
  * The team overview: every study a key may see, with status, progress toward the planned size per condition, answers
  * today and this week, refused values, the number of warning flags, and the primary outcome's headline (both routes'
- * estimate with interval and p; the always-valid reading while the study is open).
+ * estimate with interval and p; the anytime-valid reading while the study is open).
  *
  * Cost. The ETag is built from what the numbers depend on — per study its key, definition time, dataVersion,
  * rejected total and look count (one cheap stamp query each), plus the UTC day and ISO week (for "today" and "this

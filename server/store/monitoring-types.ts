@@ -1,5 +1,5 @@
 /**
- * Repository interfaces for interim monitoring (recorded group-sequential looks, the history of the always-valid
+ * Repository interfaces for interim monitoring (recorded group-sequential looks, the history of the anytime-valid
  * p) and for balanced, sticky assignment of respondents to conditions. No SQLite types here (see types.ts).
  *
  * Pairs: a look sequence and an anytime history belong to an unordered pair of conditions. Callers pass the

@@ -122,10 +122,12 @@ describe.skipIf(!CHROMIUM)('the team overview in Chromium', () => {
     const byWarnings = [...body.studies].sort((x, y) => y.warnings - x.warnings || (x.id < y.id ? 1 : -1)).map((s) => s.title);
     expect(await titles()).toEqual(byWarnings);
     expect(await page.locator('th[aria-sort="descending"] button[data-sort="warnings"]').count()).toBe(1);
-    // The closed study shows no always-valid reading; the open one with a primary outcome does.
+    // The closed study shows no anytime-valid reading; the open one with a primary outcome does.
     expect(await page.locator('[data-study="water-tariff-2027"][data-field="primary.anytimeValid.p"]').count()).toBe(1);
     expect(await page.locator('[data-study="water-meter-2026"][data-field="primary.anytimeValid.p"]').count()).toBe(0);
     expect(await page.locator('tr[data-study="water-leaflet-2027"]').textContent()).toContain('No primary outcome declared');
+    expect(await page.locator('tr[data-study="water-tariff-2027"]').textContent()).toContain('Anytime-valid p');
+    expect(await page.locator('body').textContent()).not.toMatch(/always-valid/i);
     await page.screenshot({ path: join(OUTPUT, 'overview.png'), fullPage: true });
     expect(await page.locator('tr[data-study="water-tariff-2027"] th a').getAttribute('href')).toBe('/experiments/water-tariff-2027');
     expect(problems).toEqual([]);

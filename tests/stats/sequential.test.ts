@@ -308,7 +308,7 @@ describe('anytime-valid p-value and confidence sequence (Waudby-Smith, Arbour, S
     expect(() => anytimeValid({ na: 10, meanA: 1, varA: 1, nb: 10, meanB: 2, varB: 1 }, { alpha: 0.05, plannedPerCondition: 0 })).toThrow(/plannedPerCondition/);
   });
 
-  it('peeking simulation (seed 5): nominal Welch p after every 20 answers per group up to 2,000 rejects far more than 5 %; the always-valid p does not', () => {
+  it('peeking simulation (seed 5): nominal Welch p after every 20 answers per group up to 2,000 rejects far more than 5 %; the anytime-valid p does not', () => {
     // 500 runs under no true difference (both groups standard normal); a look after every 20 new answers in
     // each group (100 looks, 20 … 2,000 per group), moments updated incrementally (Welford).
     const runs = 500;
@@ -347,14 +347,14 @@ describe('anytime-valid p-value and confidence sequence (Waudby-Smith, Arbour, S
     }
     const nominalRate = nominalRejections / runs;
     const anytimeRate = anytimeRejections / runs;
-    console.log(`peeking simulation: nominal Welch ${nominalRate}, always-valid ${anytimeRate} (500 runs)`);
+    console.log(`peeking simulation: nominal Welch ${nominalRate}, anytime-valid ${anytimeRate} (500 runs)`);
     // Armitage et al. put 100 looks at roughly 0.37; "far more than 5 %": at least 0.20.
     expect(nominalRate).toBeGreaterThan(0.2);
     // Monte Carlo error bound: 0.05 + 2.33 binomial standard errors at n = 500 (one-sided 99 %) = 0.0727.
     expect(anytimeRate).toBeLessThanOrEqual(0.05 + 2.33 * Math.sqrt((0.05 * 0.95) / runs));
   });
 
-  it('with a true difference the always-valid p does reject eventually (it is not simply conservative)', () => {
+  it('with a true difference the anytime-valid p does reject eventually (it is not simply conservative)', () => {
     const rng = new Rng(77);
     let n = 0, ma = 0, ssa = 0, mb = 0, ssb = 0;
     let p = 1;

@@ -57,7 +57,7 @@ export async function overviewRoutes(base: FastifyInstance, opts: { store: Store
         description:
           'Status, answers per condition against the planned size, answers today and this week (UTC; the ISO week starts on ' +
           'Monday), refused values, the number of warning flags, and the primary outcome (first pair): mean difference and ' +
-          'Hodges–Lehmann shift with intervals and p, and the always-valid reading while the study is open. Send If-None-Match ' +
+          'Hodges–Lehmann shift with intervals and p, and the anytime-valid reading while the study is open. Send If-None-Match ' +
           'to poll: 304 while nothing changed. A key limited to one study sees only that one.',
         response: { 200: OverviewSchema, 304: z.null().describe('Not modified (If-None-Match)'), ...problems(401, 403, 500) },
       },

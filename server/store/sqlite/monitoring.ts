@@ -1,5 +1,5 @@
 /**
- * SQLite repositories for interim monitoring (recorded looks, the history of the always-valid p) and for
+ * SQLite repositories for interim monitoring (recorded looks, the history of the anytime-valid p) and for
  * balanced, sticky assignment (tables in migrations/sqlite/0003_looks_assignments.sql).
  *
  * Pairs are stored in key order (lo < hi) with signed quantities for lo − hi; the readers flip them when the

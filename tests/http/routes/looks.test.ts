@@ -1,5 +1,5 @@
 /**
- * Group-sequential looks (POST/GET /v1/experiments/{id}/looks) and the trajectory of the always-valid p
+ * Group-sequential looks (POST/GET /v1/experiments/{id}/looks) and the trajectory of the anytime-valid p
  * (…/comparisons/{measure}/trajectory and trajectory.svg): boundaries equal stats' spendingBoundaries for the
  * recorded fractions, the final look spends all alpha, observed z is welchToZ of the Welch t on the stored data,
  * and every 4xx is problem+json. All data are invented.
@@ -226,7 +226,7 @@ describe('POST /v1/experiments/{id}/looks', () => {
 });
 
 describe('trajectory', () => {
-  it('up to 60 prefixes in arrival order; the last point is the always-valid result on all answers', async () => {
+  it('up to 60 prefixes in arrival order; the last point is the anytime-valid result on all answers', async () => {
     expect((await t.createWater({ plannedPerCondition: 200 })).statusCode).toBe(201);
     await add(150, 0, 31);
     await add(107, 150, 32);

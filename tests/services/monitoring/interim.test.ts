@@ -1,5 +1,5 @@
 /**
- * computeMonitoring: the monitoring block of a comparison (shape, recorded looks, the always-valid p now and its
+ * computeMonitoring: the monitoring block of a comparison (shape, recorded looks, the anytime-valid p now and its
  * running minimum / running intersection over the recorded history), as the comparison service calls it.
  * All data are invented.
  */
