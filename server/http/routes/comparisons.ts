@@ -7,7 +7,7 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
+import { MAX_FAMILY_COMPARISONS, type ComparisonOptions, type ComparisonService } from '../../services/comparisons/service.js';
 import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
 import { resolveCovariates } from '../../services/comparisons/adjusted.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
@@ -43,10 +43,12 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
           'One entry per measure (definition order) and pair: the full comparison plus `adjusted` — Welch and rank-sum p-values ' +
           'adjusted across the whole family with Holm (1979, family-wise error; default), Benjamini–Hochberg (1995, false ' +
           'discovery rate) or none. ' +
+          `At most ${MAX_FAMILY_COMPARISONS} comparisons (measures × pairs) per request: a larger family is refused with 422 ` +
+          'family-too-large (ask for pairs=first, or one measure at a time). ' +
           POLLING,
         params: ExperimentParams,
         querystring: FamilyQuery,
-        response: { 200: FamilySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 500) },
+        response: { 200: FamilySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 422, 500) },
       },
     },
     async (request, reply) => {
