@@ -49,8 +49,12 @@ export interface Config {
   compareWorkerMinValues?: number;
 }
 
-/** Below this many values a comparison takes a few milliseconds in-thread (tests/bench/comparisons.ts measures the crossover). */
-export const COMPARE_WORKER_MIN_DEFAULT = 10_000;
+/**
+ * From this many values a continuous comparison goes to a worker thread (tests/bench/comparisons.ts measures the
+ * crossover). 4,000 rather than 10,000: on a busy 2-core machine a 6,000-value comparison measured 50–70 ms in-thread
+ * (tests/bench/read-cost.ts), above the ~50 ms a read may hold the event loop.
+ */
+export const COMPARE_WORKER_MIN_DEFAULT = 4_000;
 
 export const RATE_LIMIT_INGEST_DEFAULT = 600;
 export const RATE_LIMIT_READ_DEFAULT = 6000;

@@ -7,12 +7,12 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import { MAX_FAMILY_COMPARISONS, type ComparisonOptions, type ComparisonService } from '../../services/comparisons/service.js';
+import { assertFamilySize, MAX_FAMILY_COMPARISONS, type ComparisonOptions, type ComparisonService } from '../../services/comparisons/service.js';
 import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
 import { resolveCovariates } from '../../services/comparisons/adjusted.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
-import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
+import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema, type FamilyBody } from '../../schemas/comparisons.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { OmnibusChartQuery, OmnibusQuery, OmnibusSchema } from '../../schemas/omnibus.js';
 import { requestMargin } from '../../services/comparisons/margin.js';
@@ -55,11 +55,12 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
       const e = await loadExperiment(store, request.params.id);
       const q = request.query;
       const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust, includeCovariates: q.includeCovariates === 'true' };
+      assertFamilySize(e, options.pairs, options.includeCovariates, `This family (pairs=${options.pairs})`);
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.familyEtagFromStamp(e, options, stamp))) return reply;
-      const { body, etag } = await service.family(e, options, stamp);
-      reply.header('etag', etag);
-      return body;
+      const { json, etag } = await service.family(e, options, stamp);
+      // The cached JSON text (encoded through FamilySchema when it was computed): nothing is serialised per request.
+      return reply.header('etag', etag).type('application/json; charset=utf-8').send(json as unknown as FamilyBody);
     },
   );
 

@@ -41,7 +41,8 @@ import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
-import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
+import { ComparisonSchema, FamilyEntrySchema, FamilySchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
+import { z } from 'zod';
 import { comparisonBody, flagContext } from './reply.js';
 import { computeOmnibus, renderOmnibusChart, type OmnibusOptions } from './omnibus.js';
 import { declaredMargin } from './margin.js';
@@ -62,6 +63,23 @@ import { ProblemError } from '../../errors.js';
 
 /** Let timers and I/O run between two slices of a long computation (each slice stays well under ~50 ms). */
 const nextTurn = (): Promise<void> => new Promise((resolve) => setImmediate(resolve));
+
+/**
+ * The family's JSON text exactly as the route's reply schema would write it (encode through the zod schema, then
+ * JSON.stringify), one entry at a time with a turn of the event loop in between: a family of a few hundred entries
+ * is ~1.5 MB, whose serialisation in one piece blocked the loop for ~60 ms on every request, cache hit or not.
+ * FamilySchema ends with `comparisons`, so the head is encoded with an empty list and the entries spliced in.
+ */
+async function familyJson(body: FamilyBody): Promise<string> {
+  const head = JSON.stringify(z.encode(FamilySchema, { ...body, comparisons: [] }));
+  if (!head.endsWith('"comparisons":[]}')) throw new Error('FamilySchema must end with comparisons');
+  const parts: string[] = [];
+  for (const entry of body.comparisons) {
+    parts.push(JSON.stringify(z.encode(FamilyEntrySchema, entry)));
+    await nextTurn();
+  }
+  return `${head.slice(0, -2)}${parts.join(',')}]}`;
+}
 
 /**
  * Refuse a family larger than MAX_FAMILY_COMPARISONS (measures × pairs) with a 422 naming the cap and how to narrow
@@ -142,7 +160,7 @@ type CachedValue =
   | { kind: 'trajectory'; key: string; body: TrajectoryBody }
   | { kind: 'trajectory-chart'; key: string; svg: string }
   | { kind: 'adjusted'; key: string; dataVersion: number; block: AdjustedBlock }
-  | { kind: 'family'; key: string; body: FamilyBody; etag: string };
+  | { kind: 'family'; key: string; body: FamilyBody; etag: string; json: string };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -371,7 +389,7 @@ export class ComparisonService {
    * belong to one dataVersion: when data arrive during the computation, it starts again (at most 3 times; after
    * that, entries may differ and the top-level dataVersion is the newest).
    */
-  async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string }> {
+  async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string; json: string }> {
     assertFamilySize(experiment, options.pairs, options.includeCovariates ?? false, `This family (pairs=${options.pairs})`);
     const s = stamp ?? (await this.stamp(experiment));
     // The whole family is cached under its ETag seed (identical concurrent requests share one computation), so a
@@ -379,11 +397,11 @@ export class ComparisonService {
     const key = this.familyKey(experiment, options, s);
     const value = await this.cached(key, async () => ({ kind: 'family', ...(await this.computeFamily(experiment, options, s)) }));
     if (value.kind !== 'family') throw new Error('cache entry of the wrong kind');
-    return { body: value.body, etag: value.etag };
+    return { body: value.body, etag: value.etag, json: value.json };
   }
 
   /** `key`: the cache key of the stamp the entries really belong to (a newer one when data arrived meanwhile). */
-  private async computeFamily(experiment: ExperimentRecord, options: FamilyOptions, stamp: Stamp): Promise<{ key: string; body: FamilyBody; etag: string }> {
+  private async computeFamily(experiment: ExperimentRecord, options: FamilyOptions, stamp: Stamp): Promise<{ key: string; body: FamilyBody; etag: string; json: string }> {
     let s = stamp;
     const targets = familyTargets(experiment, options.pairs, options.includeCovariates ?? false);
     let entries: ComparisonReply[] = [];
@@ -429,7 +447,7 @@ export class ComparisonService {
     const dataVersion = Math.max(...entries.map((e) => e.body.dataVersion));
     const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, adjustedFamily, comparisons };
     const key = consistent ? this.familyKey(experiment, options, s) : ['family-mixed', options.pairs, options.adjust, ...entries.map((e) => e.etag)].join('\n');
-    return { key, body, etag: tagOf(key) };
+    return { key, body, etag: tagOf(key), json: await familyJson(body) };
   }
 
   /**
@@ -465,7 +483,8 @@ export class ComparisonService {
         const started = performance.now();
         const value = await compute();
         this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
-        const bytes = 'svg' in value ? value.svg.length * 2 : JSON.stringify('block' in value ? value.block : value.body).length * 2;
+        const bytes =
+          'svg' in value ? value.svg.length * 2 : 'json' in value ? value.json.length * 2 : JSON.stringify('block' in value ? value.block : value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
       } finally {
