@@ -32,22 +32,22 @@ async function wideStudy(app: TestApp, id: string, k: number, m: number, n: numb
 describe('family cap', () => {
   it(`refuses a family above ${MAX_FAMILY_COMPARISONS} comparisons with 422 family-too-large naming the cap and how to narrow it`, async () => {
     t = await startTestApp();
-    // 8 conditions (28 pairs) × 12 items = 336 comparisons with pairs=all; 12 with pairs=first.
-    await wideStudy(t, 'wide', 8, 12, 3);
+    // 8 conditions (28 pairs) × 18 items = 504 comparisons with pairs=all; 18 with pairs=first.
+    await wideStudy(t, 'wide', 8, 18, 3);
     for (const url of ['/v1/experiments/wide/comparisons?pairs=all', '/v1/experiments/wide/comparisons.csv', '/v1/experiments/wide/omnibus.csv']) {
       const res = await t.request({ method: 'GET', url });
       expect(res.statusCode, `${url}: ${res.body}`).toBe(422);
       expect(res.headers['content-type']).toMatch(/^application\/problem\+json/);
       const body = res.json();
       expect(body).toMatchObject({ type: 'urn:splitballot:problem:family-too-large', title: 'Comparison family too large', status: 422 });
-      expect(body.detail).toContain('336 comparisons (12 measures × 28 pairs of conditions)');
+      expect(body.detail).toContain('504 comparisons (18 measures × 28 pairs of conditions)');
       expect(body.detail).toContain(`the limit is ${MAX_FAMILY_COMPARISONS} per request`);
       expect(body.detail).toContain('pairs=first');
     }
     // Narrowed: the first pair only is answered.
     const first = await t.request({ method: 'GET', url: '/v1/experiments/wide/comparisons?pairs=first' });
     expect(first.statusCode, first.body).toBe(200);
-    expect(first.json().comparisons).toHaveLength(12);
+    expect(first.json().comparisons).toHaveLength(18);
     const csv = await t.request({ method: 'GET', url: '/v1/experiments/wide/comparisons.csv?pairs=first' });
     expect(csv.statusCode, csv.body).toBe(200);
   });

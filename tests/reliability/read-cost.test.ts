@@ -3,7 +3,7 @@
  * study's single-answer ingest is probed one request at a time:
  *
  *  1. too-large families: pairs=all, comparisons.csv and omnibus.csv on 50 conditions × 20 items (24,500
- *     comparisons) → 422 at once; and a family near the cap (8 conditions × 10 items = 280 comparisons) twice in
+ *     comparisons) → 422 at once; and a large family (8 conditions × 10 items = 280 comparisons) twice in
  *     parallel, from the cache (one ~1.5 MB JSON text, not serialised again);
  *  2. a flood of distinct confidence levels, back to back without If-None-Match, from one read key: levels outside
  *     the documented set → 400, the rest until the read budget is spent → 429;
@@ -97,7 +97,7 @@ async function maxStallDuring(work: () => Promise<void>): Promise<number> {
 }
 
 describe('bounded read cost under hostile and page-like reads', () => {
-  it('the first computation of a family near the cap: one computation for two requests, stalls under 250 ms', async () => {
+  it('the first computation of a large family (280 comparisons): one computation for two requests, stalls under 250 ms', async () => {
     const before = t.app.comparisons.paths.inThreadComputes;
     const stall = await maxStallDuring(async () => {
       const replies = await Promise.all(
