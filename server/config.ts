@@ -26,6 +26,11 @@ export interface Config {
    * (SPLITBALLOT_RATE_LIMIT_INGEST, default 600); absent means no limit.
    */
   rateLimitIngestPerMinute?: number;
+  /**
+   * Computed read replies (authenticated GETs not answered 304) allowed per minute for one (API key, client address)
+   * pair; 0 = no limit (SPLITBALLOT_RATE_LIMIT_READ, default RATE_LIMIT_READ_DEFAULT; absent means no limit).
+   */
+  rateLimitReadPerMinute?: number;
   /** Whole-request timeout (headers and body must arrive within it), ms. Default REQUEST_TIMEOUT_DEFAULT_MS. */
   requestTimeoutMs?: number;
   /** Folder where POST /v1/admin/backup writes (never a path from the network). Default: "backups" beside the database. */
@@ -44,10 +49,15 @@ export interface Config {
   compareWorkerMinValues?: number;
 }
 
-/** Below this many values a comparison takes a few milliseconds in-thread (tests/bench/comparisons.ts measures the crossover). */
-export const COMPARE_WORKER_MIN_DEFAULT = 10_000;
+/**
+ * From this many values a continuous comparison goes to a worker thread (tests/bench/comparisons.ts measures the
+ * crossover). 4,000 rather than 10,000: on a busy 2-core machine a 6,000-value comparison measured 50–70 ms in-thread
+ * (tests/bench/read-cost.ts), above the ~50 ms a read may hold the event loop.
+ */
+export const COMPARE_WORKER_MIN_DEFAULT = 4_000;
 
 export const RATE_LIMIT_INGEST_DEFAULT = 600;
+export const RATE_LIMIT_READ_DEFAULT = 6000;
 export const REQUEST_TIMEOUT_DEFAULT_MS = 60_000;
 export const SHUTDOWN_GRACE_DEFAULT_MS = 10_000;
 /** Minimum length of SPLITBALLOT_METRICS_TOKEN. */
@@ -130,6 +140,7 @@ const EnvSchema = z.object({
       }),
   ),
   SPLITBALLOT_RATE_LIMIT_INGEST: wholeNumber('must be a whole number of requests per minute (0 turns the limit off)', 10_000_000, RATE_LIMIT_INGEST_DEFAULT),
+  SPLITBALLOT_RATE_LIMIT_READ: wholeNumber('must be a whole number of read replies per minute (0 turns the limit off)', 10_000_000, RATE_LIMIT_READ_DEFAULT),
   SPLITBALLOT_REQUEST_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, REQUEST_TIMEOUT_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_SHUTDOWN_TIMEOUT: wholeNumber('must be a whole number of seconds from 1 to 3600', 3600, SHUTDOWN_GRACE_DEFAULT_MS / 1000, 1),
   SPLITBALLOT_BACKUP_DIR: z.preprocess(emptyToUndefined, z.string().optional()),
@@ -182,6 +193,7 @@ export function loadConfig(env: NodeJS.ProcessEnv = process.env): Config {
     corsOrigins: e.SPLITBALLOT_CORS_ORIGINS,
     logLevel: e.LOG_LEVEL,
     rateLimitIngestPerMinute: e.SPLITBALLOT_RATE_LIMIT_INGEST,
+    rateLimitReadPerMinute: e.SPLITBALLOT_RATE_LIMIT_READ,
     requestTimeoutMs: e.SPLITBALLOT_REQUEST_TIMEOUT * 1000,
     shutdownGraceMs: e.SPLITBALLOT_SHUTDOWN_TIMEOUT * 1000,
     backupDir: e.SPLITBALLOT_BACKUP_DIR === undefined ? undefined : resolve(e.SPLITBALLOT_BACKUP_DIR),

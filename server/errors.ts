@@ -28,6 +28,7 @@ export const PROBLEM_TYPES = {
   'payload-too-large': { status: 413, title: 'Payload too large' },
   'unsupported-media-type': { status: 415, title: 'Unsupported media type' },
   'validation-failed': { status: 422, title: 'Validation failed' },
+  'family-too-large': { status: 422, title: 'Comparison family too large' },
   'internal-error': { status: 500, title: 'Internal server error' },
   unavailable: { status: 503, title: 'Service unavailable' },
 } as const;

@@ -37,6 +37,7 @@ import { instrumentStore, metricsRoutes, registerRequestMetrics, ServiceMetrics 
 import { registerOpenApi } from './openapi-document.js';
 import { clientErrorHandler, registerProblemHandlers, sendProblem } from './problem-handler.js';
 import { registerIngestRateLimit } from './rate-limit.js';
+import { registerReadRateLimit } from './read-rate-limit.js';
 import { adminRoutes } from './routes/admin.js';
 import { assignmentRoutes } from './routes/assignments.js';
 import { comparisonRoutes } from './routes/comparisons.js';
@@ -176,6 +177,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
 
   registerAuth(app, store);
   registerIngestRateLimit(app, config.rateLimitIngestPerMinute ?? 0, metrics);
+  registerReadRateLimit(app, config.rateLimitReadPerMinute ?? 0, metrics);
   registerRequestMetrics(app, metrics);
   registerOpenApi(app);
 

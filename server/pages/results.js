@@ -29,6 +29,10 @@ import { adjustedHeading, downloadsBlock, isoTime, primaryFirst, roleNote, sensi
 
 const KEY_STORAGE = 'splitballot.readKey';
 const REFRESH_DEBOUNCE_MS = 400;
+/** Live updates are coalesced: at most one refresh every this many ms, however fast answers arrive. */
+const REFRESH_MIN_INTERVAL_MS = 2000;
+/** Replies remembered for conditional requests (JSON and SVG), the oldest dropped beyond this many. */
+const REMEMBERED_MAX = 400;
 const MAX_RECONNECT_MS = 30_000;
 const LIVE_ON = 'Live: connected; the figures update as answers arrive.';
 
@@ -49,7 +53,15 @@ const state = {
   generation: 0, // bumps on every key change so stale responses are ignored
   familySize: 0, // comparisons in the adjusted family (0 when not loaded)
   familyInfo: null, // the family's adjustedFamily block (which comparisons were adjusted together)
+  lastRefreshAt: 0, // when the last refresh started (Date.now())
+  openTrajectories: new Set(), // measure ids whose trajectory chart the reader opened (fetched only then)
 };
+
+/**
+ * The last 200 reply of every JSON and SVG URL with its ETag: a refresh asks again with If-None-Match and, on 304
+ * (nothing changed; the service reads and computes nothing), uses the remembered body. Keyed by Accept and URL.
+ */
+const remembered = new Map();
 
 // ---------------------------------------------------------------------------------------------------------
 // Small DOM helpers
@@ -137,12 +149,30 @@ class HttpError extends Error {
 const isAuthError = (err) => err instanceof HttpError && (err.status === 401 || err.status === 403);
 
 async function api(path, accept = 'application/json', signal) {
+  const conditional = accept === 'application/json' || accept === 'image/svg+xml';
+  const id = `${accept} ${path}`;
+  const last = conditional ? remembered.get(id) : undefined;
+  /** @type {Record<string, string>} */
+  const headers = { Authorization: `Bearer ${state.key}`, Accept: accept };
+  if (last) headers['If-None-Match'] = last.etag;
   const res = await fetch(path, {
-    headers: { Authorization: `Bearer ${state.key}`, Accept: accept },
-    cache: 'no-cache', // revalidate with the ETag: a 304 comes back as the cached 200
+    headers,
+    cache: conditional ? 'no-store' : 'no-cache', // JSON and SVG: revalidated here with the remembered ETag
     credentials: 'omit',
     signal,
   });
+  if (res.status === 304 && last) {
+    remembered.delete(id);
+    remembered.set(id, last); // most recently used last
+    return new Response(last.body, { status: 200, headers: { 'content-type': last.type } });
+  }
+  if (res.ok && conditional && res.headers.get('etag')) {
+    const entry = { etag: /** @type {string} */ (res.headers.get('etag')), type: res.headers.get('content-type') || accept, body: await res.text() };
+    remembered.delete(id);
+    remembered.set(id, entry);
+    while (remembered.size > REMEMBERED_MAX) remembered.delete(remembered.keys().next().value);
+    return new Response(entry.body, { status: res.status, headers: { 'content-type': entry.type } });
+  }
   if (!res.ok) {
     let problem = null;
     try {
@@ -187,6 +217,7 @@ function onAuthFailure(err) {
   saveKey(null);
   state.key = null;
   state.generation++;
+  remembered.clear();
   const why = err && err.status === 403 ? 'That key may not read this study' : 'That key was not accepted';
   showKeyPanel(`${why} (HTTP ${err ? err.status : 401}). Check that you copied the whole read key for this study, then try again.`);
 }
@@ -533,6 +564,38 @@ function formatWhen(iso) {
   return isoTime(iso);
 }
 
+const TRAJECTORY_CAPTION = 'How the estimate and its anytime-valid interval developed as answers arrived';
+
+/**
+ * The trajectory chart, folded: it is fetched only when the reader opens it (the service computes a trajectory in
+ * O(answers)), and again on each refresh only while it stays open (a conditional request: 304 when unchanged).
+ */
+function trajectoryDetails(mid, trajectory) {
+  const open = state.openTrajectories.has(mid);
+  const details = h('details', { class: 'trajectory-details', open }, h('summary', { text: 'Show how the estimate developed as answers arrived (chart)' }));
+  if (open && trajectory) details.append(chartFigure('trajectory', TRAJECTORY_CAPTION, trajectory));
+  details.addEventListener('toggle', async () => {
+    if (!details.open) {
+      state.openTrajectories.delete(mid);
+      return;
+    }
+    state.openTrajectories.add(mid);
+    if (details.querySelector('figure')) return;
+    const generation = state.generation;
+    const loaded = await loadSvg(trajectoryPath(mid)).catch((err) => {
+      if (isAuthError(err)) onAuthFailure(err);
+      return null;
+    });
+    if (!loaded || generation !== state.generation || details.querySelector('figure')) return;
+    details.append(chartFigure('trajectory', TRAJECTORY_CAPTION, loaded));
+  });
+  return details;
+}
+
+function trajectoryPath(mid) {
+  return `${base()}/comparisons/${encodeURIComponent(mid)}/trajectory.svg${pairQuery()}`;
+}
+
 function interimBlock(mid, cmp, trajectory) {
   const mon = cmp.monitoring;
   const heading = h('h3', { text: 'Interim monitoring' });
@@ -555,7 +618,7 @@ function interimBlock(mid, cmp, trajectory) {
     );
     if (av.reason) parts.push(h('p', { class: 'muted', text: av.reason }));
     if (av.method) parts.push(h('p', { class: 'method', text: `Method: ${av.method}.` }));
-    parts.push(chartFigure('trajectory', 'How the estimate and its anytime-valid interval developed as answers arrived', trajectory));
+    parts.push(trajectoryDetails(mid, trajectory));
   } else {
     parts.push(h('p', { class: 'muted', text: 'The anytime-valid p-value is not available for this comparison.' }));
   }
@@ -831,7 +894,7 @@ async function loadMeasure(m) {
   }
   const [chart, trajectory, omnibus, dataChart] = await Promise.all([
     loadSvg(`${path}/chart.svg${q}`),
-    cmp.monitoring && cmp.monitoring.anytimeValid ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve({ svg: null, error: '' }),
+    cmp.monitoring && cmp.monitoring.anytimeValid && state.openTrajectories.has(m.id) ? loadSvg(`${path}/trajectory.svg${q}`) : Promise.resolve(null),
     loadOmnibus(path),
     wantsDataRange(m, cmp) ? loadSvg(`${path}/chart.svg${q ? `${q}&` : '?'}range=data`) : Promise.resolve(null),
   ]);
@@ -877,6 +940,7 @@ async function refresh() {
     return;
   }
   state.refreshing = true;
+  state.lastRefreshAt = Date.now();
   const generation = state.generation;
   const first = state.definition === null;
   if (first) setStatus('Loading the study…');
@@ -933,13 +997,22 @@ async function refresh() {
   }
 }
 
+/**
+ * Coalesce live changes: while a refresh is pending every further change joins it, and refreshes start at most once
+ * every REFRESH_MIN_INTERVAL_MS (so answers arriving several times a second cost one refresh every 2 s).
+ */
 function scheduleRefresh() {
-  clearTimeout(state.refreshTimer);
-  state.refreshTimer = setTimeout(refresh, REFRESH_DEBOUNCE_MS);
+  if (state.refreshTimer !== null) return;
+  const wait = Math.max(REFRESH_DEBOUNCE_MS, state.lastRefreshAt + REFRESH_MIN_INTERVAL_MS - Date.now());
+  state.refreshTimer = setTimeout(() => {
+    state.refreshTimer = null;
+    refresh();
+  }, wait);
 }
 
 function refreshNow() {
   clearTimeout(state.refreshTimer);
+  state.refreshTimer = null;
   refresh();
 }
 
@@ -1051,6 +1124,7 @@ function init() {
     saveKey(value);
     state.key = value;
     state.generation++;
+    remembered.clear();
     state.definition = null;
     $('key-error').hidden = true;
     $('key-input').removeAttribute('aria-invalid');
@@ -1062,6 +1136,7 @@ function init() {
     saveKey(null);
     state.key = null;
     state.generation++;
+    remembered.clear();
     state.definition = null;
     state.dataVersion = null;
     showKeyPanel(null);

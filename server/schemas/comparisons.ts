@@ -195,6 +195,12 @@ export const FamilySchema = z
   })
   .meta({ id: 'ComparisonFamily' });
 
+/**
+ * The interval levels a request may ask for. A closed set keeps the cache effective: any level in (0, 1) would let a
+ * client make every request a cache miss (one full computation each) just by changing the level.
+ */
+export const CONFIDENCE_LEVELS: readonly number[] = Object.freeze([0.5, 0.8, 0.9, 0.95, 0.98, 0.99, 0.995, 0.999]);
+
 const includeExcluded = z
   .enum(['true', 'false'])
   .default('false')
@@ -206,7 +212,8 @@ const commonQuery = {
     .number({ message: 'must be a number strictly between 0 and 1' })
     .gt(0, 'must be a number strictly between 0 and 1')
     .lt(1, 'must be a number strictly between 0 and 1')
-    .default(0.95).describe('Level of every interval, strictly between 0 and 1 (default 0.95)'),
+    .refine((v) => v <= 0 || v >= 1 || CONFIDENCE_LEVELS.includes(v), `must be one of ${CONFIDENCE_LEVELS.join(', ')}`)
+    .default(0.95).describe(`Level of every interval: one of ${CONFIDENCE_LEVELS.join(', ')} (default 0.95)`),
   includeExcluded,
 };
 

@@ -239,6 +239,7 @@ export async function startService(env: ServiceEnv): Promise<RunningServer> {
       SPLITBALLOT_DB: env.dbPath,
       SPLITBALLOT_ADMIN_KEY: env.adminKey,
       SPLITBALLOT_RATE_LIMIT_INGEST: '0',
+      SPLITBALLOT_RATE_LIMIT_READ: '0',
       LOG_LEVEL: 'warn',
       ...(env.extraEnv ?? {}),
     },

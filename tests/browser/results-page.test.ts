@@ -180,6 +180,10 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
   }, 60_000);
 
   it('the trajectory figure: estimate and running interval, the too-early zone, the look, the evidence strip; our own words', async () => {
+    // The trajectory is fetched only when its fold is opened (the service computes it in O(answers)).
+    const fold = page.locator('section.measure[data-measure="satisfaction"] details.trajectory-details');
+    expect(await fold.locator('figure').count()).toBe(0);
+    await fold.locator('summary').click();
     const figure = page.locator('section.measure[data-measure="satisfaction"] figure.figure-trajectory');
     await figure.locator('svg').waitFor({ timeout: 15_000 });
     const svg = (await figure.locator('svg').evaluate((el) => el.outerHTML)) as string;
@@ -221,6 +225,30 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
       .waitFor({ timeout: 10_000 });
     const version = (await api(`/v1/experiments/${WATER_ID}`)).dataVersion;
     await page.locator(`section.measure[data-measure="satisfaction"] [data-field="dataVersion"]`).filter({ hasText: String(version) }).waitFor({ timeout: 10_000 });
+    expect(problems).toEqual([]);
+  }, 30_000);
+
+  it('a refresh with no new data asks conditionally: every JSON and SVG request is answered 304 and the page is unchanged', async () => {
+    const seen: { url: string; status: number; ifNoneMatch: string | undefined }[] = [];
+    const onResponse = (res: import('playwright-core').Response) => {
+      const url = res.url();
+      // The definition (with its live counts, no ETag) is read once per refresh; everything else is conditional.
+      if (!url.includes('/v1/experiments/') || url.includes('/events') || url.endsWith('.csv') || new URL(url).pathname === `/v1/experiments/${WATER_ID}`) return;
+      seen.push({ url, status: res.status(), ifNoneMatch: res.request().headers()['if-none-match'] });
+    };
+    const before = await page.locator('#measures').innerText();
+    page.on('response', onResponse);
+    await page.locator('#refresh-button').click();
+    // The definition, three comparisons, their charts, the family (and the opened trajectory): wait for them all.
+    await page.waitForFunction(() => !document.querySelector('#status')?.textContent?.includes('Loading'), undefined, { timeout: 10_000 });
+    await new Promise((resolve) => setTimeout(resolve, 1500));
+    page.off('response', onResponse);
+    expect(seen.length, JSON.stringify(seen)).toBeGreaterThanOrEqual(7);
+    for (const r of seen) {
+      expect(r.ifNoneMatch ?? `none: ${r.url}`, r.url).toMatch(/^"/);
+      expect(r.status, r.url).toBe(304);
+    }
+    expect(await page.locator('#measures').innerText()).toBe(before);
     expect(problems).toEqual([]);
   }, 30_000);
 });

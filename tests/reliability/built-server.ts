@@ -61,6 +61,7 @@ export async function startBuiltServer(dbPath: string, env: Record<string, strin
       SPLITBALLOT_DB: dbPath,
       SPLITBALLOT_ADMIN_KEY: ADMIN_SECRET,
       SPLITBALLOT_RATE_LIMIT_INGEST: '0',
+      SPLITBALLOT_RATE_LIMIT_READ: '0',
       ...env,
     },
     stdio: ['ignore', 'pipe', 'pipe'],

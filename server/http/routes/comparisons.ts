@@ -7,12 +7,12 @@
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import type { ComparisonOptions, ComparisonService } from '../../services/comparisons/service.js';
+import { assertFamilySize, MAX_FAMILY_COMPARISONS, type ComparisonOptions, type ComparisonService } from '../../services/comparisons/service.js';
 import { comparisonPair, loadExperiment, resolveMeasure, type ComparisonTarget } from '../../services/targets.js';
 import { resolveCovariates } from '../../services/comparisons/adjusted.js';
 import type { ExperimentRecord, Store } from '../../store/types.js';
 import { problems } from '../../schemas/common.js';
-import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema } from '../../schemas/comparisons.js';
+import { ChartQuery, ComparisonParams, ComparisonQuery, ComparisonSchema, FamilyQuery, FamilySchema, type FamilyBody } from '../../schemas/comparisons.js';
 import { ExperimentParams } from '../../schemas/responses.js';
 import { OmnibusChartQuery, OmnibusQuery, OmnibusSchema } from '../../schemas/omnibus.js';
 import { requestMargin } from '../../services/comparisons/margin.js';
@@ -43,21 +43,24 @@ export async function comparisonRoutes(base: FastifyInstance, opts: { store: Sto
           'One entry per measure (definition order) and pair: the full comparison plus `adjusted` — Welch and rank-sum p-values ' +
           'adjusted across the whole family with Holm (1979, family-wise error; default), Benjamini–Hochberg (1995, false ' +
           'discovery rate) or none. ' +
+          `At most ${MAX_FAMILY_COMPARISONS} comparisons (measures × pairs) per request: a larger family is refused with 422 ` +
+          'family-too-large (ask for pairs=first, or one measure at a time). ' +
           POLLING,
         params: ExperimentParams,
         querystring: FamilyQuery,
-        response: { 200: FamilySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 500) },
+        response: { 200: FamilySchema, 304: NOT_MODIFIED, ...problems(400, 401, 403, 404, 422, 500) },
       },
     },
     async (request, reply) => {
       const e = await loadExperiment(store, request.params.id);
       const q = request.query;
       const options = { ...toOptions(q), pairs: q.pairs, adjust: q.adjust, includeCovariates: q.includeCovariates === 'true' };
+      assertFamilySize(e, options.pairs, options.includeCovariates, `This family (pairs=${options.pairs})`);
       const stamp = await service.stamp(e);
       if (notModified(request, reply, service.familyEtagFromStamp(e, options, stamp))) return reply;
-      const { body, etag } = await service.family(e, options, stamp);
-      reply.header('etag', etag);
-      return body;
+      const { json, etag } = await service.family(e, options, stamp);
+      // The cached JSON text (encoded through FamilySchema when it was computed): nothing is serialised per request.
+      return reply.header('etag', etag).type('application/json; charset=utf-8').send(json as unknown as FamilyBody);
     },
   );
 

@@ -26,7 +26,7 @@ import type { FastifyInstance, FastifyReply } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
 import type { ExperimentRecord, ExportRow, Store } from '../../store/types.js';
-import type { ComparisonService, FamilyOptions } from '../../services/comparisons/service.js';
+import { assertFamilySize, MAX_FAMILY_COMPARISONS, type ComparisonService, type FamilyOptions } from '../../services/comparisons/service.js';
 import { FamilyQuery } from '../../schemas/comparisons.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
@@ -169,10 +169,12 @@ function csvOptions(q: { spreadsheetSafe?: 'true' | 'false'; bom?: 'true' | 'fal
   return { spreadsheetSafe: q.spreadsheetSafe !== 'false', bom: q.bom === 'true' };
 }
 const EXPORT_PROBLEMS = problems(400, 401, 403, 404, 500);
+/** The family downloads may also be refused as too large (422 family-too-large, MAX_FAMILY_COMPARISONS). */
+const FAMILY_EXPORT_PROBLEMS = problems(400, 401, 403, 404, 422, 500);
 
 /** The responses of a download route: 200 with a text file of `contentType` (documented by `example`), or a problem. */
-function fileResponse(description: string, contentType: string, example: string) {
-  return { 200: { description, content: { [contentType]: { schema: z.string().meta({ example }) } } }, ...EXPORT_PROBLEMS };
+function fileResponse(description: string, contentType: string, example: string, problemResponses = EXPORT_PROBLEMS) {
+  return { 200: { description, content: { [contentType]: { schema: z.string().meta({ example }) } } }, ...problemResponses };
 }
 
 export async function exportRoutes(base: FastifyInstance, opts: { store: Store; comparisons: ComparisonService }): Promise<void> {
@@ -249,7 +251,8 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
           '(Holm across the measures and pairs of this file by default; `adjust=bh` or `none`). flags lists the quality-flag codes separated by spaces. ' +
           "The equivalence columns (two one-sided tests against the measure's equivalenceMargin, intervals at 1 − 2α, verdict codes " +
           'equivalent, trivial, different or inconclusive) are empty for a measure without a margin. An empty cell ' +
-          'means the quantity is not defined for these data (see the JSON comparison for the reason).',
+          'means the quantity is not defined for these data (see the JSON comparison for the reason). ' +
+          `At most ${MAX_FAMILY_COMPARISONS} rows (measures × pairs) per file: a larger one is refused with 422 family-too-large (ask for pairs=first).`,
         params: ExperimentParams,
         querystring: ComparisonsCsvQuery,
         response: fileResponse(
@@ -258,6 +261,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
           `${COMPARISON_CSV_COLUMNS.join(',')}\r\n` +
             'satisfaction,bill-first,service-first,212,205,6.61,2.02,7.12,1.94,7,3,7,2,-0.51,-0.895,-0.125,-2.6,414.8,0.0097,0.029,' +
             '19188,0.011,0.033,-1,-1,0,-0.257,-0.117,0.95,holm,heavy_ties,431,0.5,0.21,-0.83,-0.19,inconclusive,0.25,-1,0,inconclusive\r\n',
+          FAMILY_EXPORT_PROBLEMS,
         ),
       },
     },
@@ -287,7 +291,8 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
           `Columns: ${OMNIBUS_CSV_COLUMNS.join(', ')}. The omnibus numbers of a measure (Welch's ANOVA, the classic ANOVA, ` +
           'Kruskal–Wallis, flag codes) repeat on each of its pairs; then the pair: Games–Howell (difference a − b, t, df, p) and ' +
           "Dunn (z, two-sided p, two-sided Holm-adjusted p), and the equivalence tests when the measure has a margin. Same numbers " +
-          'as GET …/comparisons/{measure}/omnibus, from the same cache.',
+          'as GET …/comparisons/{measure}/omnibus, from the same cache. ' +
+          `At most ${MAX_FAMILY_COMPARISONS} rows (measures × pairs) per file: a larger one is refused with 422 family-too-large.`,
         params: ExperimentParams,
         querystring: z.strictObject({ includeExcluded: FamilyQuery.shape.includeExcluded }),
         response: fileResponse(
@@ -296,6 +301,7 @@ export async function exportRoutes(base: FastifyInstance, opts: { store: Store; 
           `${OMNIBUS_CSV_COLUMNS.join(',')}\r\n` +
             'satisfaction,3,630,4.2,2,410.3,0.016,0.01,4.1,0.017,0.013,8.3,2,0.016,0.013,,bill-first,service-first,-0.51,-2.6,414.8,0.027,' +
             '-2.5,0.012,0.037,0.5,0.21,inconclusive,0.25,inconclusive,431\r\n',
+          FAMILY_EXPORT_PROBLEMS,
         ),
       },
     },
@@ -331,8 +337,11 @@ export const OMNIBUS_CSV_COLUMNS = [
 
 /** One row per measure and pair: the omnibus numbers of the measure (repeated on each of its pairs), then the pair's. */
 export async function omnibusRows(service: ComparisonService, e: ExperimentRecord, includeExcluded: boolean): Promise<(string | number)[][]> {
+  assertFamilySize(e, 'all', true, 'This omnibus file');
   const rows: (string | number)[][] = [];
   for (const m of e.measures) {
+    // One measure at a time, letting other requests run in between (each omnibus is cached on its own).
+    await new Promise((resolve) => setImmediate(resolve));
     const { body: o } = await service.omnibus(e, m, { includeExcluded, margin: declaredMargin(e, m) });
     const head = [
       o.measure,

@@ -41,7 +41,8 @@ import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
 import { distributionGroupFromSample } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
-import { ComparisonSchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
+import { ComparisonSchema, FamilyEntrySchema, FamilySchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
+import { z } from 'zod';
 import { comparisonBody, flagContext } from './reply.js';
 import { computeOmnibus, renderOmnibusChart, type OmnibusOptions } from './omnibus.js';
 import { declaredMargin } from './margin.js';
@@ -58,9 +59,56 @@ import type { AdjustedBlock } from '../../schemas/weighted.js';
 
 import { primaryOf, roleOf } from '../measure-roles.js';
 import { flaggedAnswers } from './flagged-answers.js';
+import { ProblemError } from '../../errors.js';
+
+/** Let timers and I/O run between two slices of a long computation (each slice stays well under ~50 ms). */
+const nextTurn = (): Promise<void> => new Promise((resolve) => setImmediate(resolve));
+
+/**
+ * The family's JSON text exactly as the route's reply schema would write it (encode through the zod schema, then
+ * JSON.stringify), one entry at a time with a turn of the event loop in between: a family of a few hundred entries
+ * is ~1.5 MB, whose serialisation in one piece blocked the loop for ~60 ms on every request, cache hit or not.
+ * FamilySchema ends with `comparisons`, so the head is encoded with an empty list and the entries spliced in.
+ */
+async function familyJson(body: FamilyBody): Promise<string> {
+  const head = JSON.stringify(z.encode(FamilySchema, { ...body, comparisons: [] }));
+  if (!head.endsWith('"comparisons":[]}')) throw new Error('FamilySchema must end with comparisons');
+  const parts: string[] = [];
+  for (const entry of body.comparisons) {
+    parts.push(JSON.stringify(z.encode(FamilyEntrySchema, entry)));
+    await nextTurn();
+  }
+  return `${head.slice(0, -2)}${parts.join(',')}]}`;
+}
+
+/**
+ * Refuse a family larger than MAX_FAMILY_COMPARISONS (measures × pairs) with a 422 naming the cap and how to narrow
+ * the request. `what` names the request in the detail.
+ */
+export function assertFamilySize(experiment: ExperimentRecord, pairs: 'first' | 'all', includeCovariates: boolean, what: string): void {
+  const size = familyTargets(experiment, pairs, includeCovariates).length;
+  if (size <= MAX_FAMILY_COMPARISONS) return;
+  const k = experiment.conditions.length;
+  const measures = size / (pairs === 'all' ? (k * (k - 1)) / 2 : 1);
+  throw new ProblemError(
+    'family-too-large',
+    `${what} would hold ${size} comparisons (${measures} measures × ${size / measures} pairs of conditions); the limit is ` +
+      `${MAX_FAMILY_COMPARISONS} per request. Narrow it: ask for pairs=first, or one measure at a time ` +
+      '(GET /v1/experiments/{id}/comparisons/{measure}?a=&b=, or …/comparisons/{measure}/omnibus for every pair of one measure).',
+  );
+}
 
 /** Bump when a change to stats or to the reply changes what the same data produce (invalidates every ETag). */
 export const CACHE_FORMAT = 4;
+/**
+ * The largest family one request may ask for, counted in comparisons (measures × pairs of conditions): GET
+ * …/comparisons, comparisons.csv and omnibus.csv above it are refused (422 family-too-large) before anything is read.
+ * 500 is the most measures a definition may hold, so every pairs=first family (the default, and the team overview's)
+ * stays allowed; it covers 50 measures with 5 conditions (10 pairs), and bounds one family to ~2.5 MB of JSON
+ * computed in slices of one comparison and cached as text (tests/bench/read-cost.ts). The definition allows 50
+ * conditions (1,225 pairs): such families are refused.
+ */
+export const MAX_FAMILY_COMPARISONS = 500;
 export const DEFAULT_CACHE_LIMITS = Object.freeze({ maxEntries: 2000, maxBytes: 64 * 1024 * 1024 });
 /** What the service reports for every comparison or chart it answers (the app passes its metrics here). */
 export interface ComparisonEvent {
@@ -113,7 +161,8 @@ type CachedValue =
   | { kind: 'omnibus'; key: string; body: OmnibusBody }
   | { kind: 'trajectory'; key: string; body: TrajectoryBody }
   | { kind: 'trajectory-chart'; key: string; svg: string }
-  | { kind: 'adjusted'; key: string; dataVersion: number; block: AdjustedBlock };
+  | { kind: 'adjusted'; key: string; dataVersion: number; block: AdjustedBlock }
+  | { kind: 'family'; key: string; body: FamilyBody; etag: string; json: string };
 
 export interface ComparisonReply {
   body: ComparisonBody;
@@ -342,15 +391,30 @@ export class ComparisonService {
    * belong to one dataVersion: when data arrive during the computation, it starts again (at most 3 times; after
    * that, entries may differ and the top-level dataVersion is the newest).
    */
-  async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string }> {
-    let s = stamp ?? (await this.stamp(experiment));
+  async family(experiment: ExperimentRecord, options: FamilyOptions, stamp?: Stamp): Promise<{ body: FamilyBody; etag: string; json: string }> {
+    assertFamilySize(experiment, options.pairs, options.includeCovariates ?? false, `This family (pairs=${options.pairs})`);
+    const s = stamp ?? (await this.stamp(experiment));
+    // The whole family is cached under its ETag seed (identical concurrent requests share one computation), so a
+    // repeated family costs one lookup, not one per entry.
+    const key = this.familyKey(experiment, options, s);
+    const value = await this.cached(key, async () => ({ kind: 'family', ...(await this.computeFamily(experiment, options, s)) }));
+    if (value.kind !== 'family') throw new Error('cache entry of the wrong kind');
+    return { body: value.body, etag: value.etag, json: value.json };
+  }
+
+  /** `key`: the cache key of the stamp the entries really belong to (a newer one when data arrived meanwhile). */
+  private async computeFamily(experiment: ExperimentRecord, options: FamilyOptions, stamp: Stamp): Promise<{ key: string; body: FamilyBody; etag: string; json: string }> {
+    let s = stamp;
     const targets = familyTargets(experiment, options.pairs, options.includeCovariates ?? false);
     let entries: ComparisonReply[] = [];
     let consistent = false;
     for (let attempt = 0; attempt < 3 && !consistent; attempt++) {
       if (attempt > 0) s = await this.stamp(experiment);
       entries = [];
-      for (const t of targets) entries.push(await this.comparison(t, options, s));
+      for (const t of targets) {
+        entries.push(await this.comparison(t, options, s));
+        await nextTurn();
+      }
       const expected = s;
       consistent = entries.every((e, i) => e.etag === tagOf(this.comparisonKey(targets[i], options, expected)));
     }
@@ -384,10 +448,8 @@ export class ComparisonService {
     };
     const dataVersion = Math.max(...entries.map((e) => e.body.dataVersion));
     const body: FamilyBody = { experiment: experiment.id, dataVersion, adjust: options.adjust, pairs: options.pairs, adjustedFamily, comparisons };
-    const etag = consistent
-      ? this.familyEtagFromStamp(experiment, options, s)
-      : tagOf(['family-mixed', options.pairs, options.adjust, ...entries.map((e) => e.etag)].join('\n'));
-    return { body, etag };
+    const key = consistent ? this.familyKey(experiment, options, s) : ['family-mixed', options.pairs, options.adjust, ...entries.map((e) => e.etag)].join('\n');
+    return { key, body, etag: tagOf(key), json: await familyJson(body) };
   }
 
   /**
@@ -401,8 +463,12 @@ export class ComparisonService {
 
   /** The family's ETag from the stamp alone (for the 304 check before anything is computed). */
   familyEtagFromStamp(experiment: ExperimentRecord, options: FamilyOptions, s: Stamp): string {
+    return tagOf(this.familyKey(experiment, options, s));
+  }
+
+  private familyKey(experiment: ExperimentRecord, options: FamilyOptions, s: Stamp): string {
     const keys = familyTargets(experiment, options.pairs, options.includeCovariates ?? false).map((t) => this.comparisonKey(t, options, s));
-    return tagOf(['family', options.pairs, options.adjust, ...keys].join('\n'));
+    return ['family', options.pairs, options.adjust, ...keys].join('\n');
   }
 
   /** Look up `key`; on a miss compute once (concurrent identical misses share the computation) and cache. */
@@ -419,7 +485,8 @@ export class ComparisonService {
         const started = performance.now();
         const value = await compute();
         this.onComparison({ cacheHit: false, durationSeconds: (performance.now() - started) / 1000 });
-        const bytes = 'svg' in value ? value.svg.length * 2 : JSON.stringify('block' in value ? value.block : value.body).length * 2;
+        const bytes =
+          'svg' in value ? value.svg.length * 2 : 'json' in value ? value.json.length * 2 : JSON.stringify('block' in value ? value.block : value.body).length * 2;
         this.cache.set(value.key, value, bytes);
         return value;
       } finally {

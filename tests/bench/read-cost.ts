@@ -1,0 +1,248 @@
+/**
+ * Bounded read cost (issue 12): what hostile or careless reads cost another study's ingest, through the built server
+ * (child process, temp DB file, 127.0.0.1). A probe posts single answers to another study one after another during
+ * every phase; its latencies are the figure.
+ *
+ *   npm run build && npx tsx tests/bench/read-cost.ts [--n 50000] [--seconds 20] [--quick]
+ *
+ * Phases (data invented: tests/bench/data.ts streams and arithmetic patterns):
+ *   idle           the probe alone (a control)
+ *   families       GET …/comparisons?pairs=all on 8 conditions × 60 items × 300 answers per condition, one at a
+ *                  time, a new confidenceLevel each time (0.800, 0.801, …) — now 422 (over the cap) or 400 (level not
+ *                  in the set) at once; then pairs=first with each level of the documented set; then pairs=all
+ *                  on 50 conditions × 20 items (1,000 answers) once
+ *   old page × 3   three clients behaving as the results page did: on every change (2 answers/s arrive), re-fetch
+ *                  the comparison, chart.svg and trajectory.svg of every item, no If-None-Match
+ *   new page × 3   three clients behaving as the page does now: at most one refresh every 2 s, If-None-Match on
+ *                  every JSON and SVG, no trajectory (folded until opened)
+ *   flood          one key asking for comparisons back to back without If-None-Match, a new option each time
+ *
+ * Printed per phase: the probe's p50 / p99 / max (ms) and failed answers, the server's largest event-loop delay
+ * (prom-client's nodejs_eventloop_lag_max_seconds, reset at each scrape), the replies by status (0: the connection
+ * failed), and the server's peak rss. --family-requests K (default 40) sets how many pairs=all requests are sent.
+ */
+import { generateStream } from './data.js';
+import { abExperiment, api, argNum, batchJson, expectStatus, fmt, logger, newServiceEnv, percentile, responseJson, rssOf, sendBatches, startService, table, QUICK, type RunningServer } from './harness.js';
+
+const log = logger('read-cost');
+const N = argNum('--n', QUICK ? 10_000 : 50_000);
+const SECONDS = argNum('--seconds', QUICK ? 8 : 20);
+/** pairs=all requests with a new confidenceLevel each (the old code took seconds for each). */
+const FAMILY_REQUESTS = argNum('--family-requests', 40);
+const POLLED = abExperiment('bench-polled', 'Polled study (invented data)');
+
+async function lagMs(s: RunningServer, key: string): Promise<number | null> {
+  const r = await fetch(`${s.url}/metrics`, { headers: { authorization: `Bearer ${key}` } });
+  if (!r.ok) return null;
+  const m = (await r.text()).match(/^nodejs_eventloop_lag_max_seconds(?:\{[^}]*\})?\s+([0-9.eE+-]+)/m);
+  return m ? Number(m[1]) * 1000 : null;
+}
+
+/** Single answers to the probe study, one after another, until stopped. */
+function probe(s: RunningServer, key: string): { stop(): Promise<number[]>; failures(): number } {
+  let running = true;
+  let failed = 0;
+  const ms: number[] = [];
+  let i = 0;
+  const loop = (async () => {
+    while (running) {
+      const t0 = performance.now();
+      try {
+        const r = await fetch(`${s.url}/v1/experiments/bench-probe/responses`, {
+          method: 'POST',
+          headers: { authorization: `Bearer ${key}`, 'content-type': 'application/json' },
+          body: responseJson(`p-${Date.now()}-${i++}`, i % 2 ? 'a' : 'b', { score: i % 101, amount: (i % 17) - 8 }),
+        });
+        await r.text();
+        if (r.status >= 400) failed++;
+      } catch {
+        failed++; // connection reset or refused: counted, and its time kept
+      }
+      ms.push(performance.now() - t0);
+      await new Promise((resolve) => setTimeout(resolve, 20));
+    }
+  })();
+  return {
+    async stop() {
+      running = false;
+      await loop;
+      return ms;
+    },
+    failures: () => failed,
+  };
+}
+
+async function createWide(s: RunningServer, key: string, id: string, k: number, m: number, perCondition: number): Promise<void> {
+  const conditions = Array.from({ length: k }, (_, i) => ({ id: `c${i}` }));
+  const measures = Array.from({ length: m }, (_, j) => ({ id: `q${j}`, min: 0, max: 10, integer: true }));
+  expectStatus(await api(s.url, 'POST', '/v1/experiments', key, { id, title: 'Wide study (invented data)', conditions, measures }), [201], `create ${id}`);
+  const items: string[] = [];
+  for (let c = 0; c < k; c++) {
+    for (let r = 0; r < perCondition; r++) {
+      items.push(responseJson(`${id}-${c}-${r}`, `c${c}`, Object.fromEntries(measures.map((q, j) => [q.id, (r * 7 + c * 3 + j) % 11]))));
+    }
+  }
+  const per = 5000;
+  await sendBatches(s.url, id, key, (i) => batchJson(items.slice(i * per, (i + 1) * per)), Math.ceil(items.length / per), 1);
+}
+
+interface PhaseResult {
+  name: string;
+  probe: number[];
+  lag: number | null;
+  statuses: Map<number, number>;
+  note: string;
+}
+
+async function phase(s: RunningServer, key: string, name: string, work: (count: (status: number) => void) => Promise<string>): Promise<PhaseResult> {
+  log(`phase: ${name}`);
+  await lagMs(s, key);
+  const statuses = new Map<number, number>();
+  const p = probe(s, key);
+  const note = await work((st) => statuses.set(st, (statuses.get(st) ?? 0) + 1));
+  const ms = await p.stop();
+  const failed = p.failures();
+  return { name, probe: ms, lag: await lagMs(s, key), statuses, note: failed > 0 ? `${note} ${failed} probe answers failed`.trim() : note };
+}
+
+/** A page-like client: `old` re-fetches everything on every change; `new` revalidates at most every 2 s. */
+async function pageClient(s: RunningServer, key: string, style: 'old' | 'new', until: number, count: (status: number) => void): Promise<void> {
+  const etags = new Map<string, string>();
+  let lastVersion = -1;
+  while (performance.now() < until) {
+    const def = await api<{ dataVersion: number }>(s.url, 'GET', `/v1/experiments/${POLLED.id}`, key);
+    count(def.status);
+    const changed = def.body.dataVersion !== lastVersion;
+    lastVersion = def.body.dataVersion;
+    if (style === 'old' && !changed) {
+      await new Promise((resolve) => setTimeout(resolve, 400));
+      continue;
+    }
+    const urls: string[] = [];
+    for (const m of ['score', 'amount']) {
+      const base = `/v1/experiments/${POLLED.id}/comparisons/${m}`;
+      urls.push(base, `${base}/chart.svg`);
+      if (style === 'old') urls.push(`${base}/trajectory.svg`);
+    }
+    await Promise.all(
+      urls.map(async (u) => {
+        const tag = style === 'new' ? etags.get(u) : undefined;
+        const r = await fetch(`${s.url}${u}`, { headers: { authorization: `Bearer ${key}`, ...(tag ? { 'if-none-match': tag } : {}) } });
+        await r.arrayBuffer();
+        count(r.status);
+        const e = r.headers.get('etag');
+        if (e) etags.set(u, e);
+      }),
+    );
+    await new Promise((resolve) => setTimeout(resolve, style === 'old' ? 400 : 2000));
+  }
+}
+
+/** 2 answers a second to the polled study until `until`. */
+async function trickle(s: RunningServer, key: string, until: number): Promise<void> {
+  let i = 0;
+  while (performance.now() < until) {
+    await api(s.url, 'POST', `/v1/experiments/${POLLED.id}/responses`, key, responseJson(`live-${Date.now()}-${i++}`, i % 2 ? 'a' : 'b', { score: i % 101, amount: (i % 13) - 6 }));
+    await new Promise((resolve) => setTimeout(resolve, 500));
+  }
+}
+
+async function main(): Promise<void> {
+  const env = newServiceEnv('read-cost');
+  env.extraEnv = { SPLITBALLOT_RATE_LIMIT_READ: '6000' };
+  const key = env.adminKey;
+  const s = await startService(env);
+  const results: PhaseResult[] = [];
+  try {
+    expectStatus(await api(s.url, 'POST', '/v1/experiments', key, abExperiment('bench-probe', 'Probe study (invented data)')), [201], 'probe study');
+    expectStatus(await api(s.url, 'POST', '/v1/experiments', key, POLLED), [201], 'polled study');
+    log(`loading 2 × ${fmt.int(N)} answers into the polled study`);
+    const ia = generateStream('integer-a', N);
+    const ib = generateStream('integer-b', N);
+    const ca = generateStream('continuous-a', N);
+    const cb = generateStream('continuous-b', N);
+    const per = 5000;
+    await sendBatches(s.url, POLLED.id, key, (i) => {
+      const items: string[] = [];
+      for (let k = i * per; k < Math.min(N, (i + 1) * per); k++) items.push(responseJson(`a-${k}`, 'a', { score: ia[k], amount: ca[k] }), responseJson(`b-${k}`, 'b', { score: ib[k], amount: cb[k] }));
+      return batchJson(items);
+    }, Math.ceil(N / per), 2);
+    log('loading the wide studies');
+    await createWide(s, key, 'bench-wide', 8, 60, 300);
+    await createWide(s, key, 'bench-huge', 50, 20, 20);
+
+    results.push(await phase(s, key, 'idle', async () => {
+      await new Promise((resolve) => setTimeout(resolve, 3000));
+      return '';
+    }));
+
+    results.push(await phase(s, key, 'families', async (count) => {
+      let bodyBytes = 0;
+      for (let i = 0; i < FAMILY_REQUESTS; i++) {
+        const r = await fetch(`${s.url}/v1/experiments/bench-wide/comparisons?pairs=all&confidenceLevel=${(0.8 + i / 1000).toFixed(3)}`, { headers: { authorization: `Bearer ${key}` } }).catch(() => null);
+        if (r) await r.arrayBuffer();
+        count(r ? r.status : 0);
+      }
+      for (const level of [0.5, 0.8, 0.9, 0.95, 0.98, 0.99, 0.995, 0.999]) {
+        const r = await api(s.url, 'GET', `/v1/experiments/bench-wide/comparisons?pairs=first&confidenceLevel=${level}`, key);
+        count(r.status);
+      }
+      const t0 = performance.now();
+      const huge = await fetch(`${s.url}/v1/experiments/bench-huge/comparisons?pairs=all`, { headers: { authorization: `Bearer ${key}` } }).catch(() => null);
+      bodyBytes = huge ? (await huge.arrayBuffer()).byteLength : 0;
+      count(huge ? huge.status : 0);
+      return `50 × 20 pairs=all: HTTP ${huge ? huge.status : 'failed'}, ${fmt.int(bodyBytes)} bytes in ${fmt.int(performance.now() - t0)} ms`;
+    }));
+
+    for (const style of ['old', 'new'] as const) {
+      results.push(await phase(s, key, `${style} page × 3`, async (count) => {
+        const until = performance.now() + SECONDS * 1000;
+        await Promise.all([trickle(s, key, until), pageClient(s, key, style, until, count), pageClient(s, key, style, until, count), pageClient(s, key, style, until, count)]);
+        return '';
+      }));
+    }
+
+    results.push(await phase(s, key, 'flood', async (count) => {
+      const until = performance.now() + SECONDS * 1000;
+      const alternatives = ['two-sided', 'less', 'greater'];
+      const levels = [0.5, 0.8, 0.9, 0.95, 0.98, 0.99, 0.995, 0.999];
+      let i = 0;
+      const one = async () => {
+        while (performance.now() < until) {
+          const r = await fetch(`${s.url}/v1/experiments/${POLLED.id}/comparisons/${i % 2 ? 'amount' : 'score'}?confidenceLevel=${levels[i % 8]}&alternative=${alternatives[i % 3]}&includeExcluded=${i % 5 ? 'false' : 'true'}`, {
+            headers: { authorization: `Bearer ${key}` },
+          });
+          i++;
+          await r.arrayBuffer();
+          count(r.status);
+        }
+      };
+      await Promise.all([one(), one(), one(), one()]);
+      return `${fmt.int(i)} requests from 4 loops`;
+    }));
+
+    const rss = rssOf(s.pid);
+    const rows = results.map((r) => [
+      r.name,
+      String(r.probe.length),
+      percentile(r.probe, 50).toFixed(1),
+      percentile(r.probe, 99).toFixed(1),
+      Math.max(...r.probe).toFixed(1),
+      r.lag === null ? '–' : r.lag.toFixed(0),
+      [...r.statuses].sort((a, b) => a[0] - b[0]).map(([st, c]) => `${st}×${c}`).join(' '),
+      r.note,
+    ]);
+    const summary =
+      `read cost, polled study 2 × ${fmt.int(N)}, ${SECONDS} s per page phase; peak rss ${rss ? rss.peakMb.toFixed(0) : '?'} MB\n` +
+      table(['phase', 'probes', 'ingest p50 ms', 'p99 ms', 'max ms', 'loop lag max ms', 'replies', 'note'], rows);
+    process.stdout.write(`${summary}\n`);
+  } finally {
+    await s.stop();
+    env.cleanup();
+  }
+}
+
+main().catch((err) => {
+  console.error(err);
+  process.exit(1);
+});
