@@ -261,6 +261,18 @@ export function defineStoreConformance(harness: EngineHarness): void {
       const dup = await Promise.all([1, 2, 3].map(() => store.responses.ingest(e.key, [toItem(e, again)], NOW, null)));
       expect(dup.map((o) => (o.kind === 'stored' ? o.created : -1)).sort()).toEqual([0, 0, 1]);
       expect(await store.experiments.getDataVersion(e.key)).toBe(61);
+      // A request that fails inside a group (a condition key that does not exist) is rolled back alone.
+      const [good1, broken, good2] = answers(3, 13, 'grp-err');
+      const settled = await Promise.allSettled([
+        store.responses.ingest(e.key, [toItem(e, good1)], NOW, null),
+        store.responses.ingest(e.key, [{ ...toItem(e, broken), conditionKey: 987_654 }], NOW, null),
+        store.responses.ingest(e.key, [toItem(e, good2)], NOW, null),
+      ]);
+      expect(settled.map((s) => s.status)).toEqual(['fulfilled', 'rejected', 'fulfilled']);
+      expect(await store.responses.getStored(e.key, broken.id)).toBeNull();
+      expect(await store.responses.getStored(e.key, good2.id)).not.toBeNull();
+      expect(await store.experiments.getDataVersion(e.key)).toBe(63);
+      list.push(good1, good2);
       expect(await store.responses.getCounts(keyOf(e, 'satisfaction'), keyOf(e, 'bill-first'), false)).toEqual(
         Float64Array.from(denseCounts([...list, again], 'bill-first')),
       );
