@@ -7,7 +7,7 @@
  * An engine supplies an EngineHarness: fresh databases, and the few operations the Store port does not (yet)
  * cover — check, tampering with a count, export pages, bulk import, migrations.
  */
-import { describe, expect, it } from 'vitest';
+import { afterAll, describe, expect, it } from 'vitest';
 import type { AssignmentPlan } from '../../server/db/monitoring-types.js';
 import type { ExperimentRecord, IngestOutcome, Store, ValidResponse } from '../../server/db/types.js';
 import { contentHash } from '../../server/ingest.js';
@@ -147,6 +147,12 @@ export function defineStoreConformance(harness: EngineHarness): void {
   describe(`Store conformance: ${harness.name}`, () => {
     let db: EngineDatabase;
     let store: Store;
+
+    afterAll(async () => {
+      if (!db) return;
+      await store.close();
+      await db.drop();
+    });
 
     // One database for the file; every test makes its own experiment.
     const setup = async () => {
@@ -620,11 +626,6 @@ export function defineStoreConformance(harness: EngineHarness): void {
       }
     });
 
-    it('closes', async () => {
-      if (!db) return;
-      await store.close();
-      await db.drop();
-    });
   });
 }
 
