@@ -10,10 +10,10 @@
  * in JS and upserted with one `INSERT … ON CONFLICT DO UPDATE`, per-condition counters, dataVersion + 1 and a
  * pg_notify (delivered on commit). The promise settles after COMMIT returned: acknowledged means committed.
  *
- * Group commit: single-response requests arriving in the same turn of the event loop share one transaction
- * (every request is its own SAVEPOINT: its own idempotency check, conflict or error, rolled back alone); the
- * experiments of the group are locked in key order first. Groups (and batches) run concurrently on separate pool
- * connections; the row locks keep per-experiment order.
+ * Group commit: single-response requests to one experiment share one transaction (every request is its own
+ * SAVEPOINT: its own idempotency check, conflict or error, rolled back alone): those of one event-loop turn, and
+ * while a group commits, all that arrive meanwhile (see flushGroup). Groups of different experiments and batches
+ * run concurrently on separate pool connections; the row locks keep per-experiment order across processes.
  *
  * Reads. getCounts / getValueCounts read value_counts (O(distinct values)); sorted values come from the index
  * (measure_id, condition_id, excluded, value) in order. The snapshots run in ONE REPEATABLE READ transaction:
@@ -238,8 +238,8 @@ export async function ingestLocked(
 }
 
 export class PostgresResponseRepository implements ResponseRepository {
-  private group: PendingIngest[] = [];
-  private flushScheduled = false;
+  /** Pending single responses per experiment, and whether that experiment's group transaction is running. */
+  private readonly groups = new Map<number, { pending: PendingIngest[]; inFlight: boolean; scheduled: boolean }>();
   /** Group-commit figures: committed groups, requests in them, the largest group. */
   readonly groupStats = { groups: 0, requests: 0, largest: 0 };
   /** Sorted runs of continuous measures kept between comparisons, validated against every snapshot. */
@@ -249,7 +249,7 @@ export class PostgresResponseRepository implements ResponseRepository {
 
   /**
    * Store validated responses in ONE transaction (see the header). A request with one response joins the group
-   * commit of its event-loop turn; a batch runs at once in its own transaction.
+   * commit of its experiment; a batch runs at once in its own transaction.
    */
   async ingest(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): Promise<IngestOutcome> {
     if (items.length !== 1) {
@@ -259,32 +259,45 @@ export class PostgresResponseRepository implements ResponseRepository {
       });
     }
     return new Promise<IngestOutcome>((resolve, reject) => {
-      this.group.push({ experimentKey, items, receivedAt, apiKeyId, resolve, reject });
-      if (this.group.length >= GROUP_COMMIT_MAX) this.flushGroup();
-      else if (!this.flushScheduled) {
-        this.flushScheduled = true;
-        deferTurn(() => this.flushGroup());
+      let g = this.groups.get(experimentKey);
+      if (!g) this.groups.set(experimentKey, (g = { pending: [], inFlight: false, scheduled: false }));
+      g.pending.push({ experimentKey, items, receivedAt, apiKeyId, resolve, reject });
+      if (g.inFlight) return; // taken by the next group when the running one commits
+      if (g.pending.length >= GROUP_COMMIT_MAX) this.flushGroup(experimentKey);
+      else if (!g.scheduled) {
+        g.scheduled = true;
+        deferTurn(() => this.flushGroup(experimentKey));
       }
     });
   }
 
-  private flushGroup(): void {
-    this.flushScheduled = false;
-    const group = this.group.splice(0);
-    if (group.length === 0) return;
+  /**
+   * Write one experiment's pending single responses as ONE transaction (each request a SAVEPOINT). At most one
+   * group per experiment is in flight per process: requests arriving while it commits form the next group, which
+   * starts as soon as it is done (classic group commit: the busier the experiment, the larger the groups). Other
+   * experiments' groups run in parallel on other pool connections, so an experiment locked elsewhere for long (a
+   * bulk import on another node) does not hold up the rest.
+   */
+  private flushGroup(experimentKey: number): void {
+    const g = this.groups.get(experimentKey);
+    if (!g) return;
+    g.scheduled = false;
+    if (g.inFlight) return;
+    const group = g.pending.splice(0, GROUP_COMMIT_MAX);
+    if (group.length === 0) {
+      this.groups.delete(experimentKey);
+      return;
+    }
+    g.inFlight = true;
     type Result = { ok: true; outcome: IngestOutcome } | { ok: false; error: unknown };
     this.db
       .write(async (c) => {
-        const locked = await lockExperiments(
-          c,
-          group.map((g) => g.experimentKey),
-        );
+        const state = (await lockExperiments(c, [experimentKey])).get(experimentKey);
         const results: Result[] = [];
-        for (const g of group) {
+        for (const one of group) {
           await c.query('SAVEPOINT one_request');
           try {
-            const state = locked.get(g.experimentKey);
-            const outcome = await ingestLocked(c, g.experimentKey, state, g.items, g.receivedAt, g.apiKeyId);
+            const outcome = await ingestLocked(c, experimentKey, state, one.items, one.receivedAt, one.apiKeyId);
             await c.query('RELEASE SAVEPOINT one_request');
             if (state && outcome.kind === 'stored') state.dataVersion = outcome.dataVersion;
             results.push({ ok: true, outcome });
@@ -304,9 +317,14 @@ export class PostgresResponseRepository implements ResponseRepository {
           results.forEach((r, i) => (r.ok ? group[i].resolve(r.outcome) : group[i].reject(r.error)));
         },
         (error: unknown) => {
-          for (const g of group) g.reject(error);
+          for (const one of group) one.reject(error);
         },
-      );
+      )
+      .finally(() => {
+        g.inFlight = false;
+        if (g.pending.length > 0) this.flushGroup(experimentKey);
+        else this.groups.delete(experimentKey);
+      });
   }
 
   async recordRejected(experimentKey: number, increments: RejectedIncrement[]): Promise<void> {

@@ -198,6 +198,34 @@ describe.skipIf(!available)('PostgreSQL store', () => {
     expect(store.responses.sortedCache.stats.merges).toBeGreaterThan(0);
   });
 
+  it('group commit is per experiment: singles share transactions, and an experiment locked elsewhere holds up only its own', async () => {
+    const x = await makeExperiment(store, 'group-x');
+    const y = await makeExperiment(store, 'group-y');
+    const before = { ...store.responses.groupStats };
+    const outs = await Promise.all(Array.from({ length: 80 }, (_, i) => store.responses.ingest(y.key, [item(y, `gy-${i}`, (i % 2) as 0 | 1, i)], NOW, null)));
+    expect(outs.every((o) => o.kind === 'stored' && o.created === 1)).toBe(true);
+    const groups = store.responses.groupStats.groups - before.groups;
+    expect(store.responses.groupStats.requests - before.requests).toBe(80);
+    expect(groups).toBeGreaterThanOrEqual(1);
+    expect(groups).toBeLessThanOrEqual(3); // one turn's worth, maybe split by the connection's readiness
+
+    // Another process holds experiment x's row lock (as a long import would).
+    const admin = await test.admin();
+    await admin.query('BEGIN');
+    await admin.query('SELECT 1 FROM experiments WHERE id = $1 FOR NO KEY UPDATE', [x.key]);
+    let xDone = false;
+    const waiting = store.responses.ingest(x.key, [item(x, 'gx-1', 0, 1)], NOW, null).then((o) => {
+      xDone = true;
+      return o;
+    });
+    const yOut = await store.responses.ingest(y.key, [item(y, 'gy-late', 0, 5)], NOW, null);
+    expect(yOut.kind === 'stored' && yOut.dataVersion).toBe(81);
+    expect(xDone).toBe(false);
+    await admin.query('COMMIT');
+    const xOut = await waiting;
+    expect(xOut.kind === 'stored' && xOut.dataVersion).toBe(1);
+  });
+
   it('two pools send the same 120 responses at once: each is stored once, counts and versions stay exact', async () => {
     const other = await openPostgresStore(test.url, { pool: { poolSize: 3 } });
     try {
