@@ -137,7 +137,6 @@ export async function beginBulkImportPostgres(db: PostgresDatabase, experimentKe
         try {
           const outcome = await ingestLocked(c, experimentKey, state, items, receivedAt, apiKeyId);
           await c.query('RELEASE SAVEPOINT import_chunk');
-          if (state && outcome.kind === 'stored') state.dataVersion = outcome.dataVersion;
           return outcome;
         } catch (err) {
           await c.query('ROLLBACK TO SAVEPOINT import_chunk').catch(() => undefined);

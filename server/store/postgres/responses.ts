@@ -108,10 +108,16 @@ function mergeable(run: SortedRun, view: CacheView): boolean {
   return view.lastRowId - run.lastRowId <= Math.max(INCREMENTAL_MIN_ROWS, run.values.length * INCREMENTAL_MAX_SHARE);
 }
 
+/** One ingest request (a single response or a batch) as the write path sees it. */
+export interface IngestRequest {
+  items: ValidResponse[];
+  receivedAt: string;
+  apiKeyId: number | null;
+}
+
 /**
  * The ingest bookkeeping for one request inside the caller's write transaction, which already holds the
- * experiment's row lock (`state` is what that lock read, kept current by the caller). Shared by ingest, the group
- * commit and the bulk import.
+ * experiment's row lock (`state` is what that lock read; kept current here). Shared by ingest and the bulk import.
  */
 export async function ingestLocked(
   c: Queryable,
@@ -121,59 +127,91 @@ export async function ingestLocked(
   receivedAt: string,
   apiKeyId: number | null,
 ): Promise<IngestOutcome> {
-  if (!state) return { kind: 'not-found' };
-  if (state.status !== 'open') return { kind: 'closed' };
+  return (await ingestRequestsLocked(c, experimentKey, state, [{ items, receivedAt, apiKeyId }]))[0];
+}
 
-  // 1. Idempotency, decided for every item before anything is written.
-  const clientIds = [...new Set(items.filter((x) => !x.generated).map((x) => x.responseId))];
-  const storedHashes = new Map<string, Uint8Array>();
+/**
+ * Several requests to one experiment written together, with exactly the outcomes they would have one after
+ * another: each request is all or nothing (a conflict stores none of it), a later request sees the responses of
+ * the earlier ones (same id and hash = a repeat), and every request that stores something moves dataVersion by
+ * one, in request order. The writes of all requests go in as one statement per table (unnest arrays), so a group
+ * of 200 single responses costs the same handful of round trips as one. `state.dataVersion` is advanced.
+ */
+export async function ingestRequestsLocked(
+  c: Queryable,
+  experimentKey: number,
+  state: ExperimentLockState | undefined,
+  requests: IngestRequest[],
+): Promise<IngestOutcome[]> {
+  if (!state) return requests.map(() => ({ kind: 'not-found' }));
+  if (state.status !== 'open') return requests.map(() => ({ kind: 'closed' }));
+
+  // 1. Idempotency for every request before anything is written: one lookup of all client ids.
+  const clientIds = [...new Set(requests.flatMap((r) => r.items.filter((x) => !x.generated).map((x) => x.responseId)))];
+  const known = new Map<string, Uint8Array>();
   if (clientIds.length > 0) {
     const r = await c.query<{ response_id: string; content_hash: Buffer }>(
       `SELECT response_id, content_hash FROM responses WHERE experiment_id = $1 AND response_id = ANY($2::text[])`,
       [experimentKey, clientIds],
     );
-    for (const row of r.rows) storedHashes.set(row.response_id, row.content_hash);
+    for (const row of r.rows) known.set(row.response_id, row.content_hash);
   }
-  const isNew = new Array<boolean>(items.length);
-  const conflicts: { index: number; responseId: string }[] = [];
-  const seenInBatch = new Map<string, Uint8Array>();
-  for (let i = 0; i < items.length; i++) {
-    const item = items[i];
-    if (item.generated) {
-      isNew[i] = true;
+  interface Decided {
+    request: IngestRequest;
+    isNew: boolean[];
+    fresh: ValidResponse[];
+    outcome: IngestOutcome | null;
+  }
+  const decided: Decided[] = [];
+  for (const request of requests) {
+    const { items } = request;
+    const isNew = new Array<boolean>(items.length);
+    const conflicts: { index: number; responseId: string }[] = [];
+    const seenInBatch = new Map<string, Uint8Array>();
+    for (let i = 0; i < items.length; i++) {
+      const item = items[i];
+      if (item.generated) {
+        isNew[i] = true;
+        continue;
+      }
+      const stored = seenInBatch.get(item.responseId) ?? known.get(item.responseId);
+      if (stored === undefined) {
+        isNew[i] = true;
+        seenInBatch.set(item.responseId, item.contentHash);
+      } else if (bytesEqual(stored, item.contentHash)) {
+        isNew[i] = false;
+      } else {
+        conflicts.push({ index: i, responseId: item.responseId });
+      }
+    }
+    if (conflicts.length > 0) {
+      decided.push({ request, isNew, fresh: [], outcome: { kind: 'conflict', conflicts } });
       continue;
     }
-    const stored = seenInBatch.get(item.responseId) ?? storedHashes.get(item.responseId);
-    if (stored === undefined) {
-      isNew[i] = true;
-      seenInBatch.set(item.responseId, item.contentHash);
-    } else if (bytesEqual(stored, item.contentHash)) {
-      isNew[i] = false;
-    } else {
-      conflicts.push({ index: i, responseId: item.responseId });
-    }
+    for (const [id, hash] of seenInBatch) known.set(id, hash);
+    decided.push({ request, isNew, fresh: items.filter((_, i) => isNew[i]), outcome: null });
   }
-  if (conflicts.length > 0) return { kind: 'conflict', conflicts };
 
-  const fresh = items.filter((_, i) => isNew[i]);
-  let dataVersion = state.dataVersion;
-  if (fresh.length > 0) {
-    // 2. Response rows, in input order (ids drawn in that order, under the experiment's lock).
+  const writing = decided.filter((d) => d.outcome === null && d.fresh.length > 0);
+  if (writing.length > 0) {
+    // 2. Response rows in request and input order (ids drawn in that order, under the experiment's lock).
+    const rows = writing.flatMap((d) => d.fresh.map((item) => ({ item, request: d.request })));
     const inserted = await c.query<{ id: number; response_id: string }>(
       `INSERT INTO responses (experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       SELECT $1, u.rid, u.cond, u.resp, u.sub, $2, u.hash, $3
-       FROM unnest($4::text[], $5::bigint[], $6::text[], $7::text[], $8::bytea[]) WITH ORDINALITY AS u(rid, cond, resp, sub, hash, ord)
+       SELECT $1, u.rid, u.cond, u.resp, u.sub, u.recv, u.hash, u.api
+       FROM unnest($2::text[], $3::bigint[], $4::text[], $5::text[], $6::text[], $7::bytea[], $8::bigint[])
+         WITH ORDINALITY AS u(rid, cond, resp, sub, recv, hash, api, ord)
        ORDER BY u.ord
        RETURNING id, response_id`,
       [
         experimentKey,
-        receivedAt,
-        apiKeyId,
-        fresh.map((x) => x.responseId),
-        fresh.map((x) => x.conditionKey),
-        fresh.map((x) => x.respondent),
-        fresh.map((x) => x.submittedAt),
-        fresh.map((x) => toBuffer(x.contentHash)),
+        rows.map((r) => r.item.responseId),
+        rows.map((r) => r.item.conditionKey),
+        rows.map((r) => r.item.respondent),
+        rows.map((r) => r.item.submittedAt),
+        rows.map((r) => r.request.receivedAt),
+        rows.map((r) => toBuffer(r.item.contentHash)),
+        rows.map((r) => r.request.apiKeyId),
       ],
     );
     const rowIdOf = new Map<string, number>(inserted.rows.map((r) => [r.response_id, r.id]));
@@ -188,7 +226,7 @@ export async function ingestLocked(
     const vValue: number[] = [];
     const counts = new Map<string, { m: number; c: number; v: number; n: number }>();
     const perCondition = new Map<number, number>();
-    for (const item of fresh) {
+    for (const { item } of rows) {
       const rowId = rowIdOf.get(item.responseId);
       if (rowId === undefined) throw new Error(`response ${item.responseId} was not inserted`);
       for (const [measureKey, value] of item.values) {
@@ -225,16 +263,31 @@ export async function ingestLocked(
       `UPDATE conditions c SET response_count = c.response_count + u.n FROM unnest($1::bigint[], $2::bigint[]) AS u(id, n) WHERE c.id = u.id`,
       [[...perCondition.keys()], [...perCondition.values()]],
     );
-    dataVersion = await bumpDataVersion(c, experimentKey);
-    await notifyChange(c, { experimentKey, dataVersion, kind: 'responses' });
+    // 4. dataVersion: + 1 per request that stored something.
+    const r = await c.query<{ data_version: number }>(`UPDATE experiments SET data_version = data_version + $2 WHERE id = $1 RETURNING data_version`, [
+      experimentKey,
+      writing.length,
+    ]);
+    if (r.rows[0].data_version !== state.dataVersion + writing.length) {
+      throw new Error(`dataVersion of experiment ${experimentKey} moved outside its row lock`);
+    }
+    await notifyChange(c, { experimentKey, dataVersion: r.rows[0].data_version, kind: 'responses' });
   }
-  return {
-    kind: 'stored',
-    items: items.map((item, i) => ({ responseId: item.responseId, created: isNew[i] })),
-    created: fresh.length,
-    repeated: items.length - fresh.length,
-    dataVersion,
-  };
+
+  let version = state.dataVersion;
+  const outcomes = decided.map((d): IngestOutcome => {
+    if (d.outcome) return d.outcome;
+    if (d.fresh.length > 0) version++;
+    return {
+      kind: 'stored',
+      items: d.request.items.map((item, i) => ({ responseId: item.responseId, created: d.isNew[i] })),
+      created: d.fresh.length,
+      repeated: d.request.items.length - d.fresh.length,
+      dataVersion: version,
+    };
+  });
+  state.dataVersion = version;
+  return outcomes;
 }
 
 export class PostgresResponseRepository implements ResponseRepository {
@@ -293,17 +346,31 @@ export class PostgresResponseRepository implements ResponseRepository {
     this.db
       .write(async (c) => {
         const state = (await lockExperiments(c, [experimentKey])).get(experimentKey);
+        const before = state?.dataVersion;
+        // All requests in one go; if any statement fails (a bad condition key, say), redo them one savepoint each
+        // so that only the failing request is refused.
+        await c.query('SAVEPOINT whole_group');
+        try {
+          const outcomes = await ingestRequestsLocked(c, experimentKey, state, group);
+          await c.query('RELEASE SAVEPOINT whole_group');
+          return outcomes.map((outcome): Result => ({ ok: true, outcome }));
+        } catch (error) {
+          if (isUnavailable(error)) throw error;
+          await c.query('ROLLBACK TO SAVEPOINT whole_group');
+          if (state && before !== undefined) state.dataVersion = before;
+        }
         const results: Result[] = [];
         for (const one of group) {
           await c.query('SAVEPOINT one_request');
+          const kept = state?.dataVersion;
           try {
-            const outcome = await ingestLocked(c, experimentKey, state, one.items, one.receivedAt, one.apiKeyId);
+            const [outcome] = await ingestRequestsLocked(c, experimentKey, state, [one]);
             await c.query('RELEASE SAVEPOINT one_request');
-            if (state && outcome.kind === 'stored') state.dataVersion = outcome.dataVersion;
             results.push({ ok: true, outcome });
           } catch (error) {
             if (isUnavailable(error)) throw error;
             await c.query('ROLLBACK TO SAVEPOINT one_request');
+            if (state && kept !== undefined) state.dataVersion = kept;
             results.push({ ok: false, error });
           }
         }
@@ -474,7 +541,10 @@ export class PostgresResponseRepository implements ResponseRepository {
     }
     if (run && mergeable(run, view)) {
       const added = await c.query<[number]>({
-        text: `SELECT value FROM response_values WHERE response_id > $1 AND response_id <= $2 AND measure_id = $3 AND condition_id = $4 AND excluded = $5`,
+        // "+ 0" keeps the planner off response_values_scan (it would walk the whole run): only the primary-key
+        // range on response_id is usable, O(new rows).
+        text: `SELECT value FROM response_values
+          WHERE response_id > $1 AND response_id <= $2 AND measure_id + 0 = $3 AND condition_id + 0 = $4 AND excluded + 0 = $5`,
         values: [run.lastRowId, view.lastRowId, measureKey, conditionKey, excluded],
         rowMode: 'array',
       });
