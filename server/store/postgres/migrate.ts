@@ -117,6 +117,9 @@ export async function migratePostgres(
   const client = await db.pool.connect();
   let broken: Error | undefined;
   try {
+    // A migration may build an index over a large table, and another process may hold the lock while it migrates:
+    // neither is bounded by the pool's statement timeout (this session only; reset before the client goes back).
+    await client.query(`SET statement_timeout = 0`);
     await client.query(`SELECT pg_advisory_lock($1)`, [MIGRATION_LOCK]);
     try {
       await client.query(`CREATE TABLE IF NOT EXISTS schema_migrations (
@@ -142,6 +145,7 @@ export async function migratePostgres(
       return { applied: appliedNow, alreadyApplied: initial.length };
     } finally {
       await client.query(`SELECT pg_advisory_unlock($1)`, [MIGRATION_LOCK]).catch(() => undefined);
+      await client.query(`RESET statement_timeout`).catch(() => undefined);
     }
   } catch (err) {
     if (!(err instanceof PgMigrationError)) broken = err as Error;

@@ -8,8 +8,8 @@
  *
  * PostgresChangeNotifier keeps ONE dedicated connection (not from the pool) that LISTENs. When that connection
  * fails it reconnects with a growing delay (0.25 s … 10 s) and LISTENs again; notifications sent while it was
- * away are lost, so after every reconnect it tells its subscribers `{ kind: 'resync' }` ("anything may have
- * changed, read the dataVersion again").
+ * away are lost, so whenever it (re)connects after a failure it tells its subscribers `{ kind: 'resync' }`
+ * ("anything may have changed, read the dataVersion again").
  *
  * The interface (ChangeNotifier, StoreChange) names no engine: an SQLite deployment, a single process, can
  * implement it in-process with an EventEmitter fed by the repositories after their commits.
@@ -55,6 +55,7 @@ export class PostgresChangeNotifier implements ChangeNotifier {
   private delay: number;
   private timer: NodeJS.Timeout | null = null;
   private connectedOnce = false;
+  private failedBefore = false;
   private readyPromise: Promise<void>;
   private resolveReady!: () => void;
   /** Reconnections after the first connection (tests and metrics). */
@@ -102,6 +103,7 @@ export class PostgresChangeNotifier implements ChangeNotifier {
     const onFailure = (err: unknown) => {
       if (failed) return;
       failed = true;
+      this.failedBefore = true;
       this.options.onError?.(err);
       if (this.client === client) this.client = null;
       client.removeAllListeners('notification');
@@ -133,10 +135,9 @@ export class PostgresChangeNotifier implements ChangeNotifier {
     }
     this.client = client;
     this.delay = this.options.minDelayMs ?? 250;
-    if (this.connectedOnce) {
-      this.reconnects++;
-      this.emit({ kind: 'resync' });
-    }
+    if (this.connectedOnce) this.reconnects++;
+    if (this.connectedOnce || this.failedBefore) this.emit({ kind: 'resync' });
+    this.failedBefore = false;
     this.connectedOnce = true;
     this.resolveReady();
   }

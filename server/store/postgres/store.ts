@@ -38,7 +38,10 @@ export interface PostgresStore extends Store {
   beginBulkImport(experimentKey: number, receivedAt: string, apiKeyId: number | null): Promise<PgBulkImport>;
   /** `splitballot check`: every invariant recomputed (same report shape as the SQLite check). */
   check(onStage?: (stage: string) => void): Promise<PostgresCheckReport>;
-  /** A LISTEN connection announcing committed changes from every process (one per call; close it when done). */
+  /**
+   * A LISTEN connection announcing committed changes from every process (one per call; close it when done).
+   * Resolves once it listens, or after the connect timeout with the notifier still retrying.
+   */
   openNotifier(options?: NotifierOptions): Promise<ChangeNotifier>;
 }
 
@@ -87,7 +90,11 @@ export async function openPostgresStore(url: string | undefined, options: OpenPo
     async openNotifier(notifierOptions) {
       const n = new PostgresChangeNotifier(connectionString, { connectTimeoutMs: db.options.connectTimeoutMs, ...notifierOptions });
       notifiers.add(n);
-      await n.ready();
+      // Wait for the first LISTEN, but never longer than a connection attempt: when the server is away the
+      // notifier keeps retrying by itself and announces { kind: 'resync' } once it listens.
+      let timer: NodeJS.Timeout | undefined;
+      await Promise.race([n.ready(), new Promise<void>((resolve) => (timer = setTimeout(resolve, db.options.connectTimeoutMs + 1000)))]);
+      clearTimeout(timer);
       const close = n.close.bind(n);
       n.close = async () => {
         notifiers.delete(n);
