@@ -10,10 +10,12 @@
  * in JS and upserted with one `INSERT … ON CONFLICT DO UPDATE`, per-condition counters, dataVersion + 1 and a
  * pg_notify (delivered on commit). The promise settles after COMMIT returned: acknowledged means committed.
  *
- * Group commit: single-response requests to one experiment share one transaction (every request is its own
- * SAVEPOINT: its own idempotency check, conflict or error, rolled back alone): those of one event-loop turn, and
- * while a group commits, all that arrive meanwhile (see flushGroup). Groups of different experiments and batches
- * run concurrently on separate pool connections; the row locks keep per-experiment order across processes.
+ * Group commit: single-response requests to one experiment share one transaction: those of one event-loop turn,
+ * and while a group commits, all that arrive meanwhile (see flushGroup). Each request keeps its own outcome (its
+ * own idempotency check and conflict, dataVersion + 1 when it stores something); the group's rows go in with one
+ * statement per table; a failing statement makes the group retry request by request, one SAVEPOINT each. Groups
+ * of different experiments and batches run concurrently on separate pool connections; the row locks keep
+ * per-experiment order across processes.
  *
  * Reads. getCounts / getValueCounts read value_counts (O(distinct values)); sorted values come from the index
  * (measure_id, condition_id, excluded, value) in order. The snapshots run in ONE REPEATABLE READ transaction:
@@ -325,7 +327,9 @@ export class PostgresResponseRepository implements ResponseRepository {
   }
 
   /**
-   * Write one experiment's pending single responses as ONE transaction (each request a SAVEPOINT). At most one
+   * Write one experiment's pending single responses as ONE transaction: all requests together through
+   * ingestRequestsLocked (one statement per table), or, when a statement fails, one SAVEPOINT per request so that
+   * only the failing request is refused. Every promise settles after COMMIT (or its failure). At most one
    * group per experiment is in flight per process: requests arriving while it commits form the next group, which
    * starts as soon as it is done (classic group commit: the busier the experiment, the larger the groups). Other
    * experiments' groups run in parallel on other pool connections, so an experiment locked elsewhere for long (a
