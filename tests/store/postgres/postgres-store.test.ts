@@ -198,6 +198,58 @@ describe.skipIf(!available)('PostgreSQL store', () => {
     expect(store.responses.sortedCache.stats.merges).toBeGreaterThan(0);
   });
 
+  it('check names each broken invariant; readiness turns false when the recorded migrations no longer match the files', async () => {
+    const own = await createTestDatabase();
+    const s = await openPostgresStore(own.url, { pool: { poolSize: 2 } });
+    try {
+      const e = await makeExperiment(s, 'broken');
+      await s.responses.ingest(e.key, [item(e, 'k-1', 0, 10), item(e, 'k-2', 1, 20)], NOW, null);
+      expect((await s.check()).ok).toBe(true);
+      const admin = await own.admin();
+      await admin.query(`UPDATE conditions SET response_count = 5 WHERE id = $1`, [e.conditions[0].key]);
+      await admin.query(`UPDATE response_values SET excluded = 1 WHERE measure_id = $1 AND value = 20`, [e.measures[0].key]);
+      await admin.query(`UPDATE response_values SET value = 900 WHERE measure_id = $1 AND value = 10`, [e.measures[0].key]);
+      await admin.query(`UPDATE experiments SET data_version = 0 WHERE id = $1`, [e.key]);
+      const report = await s.check();
+      expect(report.ok).toBe(false);
+      expect(report.problems).toEqual([
+        'condition broken/bill-first: counters say 5 responses (0 excluded) but 1 are stored (0 excluded)',
+        '1 values disagree with their response\'s condition or excluded flag',
+        '1 values of measure fair_price are outside its limits or not whole on an integer measure',
+        'experiment broken has data_version 0 although it has responses',
+      ]);
+      expect(report.counts).toMatchObject({ experiments: 1, responses: 2, values: 2, valueCountRows: 0, conditions: 2, migrations: 4 });
+      expect(await s.readiness()).toEqual({ ready: true, migrations: 4 });
+      await admin.query(`UPDATE schema_migrations SET checksum = 'x' WHERE name = '0003_looks_assignments.sql'`);
+      const r = await s.readiness();
+      expect(r.ready).toBe(false);
+      expect(!r.ready && r.reason).toMatch(/^migration 0003_looks_assignments\.sql was edited after it was applied/);
+    } finally {
+      await s.close();
+      await own.drop();
+    }
+  });
+
+  it('a rolled-back import announces nothing and stores nothing', async () => {
+    const notifier = await store.openNotifier();
+    const seen: StoreChange[] = [];
+    notifier.subscribe((c) => seen.push(c));
+    try {
+      const e = await makeExperiment(store, 'import-rollback');
+      const writer = await store.beginBulkImport(e.key, NOW, null);
+      const out = await writer.add([item(e, 'i-1', 0, 1), item(e, 'i-2', 1, 2)]);
+      expect(out.kind === 'stored' && out.dataVersion).toBe(1);
+      await writer.rollback();
+      expect(writer.open).toBe(false);
+      await store.responses.ingest(e.key, [item(e, 'i-3', 0, 3)], NOW, null);
+      await until(() => seen.length > 0);
+      expect(seen).toEqual([{ kind: 'responses', experimentKey: e.key, dataVersion: 1 }]);
+      expect(await store.responses.getStored(e.key, 'i-1')).toBeNull();
+    } finally {
+      await notifier.close();
+    }
+  });
+
   it('group commit is per experiment: singles share transactions, and an experiment locked elsewhere holds up only its own', async () => {
     const x = await makeExperiment(store, 'group-x');
     const y = await makeExperiment(store, 'group-y');
