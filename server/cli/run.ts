@@ -5,7 +5,7 @@
  */
 import { ConfigError } from '../config.js';
 import { BackupError } from '../store/sqlite/check.js';
-import { MigrationError } from '../store/sqlite/migrate.js';
+import { MigrationError, StoreOpenError } from '../store/types.js';
 import { backupCommand, checkCommand, migrateCommand, restoreCommand } from './database.js';
 import { importCommand } from './import.js';
 import { HELP, UsageError, type CliIo } from './io.js';
@@ -43,7 +43,7 @@ export async function runCli(argv: string[], io: CliIo): Promise<number> {
     }
   } catch (err) {
     // BackupError: backup and check report it this way; restore words its own ("restore refused: …").
-    if (err instanceof ConfigError || err instanceof MigrationError || err instanceof BackupError) {
+    if (err instanceof ConfigError || err instanceof MigrationError || err instanceof StoreOpenError || err instanceof BackupError) {
       io.stderr.write(`splitballot: ${err.message}\n`);
       return 1;
     }

@@ -8,9 +8,9 @@
  * cover — check, tampering with a count, export pages, bulk import, migrations.
  */
 import { afterAll, describe, expect, it } from 'vitest';
-import type { AssignmentPlan } from '../../server/db/monitoring-types.js';
-import type { ExperimentRecord, IngestOutcome, Store, ValidResponse } from '../../server/db/types.js';
-import { contentHash } from '../../server/ingest.js';
+import type { AssignmentPlan } from '../../server/store/monitoring-types.js';
+import type { ExperimentRecord, IngestOutcome, Store, ValidResponse } from '../../server/store/types.js';
+import { contentHash } from '../../server/services/ingest/validate.js';
 import { Rng } from '../helpers/rng.js';
 
 export interface EngineMigration {

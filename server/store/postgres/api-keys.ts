@@ -2,7 +2,7 @@
  * API keys (PostgreSQL). Only SHA-256 hashes of secrets are stored. syncEnvironmentKey runs under a transaction
  * advisory lock, so two processes starting at once with the same SPLITBALLOT_ADMIN_KEY do not both insert it.
  */
-import type { ApiKeyRecord, ApiKeyRepository, NewApiKey, Scope } from '../../db/types.js';
+import type { ApiKeyRecord, ApiKeyRepository, NewApiKey, Scope } from '../types.js';
 import { toBuffer, type PostgresDatabase } from './pool.js';
 
 /** Advisory lock (two-int form) namespaces of this store. */

@@ -4,7 +4,7 @@
  * or not at all. Erasure rows hold only the count and the time; an erasure redacts the response_id of earlier
  * exclude/restore rows of the erased responses.
  */
-import type { AuditAction, AuditEntry, AuditRepository } from '../../db/types.js';
+import type { AuditAction, AuditEntry, AuditRepository } from '../types.js';
 import type { PostgresDatabase, Queryable } from './pool.js';
 
 export async function recordAudit(c: Queryable, entry: Omit<AuditEntry, 'id' | 'redacted'> & { experimentKey: number }): Promise<void> {

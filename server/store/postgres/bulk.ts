@@ -11,28 +11,18 @@
  *    (ingestLocked, as a SAVEPOINT), so an import is all or nothing and dataVersion moves by one per stored chunk,
  *    all committed together. Other writers of the same experiment wait; other experiments are not affected.
  */
-import type { IngestOutcome, ValidResponse } from '../../db/types.js';
+import type { BulkImport, BulkRepository, ExportRow, IngestOutcome, ValidResponse } from '../types.js';
 import { ingestLocked, type ExperimentLockState } from './responses.js';
 import { lockExperiments, mapError, type PostgresDatabase } from './pool.js';
 
-/** One exported response. `values` is aligned with the `measureKeys` passed in (null = not answered). */
-export interface PgExportRow {
-  responseId: string;
-  condition: string;
-  respondent: string | null;
-  submittedAt: string;
-  receivedAt: string;
-  excluded: boolean;
-  excludedReason: string | null;
-  values: (number | null)[];
-}
+/** One exported response (the port's ExportRow). */
+export type PgExportRow = ExportRow;
 
 /** An open all-or-nothing import transaction. add() each chunk, then exactly one of commit() or rollback(). */
-export interface PgBulkImport {
+export interface PgBulkImport extends BulkImport {
   add(items: ValidResponse[]): Promise<IngestOutcome>;
   commit(): Promise<void>;
   rollback(): Promise<void>;
-  readonly open: boolean;
 }
 
 export async function* exportResponsePagesPostgres(
@@ -154,5 +144,13 @@ export async function beginBulkImportPostgres(db: PostgresDatabase, experimentKe
     get open() {
       return open;
     },
+  };
+}
+
+/** The store's BulkRepository (`store.bulk`): export pages and the async import of this engine. */
+export function postgresBulk(db: PostgresDatabase): BulkRepository {
+  return {
+    exportResponsePages: (experimentKey, measureKeys, pageSize) => exportResponsePagesPostgres(db, experimentKey, measureKeys, pageSize),
+    beginImport: (experimentKey, receivedAt, apiKeyId) => beginBulkImportPostgres(db, experimentKey, receivedAt, apiKeyId),
   };
 }

@@ -13,7 +13,7 @@ import type {
   MeasureRecord,
   NewExperiment,
   UpdateExperimentResult,
-} from '../../db/types.js';
+} from '../types.js';
 import { notifyChange } from './notifier.js';
 import { lockExperiments, type PostgresDatabase, type Queryable } from './pool.js';
 

@@ -14,6 +14,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { MigrationError } from '../types.js';
 import type { PostgresDatabase, Queryable } from './pool.js';
 
 export interface PgMigration {
@@ -33,9 +34,6 @@ export interface PgMigrateResult {
   alreadyApplied: number;
 }
 
-export class PgMigrationError extends Error {
-  override name = 'MigrationError';
-}
 
 /** Advisory lock key held while migrating (an arbitrary constant of this project: "sbmigr" in ASCII). */
 export const MIGRATION_LOCK = 0x73626d69677272;
@@ -52,7 +50,7 @@ export function findPostgresMigrationsDir(start = dirname(fileURLToPath(import.m
     if (parent === dir) break;
     dir = parent;
   }
-  throw new PgMigrationError(`cannot find the migrations/postgres/ folder above ${start}; it ships beside package.json`);
+  throw new MigrationError(`cannot find the migrations/postgres/ folder above ${start}; it ships beside package.json`);
 }
 
 export function pgChecksumOf(sql: string): string {
@@ -63,26 +61,26 @@ export function loadPostgresMigrations(dir: string = findPostgresMigrationsDir()
   const names = readdirSync(dir).filter((f) => f.endsWith('.sql')).sort();
   return names.map((name) => {
     if (!MIGRATION_NAME.test(name)) {
-      throw new PgMigrationError(`migration file name ${name} in ${dir} does not look like 0002_what_it_does.sql (four digits, underscore, lowercase words)`);
+      throw new MigrationError(`migration file name ${name} in ${dir} does not look like 0002_what_it_does.sql (four digits, underscore, lowercase words)`);
     }
     const sql = readFileSync(join(dir, name), 'utf8');
     return { name, sql, checksum: pgChecksumOf(sql) };
   });
 }
 
-/** The migrations still to apply, or a PgMigrationError describing the first refusal. */
+/** The migrations still to apply, or a MigrationError describing the first refusal. */
 export function pendingPostgresMigrations(applied: PgAppliedMigration[], migrations: PgMigration[]): PgMigration[] {
   const byName = new Map(migrations.map((m) => [m.name, m]));
   for (const row of applied) {
     const file = byName.get(row.name);
     if (!file) {
-      throw new PgMigrationError(
+      throw new MigrationError(
         `migration ${row.name} was applied to this database but its file is missing from migrations/postgres/; ` +
           `restore it (applied migrations are append-only) or run the Splitballot release that created this database`,
       );
     }
     if (file.checksum !== row.checksum) {
-      throw new PgMigrationError(
+      throw new MigrationError(
         `migration ${row.name} was edited after it was applied to this database (checksum ${row.checksum.slice(0, 12)}… recorded, ` +
           `${file.checksum.slice(0, 12)}… now); revert the file and put the change in a new migration instead`,
       );
@@ -93,7 +91,7 @@ export function pendingPostgresMigrations(applied: PgAppliedMigration[], migrati
   const pending = migrations.filter((m) => !appliedNames.has(m.name));
   for (const m of pending) {
     if (lastApplied !== null && m.name < lastApplied) {
-      throw new PgMigrationError(
+      throw new MigrationError(
         `migration ${m.name} is new but sorts before ${lastApplied}, which is already applied; rename it so that it sorts after every applied migration`,
       );
     }
@@ -139,7 +137,7 @@ export async function migratePostgres(
           appliedNow.push(m.name);
         } catch (err) {
           await client.query('ROLLBACK').catch(() => undefined);
-          throw new PgMigrationError(`migration ${m.name} failed and was rolled back: ${(err as Error).message}`, { cause: err });
+          throw new MigrationError(`migration ${m.name} failed and was rolled back: ${(err as Error).message}`, { cause: err });
         }
       }
       return { applied: appliedNow, alreadyApplied: initial.length };
@@ -148,7 +146,7 @@ export async function migratePostgres(
       await client.query(`RESET statement_timeout`).catch(() => undefined);
     }
   } catch (err) {
-    if (!(err instanceof PgMigrationError)) broken = err as Error;
+    if (!(err instanceof MigrationError)) broken = err as Error;
     throw err;
   } finally {
     client.release(broken);
@@ -167,7 +165,7 @@ export async function postgresMigrationsCurrent(db: PostgresDatabase, migrations
       client.release();
     }
   } catch (err) {
-    if (err instanceof PgMigrationError) return { ok: false, reason: err.message };
+    if (err instanceof MigrationError) return { ok: false, reason: err.message };
     return { ok: false, reason: 'the database could not be read' };
   }
 }

@@ -27,7 +27,7 @@ import type {
   NewLook,
   RecordLookOutcome,
   SpendingName,
-} from '../../db/monitoring-types.js';
+} from '../monitoring-types.js';
 import { LOCK_NAMESPACE } from './api-keys.js';
 import { notifyChange } from './notifier.js';
 import { lockExperiments, type PostgresDatabase } from './pool.js';

@@ -15,24 +15,12 @@
  * implement it in-process with an EventEmitter fed by the repositories after their commits.
  */
 import pg from 'pg';
+import type { ChangeNotifier, StoreChange, StoreChangeKind } from '../types.js';
 import type { Queryable } from './pool.js';
 
+export type { ChangeNotifier, StoreChange, StoreChangeKind };
+
 export const CHANGE_CHANNEL = 'splitballot_changes';
-
-export type StoreChangeKind = 'responses' | 'exclusion' | 'erasure' | 'definition' | 'look' | 'import';
-
-export type StoreChange =
-  | { kind: StoreChangeKind; experimentKey: number; dataVersion: number }
-  /** The notifier was disconnected: changes may have been missed; every watcher should read its state again. */
-  | { kind: 'resync' };
-
-export interface ChangeNotifier {
-  /** Call `listener` for every committed change (from any process); returns the unsubscribe function. */
-  subscribe(listener: (change: StoreChange) => void): () => void;
-  /** Resolves once the notifier is listening (after the first successful LISTEN). */
-  ready(): Promise<void>;
-  close(): Promise<void>;
-}
 
 /** Queue a notification inside the caller's write transaction; delivered to every listener on COMMIT. */
 export async function notifyChange(c: Queryable, change: { experimentKey: number; dataVersion: number; kind: StoreChangeKind }): Promise<void> {

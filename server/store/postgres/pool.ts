@@ -22,6 +22,7 @@
  * below 2^53); double precision is exact (PostgreSQL 12+ sends the shortest round-trip text).
  */
 import pg from 'pg';
+import { StoreOpenError, StoreUnavailableError } from '../types.js';
 
 export const DATABASE_URL_VARIABLE = 'SPLITBALLOT_DATABASE_URL';
 
@@ -52,29 +53,7 @@ export const POOL_DEFAULTS = Object.freeze({
   applicationName: 'splitballot',
 });
 
-/** The database could not be reached or did not answer in time; the request may be retried later (HTTP 503). */
-export class StoreUnavailableError extends Error {
-  override name = 'StoreUnavailableError';
-  readonly status = 503;
-  constructor(
-    message: string,
-    readonly retryAfterSeconds: number,
-    options?: { cause?: unknown },
-  ) {
-    super(message, options);
-  }
-}
-
-/**
- * Opening the store failed: a malformed SPLITBALLOT_DATABASE_URL, an unreachable server, a refused login. The
- * message is one line naming the variable and what failed, fit to print without a stack.
- */
-export class StoreOpenError extends Error {
-  override name = 'StoreOpenError';
-  constructor(message: string, options?: { cause?: unknown }) {
-    super(message, options);
-  }
-}
+export { StoreOpenError, StoreUnavailableError };
 
 /** SQLSTATE classes and codes that mean "the database is not there right now". */
 const UNAVAILABLE_CODES = new Set(['57P01', '57P02', '57P03', '53300', '53000', '57014', '55P03', '25P03', '08000', '08001', '08003', '08004', '08006', '08007']);

@@ -27,28 +27,27 @@
  * (`lastRowId` is per experiment, never the global maximum, which a concurrent writer of another experiment
  * could overtake), and every change or deletion of stored values moves the epoch (triggers of 0004).
  */
-import type {
-  ComparisonStamp,
-  ConditionCounter,
-  ErasureOutcome,
-  ExclusionOutcome,
-  IngestOutcome,
-  MeasureSnapshot,
-  RejectedCount,
-  RejectedIncrement,
-  RejectionReason,
-  ResponseRepository,
-  StoredResponse,
-  ValidResponse,
-  WeightedValues,
-} from '../../db/types.js';
-import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../../sorted-values-cache.js';
+import {
+  MAX_DENSE_COUNTS,
+  type ComparisonStamp,
+  type ConditionCounter,
+  type ErasureOutcome,
+  type ExclusionOutcome,
+  type IngestOutcome,
+  type MeasureSnapshot,
+  type RejectedCount,
+  type RejectedIncrement,
+  type RejectionReason,
+  type ResponseRepository,
+  type StoredResponse,
+  type ValidResponse,
+  type WeightedValues,
+} from '../types.js';
+import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-runs-cache.js';
 import { recordAudit, redactAudit } from './audit.js';
 import { notifyChange } from './notifier.js';
 import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type Queryable } from './pool.js';
 
-/** Widest integer scale getCounts turns into a dense array (values min … max); the same limit as the SQLite store. */
-export const MAX_DENSE_COUNTS = 1_000_001;
 /** Most single-response requests written in one group commit. */
 export const GROUP_COMMIT_MAX = 256;
 /** A merge reads only newer rows while they are at most this share of the cached run (or INCREMENTAL_MIN_ROWS). */

@@ -6,15 +6,15 @@
  * Several service processes may share one database: every read-modify-write locks what it changes (the
  * experiment's row, or a transaction advisory lock for assignments), see pool.ts and the repositories' headers.
  */
-import type { Store } from '../../db/types.js';
+import type { ChangeNotifier, Store } from '../types.js';
 import { PostgresApiKeyRepository } from './api-keys.js';
 import { PostgresAuditRepository } from './audit.js';
-import { beginBulkImportPostgres, exportResponsePagesPostgres, type PgBulkImport, type PgExportRow } from './bulk.js';
+import { beginBulkImportPostgres, exportResponsePagesPostgres, postgresBulk, type PgBulkImport, type PgExportRow } from './bulk.js';
 import { checkPostgres, type PostgresCheckReport } from './check.js';
 import { PostgresExperimentRepository } from './experiments.js';
 import { loadPostgresMigrations, migratePostgres, postgresMigrationsCurrent, type PgMigrateResult, type PgMigration } from './migrate.js';
 import { PostgresAssignmentRepository, PostgresLookRepository } from './monitoring.js';
-import { PostgresChangeNotifier, type ChangeNotifier, type NotifierOptions } from './notifier.js';
+import { PostgresChangeNotifier, type NotifierOptions } from './notifier.js';
 import {
   createDatabase,
   DATABASE_URL_VARIABLE,
@@ -52,7 +52,7 @@ export interface OpenPostgresStoreOptions {
 
 /**
  * Open the store at `url` (the value of SPLITBALLOT_DATABASE_URL). Throws StoreOpenError with one line naming the
- * variable and what failed (bad URL, unreachable server, refused login, missing database), PgMigrationError when
+ * variable and what failed (bad URL, unreachable server, refused login, missing database), MigrationError when
  * a migration is refused. The caller owns the store and must close() it.
  */
 export async function openPostgresStore(url: string | undefined, options: OpenPostgresStoreOptions = {}): Promise<PostgresStore> {
@@ -84,6 +84,7 @@ export async function openPostgresStore(url: string | undefined, options: OpenPo
     audit: new PostgresAuditRepository(db),
     looks: new PostgresLookRepository(db),
     assignments: new PostgresAssignmentRepository(db),
+    bulk: postgresBulk(db),
     exportResponsePages: (experimentKey, measureKeys, pageSize) => exportResponsePagesPostgres(db, experimentKey, measureKeys, pageSize),
     beginBulkImport: (experimentKey, receivedAt, apiKeyId) => beginBulkImportPostgres(db, experimentKey, receivedAt, apiKeyId),
     check: (onStage) => checkPostgres(db, migrations, onStage),
@@ -143,4 +144,4 @@ function describeConnectError(err: unknown): string {
 
 /** Re-exported for callers that only need the typed errors and the default settings. */
 export { StoreOpenError, StoreUnavailableError, POOL_DEFAULTS, DATABASE_URL_VARIABLE } from './pool.js';
-export { PgMigrationError } from './migrate.js';
+export { MigrationError } from '../types.js';

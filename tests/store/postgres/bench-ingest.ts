@@ -9,9 +9,9 @@
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { openSqliteStore } from '../../../server/db/store.js';
-import type { ExperimentRecord, Store, ValidResponse } from '../../../server/db/types.js';
-import { contentHash } from '../../../server/ingest.js';
+import { openSqliteStore } from '../../../server/store/sqlite/store.js';
+import type { ExperimentRecord, Store, ValidResponse } from '../../../server/store/types.js';
+import { contentHash } from '../../../server/services/ingest/validate.js';
 import { openPostgresStore } from '../../../server/store/postgres/store.js';
 import { Rng } from '../../helpers/rng.js';
 import { createTestDatabase, postgresAvailable } from './pg-test-db.js';

@@ -3,7 +3,7 @@
  * of the test server (see pg-test-db.ts; skipped with a notice when the server is unreachable, failing with CI=true).
  */
 import { describe, it } from 'vitest';
-import type { IngestOutcome, Store } from '../../../server/db/types.js';
+import type { IngestOutcome, Store } from '../../../server/store/types.js';
 import { loadPostgresMigrations, pgChecksumOf } from '../../../server/store/postgres/migrate.js';
 import { openPostgresStore, type PostgresStore } from '../../../server/store/postgres/store.js';
 import { defineStoreConformance, type EngineHarness } from '../conformance.js';
@@ -37,12 +37,12 @@ const harness: EngineHarness = {
         );
       },
       async *exportPages(store, experimentKey, measureKeys, pageSize) {
-        for await (const page of (store as PostgresStore).exportResponsePages(experimentKey, measureKeys, pageSize)) {
+        for await (const page of store.bulk.exportResponsePages(experimentKey, measureKeys, pageSize)) {
           yield page.map((r) => ({ responseId: r.responseId, excluded: r.excluded, values: r.values }));
         }
       },
       async importChunks(store, experimentKey, chunks, receivedAt, commit) {
-        const writer = await (store as PostgresStore).beginBulkImport(experimentKey, receivedAt, null);
+        const writer = await store.bulk.beginImport(experimentKey, receivedAt, null);
         const outs: IngestOutcome[] = [];
         try {
           for (const c of chunks) outs.push(await writer.add(c));

@@ -4,8 +4,8 @@
  * response ids that the sorted-values cache relies on, and idempotency when two "nodes" send the same responses.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import type { ExperimentRecord, ValidResponse } from '../../../server/db/types.js';
-import { contentHash } from '../../../server/ingest.js';
+import type { ExperimentRecord, ValidResponse } from '../../../server/store/types.js';
+import { contentHash } from '../../../server/services/ingest/validate.js';
 import type { StoreChange } from '../../../server/store/postgres/notifier.js';
 import { createDatabase, StoreOpenError, StoreUnavailableError } from '../../../server/store/postgres/pool.js';
 import { openPostgresStore, type PostgresStore } from '../../../server/store/postgres/store.js';

@@ -4,12 +4,11 @@
 import { mkdtempSync, rmSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { checkDatabase } from '../../server/backup.js';
-import { beginBulkImport, exportResponsePages } from '../../server/db/exports.js';
-import { checksumOf, loadMigrations } from '../../server/db/migrate.js';
-import { openSqliteStore, type SqliteStore } from '../../server/db/store.js';
-import type { IngestOutcome, Store } from '../../server/db/types.js';
-import { defineStoreConformance, type EngineHarness } from './conformance.js';
+import { checkDatabase } from '../../../server/store/sqlite/check.js';
+import { checksumOf, loadMigrations } from '../../../server/store/sqlite/migrate.js';
+import { openSqliteStore, type SqliteStore } from '../../../server/store/sqlite/store.js';
+import { isPromise, type IngestOutcome, type Store } from '../../../server/store/types.js';
+import { defineStoreConformance, type EngineHarness } from '../conformance.js';
 
 const harness: EngineHarness = {
   name: 'SQLite',
@@ -38,15 +37,21 @@ const harness: EngineHarness = {
           .run(measureKey, conditionKey, value);
       },
       async *exportPages(store, experimentKey, measureKeys, pageSize) {
-        for await (const page of exportResponsePages(store, experimentKey, measureKeys, pageSize)) {
+        for await (const page of store.bulk.exportResponsePages(experimentKey, measureKeys, pageSize)) {
           yield page.map((r) => ({ responseId: r.responseId, excluded: r.excluded, values: r.values }));
         }
       },
       async importChunks(store, experimentKey, chunks, receivedAt, commit) {
-        const writer = beginBulkImport(store, experimentKey, receivedAt, null);
+        // Synchronous on SQLite (see BulkImport in store/types.ts): no await between BEGIN and COMMIT.
+        const writer = store.bulk.beginImport(experimentKey, receivedAt, null);
+        if (isPromise(writer)) throw new Error('the SQLite import must begin synchronously');
         const outs: IngestOutcome[] = [];
         try {
-          for (const c of chunks) outs.push(writer.add(c));
+          for (const c of chunks) {
+            const out = writer.add(c);
+            if (isPromise(out)) throw new Error('the SQLite import must add synchronously');
+            outs.push(out);
+          }
         } catch (err) {
           writer.rollback();
           throw err;
