@@ -11,8 +11,21 @@ import { buildApp } from '../../server/http/app.js';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
 import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
+import { openPostgresStore } from '../../server/store/postgres/store.js';
 import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
-import type { Scope } from '../../server/store/types.js';
+import type { Scope, Store } from '../../server/store/types.js';
+import { createTestDatabase, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
+
+/**
+ * The engine the service-level tests run on: SPLITBALLOT_TEST_ENGINE=postgres (the "postgres" project of
+ * vitest.config.ts) gives every test app a fresh PostgreSQL database of the test server (dropped when the app
+ * closes); anything else, the SQLite file of today. Without a reachable server the PostgreSQL run fails with
+ * CI=true and is skipped with a notice otherwise (see TEST_ENGINE_SKIPPED).
+ */
+export const TEST_ENGINE: 'sqlite' | 'postgres' = process.env.SPLITBALLOT_TEST_ENGINE === 'postgres' ? 'postgres' : 'sqlite';
+const postgresHere = TEST_ENGINE === 'postgres' ? await postgresAvailable('the service tests on PostgreSQL') : false;
+/** True when this file should not run: the PostgreSQL engine was asked for and no server is reachable (not in CI). */
+export const TEST_ENGINE_SKIPPED = TEST_ENGINE === 'postgres' && !postgresHere;
 
 export { WATER_ID, waterBillDefinition } from './water.js';
 import { waterBillDefinition } from './water.js';
@@ -69,7 +82,7 @@ export interface TestApp {
   close(): Promise<void>;
 }
 
-export async function createKey(store: SqliteStore, scope: Scope, experiment: string | null = null, label = ''): Promise<string> {
+export async function createKey(store: Store, scope: Scope, experiment: string | null = null, label = ''): Promise<string> {
   let experimentKey: number | null = null;
   if (experiment !== null) {
     const e = await store.experiments.getBySlug(experiment);
@@ -86,7 +99,16 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
   const dbPath = join(dir, 'splitballot.db');
   const config = testConfig(dbPath, options.config);
   const logs = new LogCapture();
-  let app = buildApp(config, { logStream: logs });
+  // PostgreSQL: one fresh database per test app; the app is given an opened store (it does not own it).
+  let pgDb: TestDatabase | null = null;
+  let pgStore: Store | null = null;
+  if (TEST_ENGINE === 'postgres') {
+    if (!postgresHere) throw new Error('PostgreSQL is not reachable (check TEST_ENGINE_SKIPPED before starting apps)');
+    pgDb = await createTestDatabase();
+    pgStore = await openPostgresStore(pgDb.url, { pool: { poolSize: 4 } });
+  }
+  const build = () => buildApp(config, pgStore ? { logStream: logs, store: pgStore } : { logStream: logs });
+  let app = build();
   await app.ready();
   const store = () => app.store as SqliteStore;
   const adminKey = await createKey(store(), 'admin', null, 'test admin');
@@ -114,11 +136,13 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
       app.inject({ method: 'POST', url: '/v1/experiments', headers: { authorization: `Bearer ${adminKey}` }, payload: waterBillDefinition(overrides) }),
     async restart() {
       await app.close();
-      app = buildApp(config, { logStream: logs });
+      app = build();
       await app.ready();
     },
     async close() {
       await app.close();
+      if (pgStore) await pgStore.close();
+      if (pgDb) await pgDb.drop();
       rmSync(dir, { recursive: true, force: true });
     },
   } as TestApp;

@@ -11,6 +11,10 @@
  * stops when the last listener of that experiment leaves. Streams end when the client disconnects, when the
  * experiment disappears, and when the app closes (preClose), so a graceful shutdown is not held up by them.
  *
+ * With a change notifier (PostgreSQL: LISTEN/NOTIFY, so a write taken by ANY node of the deployment) the watcher
+ * reads the dataVersion at once when a change of a watched experiment is announced, and reads every watched
+ * experiment again after a `resync` (the notifier lost its connection); the one-second poll stays as the safety net.
+ *
  * The reply is a stream sent through fastify (not hijacked), so CORS and the security headers apply as for
  * every other route. Browsers' EventSource cannot send an Authorization header: the results page reads the
  * stream with fetch() instead; any other client (curl -N, a dashboard) sends the header normally.
@@ -19,7 +23,7 @@ import { PassThrough } from 'node:stream';
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import type { Store } from '../../store/types.js';
+import type { ChangeNotifier, Store } from '../../store/types.js';
 import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
@@ -96,6 +100,16 @@ export class DataVersionWatcher {
     this.watches.delete(experimentKey);
   }
 
+  /** Read now (a change was announced); `null` = every watched experiment (after a resync). */
+  pollNow(experimentKey: number | null): void {
+    if (experimentKey === null) {
+      for (const [key, w] of this.watches) void this.poll(key, w);
+      return;
+    }
+    const w = this.watches.get(experimentKey);
+    if (w) void this.poll(experimentKey, w);
+  }
+
   private async poll(experimentKey: number, watch: Watch): Promise<void> {
     if (watch.polling) return; // the previous read has not come back yet
     watch.polling = true;
@@ -120,16 +134,18 @@ export class DataVersionWatcher {
   }
 }
 
-export async function eventRoutes(base: FastifyInstance, opts: { store: Store; timings?: EventTimings }): Promise<void> {
+export async function eventRoutes(base: FastifyInstance, opts: { store: Store; timings?: EventTimings; notifier?: ChangeNotifier }): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
   const timings = { pollMs: opts.timings?.pollMs ?? POLL_INTERVAL_MS, heartbeatMs: opts.timings?.heartbeatMs ?? HEARTBEAT_INTERVAL_MS };
   const watcher = new DataVersionWatcher(store, timings, (err) => app.log.error({ err }, 'event stream: reading the data version failed'));
   const open = new Set<PassThrough>();
   let closing = false;
+  const unlisten = opts.notifier?.subscribe((change) => watcher.pollNow(change.kind === 'resync' ? null : change.experimentKey));
 
   const endAll = async () => {
     closing = true;
+    unlisten?.();
     watcher.closeAll();
     for (const s of [...open]) s.end();
   };

@@ -143,5 +143,5 @@ function describeConnectError(err: unknown): string {
 }
 
 /** Re-exported for callers that only need the typed errors and the default settings. */
-export { StoreOpenError, StoreUnavailableError, POOL_DEFAULTS, DATABASE_URL_VARIABLE } from './pool.js';
+export { StoreOpenError, StoreUnavailableError, POOL_DEFAULTS, DATABASE_URL_VARIABLE, redactUrl } from './pool.js';
 export { MigrationError } from '../types.js';
