@@ -49,6 +49,7 @@ Commands:
   backup PATH           copy the database to PATH while the service keeps running
   restore BACKUP        replace the database by a backup (the service must be stopped)
   check                 verify the database: integrity and the stored counts
+  copy-to-postgres FILE copy an embedded database into the empty PostgreSQL database of SPLITBALLOT_DATABASE_URL
 
 Run "splitballot <command> --help" for a command's options.
 
@@ -97,11 +98,20 @@ stderr, one summary line on stdout. Exit 0 ok, 1 refused or failed.
 `,
   check: `Usage: splitballot check [--db FILE]
 
-Verify a database (default SPLITBALLOT_DB; --db to check a backup): PRAGMA integrity_check and
+Verify a database (default SPLITBALLOT_DB, or the PostgreSQL database of SPLITBALLOT_DATABASE_URL when it is set;
+--db to check a backup file): PRAGMA integrity_check and
 foreign_key_check, then the counts the service keeps at ingest against the stored values: per-value counts
 (value_counts), per-condition response and excluded counters, each value's condition, excluded flag and limits,
 and every experiment's data version. Read-only; safe while the service runs. Prints one summary line; with
 problems, one line per problem on stderr and exit code 1.
+`,
+  'copy-to-postgres': `Usage: splitballot copy-to-postgres SQLITE_FILE
+
+Copy an embedded (SQLite) database into the EMPTY PostgreSQL database named by SPLITBALLOT_DATABASE_URL: experiments,
+responses with their ids and times, values, counts, exclusions, the audit trail, API keys (as hashes), looks,
+assignments and the anytime history, in one transaction (a failure leaves PostgreSQL empty), with a progress line
+per table. Then verifies that every experiment's counts and data version match and that "splitballot check" passes
+on PostgreSQL; exit code 1 otherwise. Stop the service on the file first (or copy a backup of it).
 `,
   'keys create': `Usage: splitballot keys create --scope admin|ingest|read [--experiment ID] [--label TEXT]
 
