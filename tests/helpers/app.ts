@@ -14,7 +14,7 @@ import type { Config } from '../../server/config.js';
 import { openPostgresStore } from '../../server/store/postgres/store.js';
 import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
 import type { Scope, Store } from '../../server/store/types.js';
-import { createTestDatabase, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
+import { createTestDatabase, migratedTemplate, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
 
 /**
  * The engine the service-level tests run on: SPLITBALLOT_TEST_ENGINE=postgres (the "postgres" project of
@@ -26,6 +26,17 @@ export const TEST_ENGINE: 'sqlite' | 'postgres' = process.env.SPLITBALLOT_TEST_E
 const postgresHere = TEST_ENGINE === 'postgres' ? await postgresAvailable('the service tests on PostgreSQL') : false;
 /** True when this file should not run: the PostgreSQL engine was asked for and no server is reachable (not in CI). */
 export const TEST_ENGINE_SKIPPED = TEST_ENGINE === 'postgres' && !postgresHere;
+
+/** The migrated template every PostgreSQL test app of this file copies (made on first use, dropped after the file). */
+let template: Promise<{ name: string; drop(): Promise<void> }> | null = null;
+afterAll(async () => {
+  if (template) await (await template).drop();
+  template = null;
+});
+function postgresTemplate(): Promise<{ name: string; drop(): Promise<void> }> {
+  template ??= migratedTemplate(async (url) => (await openPostgresStore(url, { pool: { poolSize: 1 } })).close());
+  return template;
+}
 
 export { WATER_ID, waterBillDefinition } from './water.js';
 import { waterBillDefinition } from './water.js';
@@ -104,7 +115,7 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
   let pgStore: Store | null = null;
   if (TEST_ENGINE === 'postgres') {
     if (!postgresHere) throw new Error('PostgreSQL is not reachable (check TEST_ENGINE_SKIPPED before starting apps)');
-    pgDb = await createTestDatabase();
+    pgDb = await createTestDatabase({ template: (await postgresTemplate()).name });
     pgStore = await openPostgresStore(pgDb.url, { pool: { poolSize: 4 } });
   }
   const build = () => buildApp(config, pgStore ? { logStream: logs, store: pgStore } : { logStream: logs });

@@ -61,9 +61,14 @@ async function withAdmin<T>(fn: (c: pg.Client) => Promise<T>): Promise<T> {
   }
 }
 
-export async function createTestDatabase(): Promise<TestDatabase> {
+/**
+ * A fresh database. With `template` (a database made by migratedTemplate()), a copy of it: already migrated, so
+ * opening a store on it applies nothing (CREATE DATABASE … TEMPLATE copies files: ≈ 0.1 s instead of running
+ * every migration).
+ */
+export async function createTestDatabase(options: { template?: string } = {}): Promise<TestDatabase> {
   const name = `sb_test_${randomBytes(6).toString('hex')}`;
-  await withAdmin((c) => c.query(`CREATE DATABASE ${name}`));
+  await withAdmin((c) => c.query(`CREATE DATABASE ${name}${options.template ? ` TEMPLATE ${options.template}` : ''}`));
   const base = new URL(adminUrl!);
   base.pathname = `/${name}`;
   const url = base.toString();
@@ -93,4 +98,14 @@ export async function terminateConnections(db: TestDatabase, filter = ''): Promi
     );
     return r.rowCount ?? 0;
   });
+}
+
+/**
+ * One migrated database per test file to copy fresh databases from (see createTestDatabase); `migrate` opens and
+ * closes a store on it. Dropped by the returned function (call it in afterAll).
+ */
+export async function migratedTemplate(migrate: (url: string) => Promise<void>): Promise<{ name: string; drop(): Promise<void> }> {
+  const db = await createTestDatabase();
+  await migrate(db.url);
+  return { name: db.name, drop: () => db.drop() };
 }
