@@ -88,6 +88,11 @@ export interface TestApp {
   /** app.inject with the admin key unless headers.authorization is given (use null to send none). */
   request(opts: InjectOptions & { key?: string | null }): Promise<LightMyRequestResponse>;
   createWater(overrides?: Record<string, unknown>): Promise<LightMyRequestResponse>;
+  /**
+   * Rows of one read-only SQL query on whichever engine the app runs (SQLite `?` placeholders are turned into
+   * `$1…` for PostgreSQL; bigint results come back as numbers on both). For "nothing was stored" checks.
+   */
+  sql(text: string, ...params: unknown[]): Promise<Record<string, unknown>[]>;
   /** Close the app and build a new one on the same file (a restart). */
   restart(): Promise<void>;
   close(): Promise<void>;
@@ -142,6 +147,15 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
       const headers = { ...(rest.headers ?? {}) } as Record<string, string>;
       if (key !== null && headers.authorization === undefined) headers.authorization = `Bearer ${key ?? adminKey}`;
       return app.inject({ ...rest, headers });
+    },
+    async sql(text: string, ...params: unknown[]) {
+      if (!pgStore) return store().db.prepare(text).all(...params) as Record<string, unknown>[];
+      let i = 0;
+      const r = await (pgStore as unknown as { database: { query(t: string, p: unknown[]): Promise<{ rows: Record<string, unknown>[] }> } }).database.query(
+        text.replace(/\?/g, () => `$${++i}`),
+        params,
+      );
+      return r.rows.map((row) => Object.fromEntries(Object.entries(row).map(([k, v]) => [k, typeof v === 'string' && /^-?\d+$/.test(v) ? Number(v) : v])));
     },
     createWater: (overrides = {}) =>
       app.inject({ method: 'POST', url: '/v1/experiments', headers: { authorization: `Bearer ${adminKey}` }, payload: waterBillDefinition(overrides) }),
