@@ -13,6 +13,7 @@ const ON_POSTGRES = [
   'tests/http/routes/erasure.test.ts',
   'tests/http/routes/exclusions.test.ts',
   'tests/http/routes/experiments.test.ts',
+  'tests/http/routes/exports.test.ts',
   'tests/http/routes/forms.test.ts',
   'tests/http/routes/looks.test.ts',
   'tests/http/routes/planning.test.ts',
