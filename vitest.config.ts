@@ -12,6 +12,7 @@ const ON_POSTGRES = [
   'tests/http/routes/batch.test.ts',
   'tests/http/routes/erasure.test.ts',
   'tests/http/routes/exclusions.test.ts',
+  'tests/http/routes/events.test.ts',
   'tests/http/routes/experiments.test.ts',
   'tests/http/routes/exports.test.ts',
   'tests/http/routes/forms.test.ts',
