@@ -7,6 +7,7 @@ import type { IngestOutcome, Store } from '../../../server/store/types.js';
 import { loadPostgresMigrations, pgChecksumOf } from '../../../server/store/postgres/migrate.js';
 import { openPostgresStore, type PostgresStore } from '../../../server/store/postgres/store.js';
 import { defineStoreConformance, type EngineHarness } from '../conformance.js';
+import { defineWeightsConformance } from '../conformance-weights.js';
 import { createTestDatabase, postgresAvailable } from './pg-test-db.js';
 
 const available = await postgresAvailable('the PostgreSQL store conformance suite');
@@ -62,5 +63,8 @@ const harness: EngineHarness = {
   },
 };
 
-if (available) defineStoreConformance(harness);
+if (available) {
+  defineStoreConformance(harness);
+  defineWeightsConformance(harness);
+}
 else describe.skip('Store conformance: PostgreSQL (server unreachable)', () => it('skipped', () => undefined));

@@ -9,6 +9,7 @@ import { checksumOf, loadMigrations } from '../../../server/store/sqlite/migrate
 import { openSqliteStore, type SqliteStore } from '../../../server/store/sqlite/store.js';
 import { isPromise, type IngestOutcome, type Store } from '../../../server/store/types.js';
 import { defineStoreConformance, type EngineHarness } from '../conformance.js';
+import { defineWeightsConformance } from '../conformance-weights.js';
 
 const harness: EngineHarness = {
   name: 'SQLite',
@@ -69,3 +70,4 @@ const harness: EngineHarness = {
 };
 
 defineStoreConformance(harness);
+defineWeightsConformance(harness);
