@@ -19,6 +19,21 @@ const ON_POSTGRES = [
   'tests/http/routes/looks.test.ts',
   'tests/http/routes/planning.test.ts',
   'tests/reliability/access-matrix.test.ts',
+  'tests/http/form-keys.test.ts',
+  'tests/http/log-redaction.test.ts',
+  'tests/http/metrics.test.ts',
+  'tests/http/parsing.test.ts',
+  'tests/http/rate-limit.test.ts',
+  'tests/http/routes/assignments.test.ts',
+  'tests/http/routes/clean-up.test.ts',
+  'tests/http/routes/covariates.test.ts',
+  'tests/http/routes/form-client-routes.test.ts',
+  'tests/http/routes/measure-roles.test.ts',
+  'tests/http/routes/omnibus.test.ts',
+  'tests/http/routes/overview.test.ts',
+  'tests/http/routes/trajectory.test.ts',
+  'tests/http/routes/weights-comparisons.test.ts',
+  'tests/http/routes/weights-exports.test.ts',
 ];
 
 export default defineConfig({

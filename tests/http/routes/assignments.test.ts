@@ -6,7 +6,7 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import type { ExperimentRecord } from '../../../server/store/types.js';
 import { blockPlan, secureShuffle } from '../../../server/services/assignment.js';
-import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
+import { startTestApp, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 const ASSIGN = `/v1/experiments/${WATER_ID}/assignments`;
 const SUMMARY = `/v1/experiments/${WATER_ID}/assignments/summary`;
@@ -29,7 +29,7 @@ async function water(overrides: Record<string, unknown> = {}): Promise<Experimen
  * here, so the test database skips the per-commit fsync (synchronous = OFF) to keep the run short.
  */
 async function assignMany(e: ExperimentRecord, count: number): Promise<number[]> {
-  t.store.db.pragma('synchronous = OFF');
+  if (TEST_ENGINE === 'sqlite') t.store.db.pragma('synchronous = OFF');
   const plan = blockPlan(e);
   if (!plan.ok) throw new Error(plan.reason);
   const out: number[] = [];

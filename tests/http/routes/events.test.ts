@@ -174,7 +174,8 @@ describe('revoked keys and limits per key and per experiment', () => {
   });
 
   it('refuses a stream beyond the limit per key (429) and per experiment (503), logged at warn without a stack', async () => {
-    const store = openStore(t.dbPath);
+    // The test app's own store (either engine); closed by the test app, not here.
+    const store = t.store;
     const lines: string[] = [];
     const app = Fastify({ logger: { level: 'info', stream: { write: (l: string) => void lines.push(l) } } });
     app.setValidatorCompiler(zodValidatorCompiler);
@@ -235,7 +236,6 @@ describe('revoked keys and limits per key and per experiment', () => {
     } finally {
       for (const s of streams) s.close();
       await app.close();
-      await store.close();
     }
   });
 });
