@@ -62,7 +62,8 @@ function checkBalance(e: ExperimentRecord, sequence: number[], weights: number[]
   return { worst };
 }
 
-describe('balance of 10,000 assignments', () => {
+// On PostgreSQL each of the 10,000 assignments is its own committed transaction (with its fsync): allow 2 minutes.
+describe('balance of 10,000 assignments', { timeout: TEST_ENGINE === 'postgres' ? 120_000 : 30_000 }, () => {
   it('equal allocation: blocks of 4, every prefix within one block of 1:1, exact at each block end', async () => {
     const e = await water();
     const plan = blockPlan(e);
