@@ -34,6 +34,9 @@ const ON_POSTGRES = [
   'tests/http/routes/trajectory.test.ts',
   'tests/http/routes/weights-comparisons.test.ts',
   'tests/http/routes/weights-exports.test.ts',
+  'tests/http/routes/weights-ingest.test.ts',
+  'tests/http/secrets.test.ts',
+  'tests/http/security.test.ts',
 ];
 
 export default defineConfig({
