@@ -114,7 +114,7 @@ problems, one line per problem on stderr and exit code 1.
   'copy-to-postgres': `Usage: splitballot copy-to-postgres SQLITE_FILE
 
 Copy an embedded (SQLite) database into the EMPTY PostgreSQL database named by SPLITBALLOT_DATABASE_URL: experiments,
-responses with their ids and times, values, counts, exclusions, the audit trail, API keys (as hashes), looks,
+responses with their ids, times and weights, values, counts, exclusions, the audit trail, API keys (as hashes), looks,
 assignments and the anytime history, in one transaction (a failure leaves PostgreSQL empty), with a progress line
 per table. Then verifies that every experiment's counts and data version match and that "splitballot check" passes
 on PostgreSQL; exit code 1 otherwise. Stop the service on the file first (or copy a backup of it).
