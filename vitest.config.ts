@@ -2,8 +2,13 @@ import { defineConfig } from 'vitest/config';
 
 /**
  * Service-level test files that also run against PostgreSQL (project "postgres": SPLITBALLOT_TEST_ENGINE=postgres,
- * a fresh database per test app copied from a migrated template, see tests/helpers/app.ts). Files that still read
- * the SQLite file directly (store.db) are not listed yet.
+ * a fresh database per test app copied from a migrated template, see tests/helpers/app.ts): every file of tests/http
+ * and the service files that build a test app, except these (they run on SQLite only, in project "main"):
+ *  - tests/http/postgres-outage.test.ts: PostgreSQL-only by itself (a relay in front of the server), in "main".
+ *  - tests/services/ingest/validate.test.ts, csv-import.test.ts: compare whole tables through the SQLite dump helper.
+ *  - tests/services/comparisons/omnibus.test.ts, performance-paths.test.ts: open SQLite stores (worker reads, caches).
+ *  - tests/reliability/hostile.test.ts: snapshots every table through sqlite_schema.
+ *  - tests/reliability/backup-under-load, crash, shutdown: the SQLite file, its backups and the single-process lock.
  */
 const ON_POSTGRES = [
   'tests/http/auth.test.ts',
@@ -37,6 +42,13 @@ const ON_POSTGRES = [
   'tests/http/routes/weights-ingest.test.ts',
   'tests/http/secrets.test.ts',
   'tests/http/security.test.ts',
+  'tests/services/comparisons/flagged-answers.test.ts',
+  'tests/services/comparisons/flags.test.ts',
+  'tests/services/comparisons/monitoring.test.ts',
+  'tests/services/comparisons/reference.test.ts',
+  'tests/services/comparisons/service.test.ts',
+  'tests/reliability/concurrency.test.ts',
+  'tests/services/monitoring/interim.test.ts',
 ];
 
 export default defineConfig({
