@@ -6,7 +6,8 @@ import { defineConfig } from 'vitest/config';
  * and the service files that build a test app, except these (they run on SQLite only, in project "main"):
  *  - tests/http/postgres-outage.test.ts: PostgreSQL-only by itself (a relay in front of the server), in "main".
  *  - tests/services/ingest/validate.test.ts, csv-import.test.ts: compare whole tables through the SQLite dump helper.
- *  - tests/services/comparisons/omnibus.test.ts, performance-paths.test.ts: open SQLite stores (worker reads, caches).
+ *  - tests/services/comparisons/omnibus.test.ts, performance-paths.test.ts: open a SQLite store of their own (query
+ *    plans, the SQLite caches); the omnibus routes run on PostgreSQL through tests/http/routes/omnibus.test.ts.
  *  - tests/reliability/hostile.test.ts: snapshots every table through sqlite_schema.
  *  - tests/reliability/backup-under-load, crash, shutdown: the SQLite file, its backups and the single-process lock.
  */
