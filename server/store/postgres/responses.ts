@@ -469,7 +469,7 @@ export class PostgresResponseRepository implements ResponseRepository {
     return this.db.snapshot(async (c) => {
       const out: number[] = [];
       for (const t of since) {
-        out.push((await c.query<{ n: number }>(`SELECT count(*) AS n FROM responses WHERE experiment_id = $1 AND received_at >= $2`, [experimentKey, t])).rows[0].n);
+        out.push((await c.query<{ n: number }>(`SELECT count(*) AS n FROM responses WHERE experiment_id = $1 AND received_at >= $2 COLLATE "C"`, [experimentKey, t])).rows[0].n);
       }
       return out;
     });
@@ -488,7 +488,7 @@ export class PostgresResponseRepository implements ResponseRepository {
           const rows = (
             await c.query<{ response_id: string; value: number; received_at: string; excluded: number }>(
               `SELECT r.response_id, v.value, r.received_at, v.excluded FROM response_values v JOIN responses r ON r.id = v.response_id
-               WHERE v.measure_id = $1 AND v.condition_id = $2 AND v.excluded = $3 AND v.value = $4 ORDER BY r.received_at, r.id LIMIT $5`,
+               WHERE v.measure_id = $1 AND v.condition_id = $2 AND v.excluded = $3 AND v.value = $4 ORDER BY r.received_at COLLATE "C", r.id LIMIT $5`,
               [measureKey, conditionKey, excluded, value, limit - out.length],
             )
           ).rows;
@@ -834,7 +834,8 @@ export async function cleanUpLocked(c: Queryable, experimentKey: number, state: 
   const rows = (
     await c.query<ErasedRow>(
       `SELECT id, response_id, condition_id, excluded FROM responses
-       WHERE experiment_id = $1 AND ($2::text IS NULL OR received_at >= $2) AND ($3::text IS NULL OR received_at <= $3) AND ($4::bigint IS NULL OR api_key_id = $4)
+       WHERE experiment_id = $1 AND ($2::text IS NULL OR received_at >= $2 COLLATE "C") AND ($3::text IS NULL OR received_at <= $3 COLLATE "C")
+         AND ($4::bigint IS NULL OR api_key_id = $4)
        ORDER BY id`,
       [experimentKey, f.receivedFrom, f.receivedTo, f.apiKeyId],
     )
