@@ -1,13 +1,69 @@
 import { defineConfig } from 'vitest/config';
 
+/**
+ * Service-level test files that also run against PostgreSQL (project "postgres": SPLITBALLOT_TEST_ENGINE=postgres,
+ * a fresh database per test app copied from a migrated template, see tests/helpers/app.ts): every file of tests/http
+ * and the service files that build a test app, except these (they run on SQLite only, in project "main"):
+ *  - tests/http/postgres-outage.test.ts: PostgreSQL-only by itself (a relay in front of the server), in "main".
+ *  - tests/services/ingest/validate.test.ts, csv-import.test.ts: compare whole tables through the SQLite dump helper.
+ *  - tests/services/comparisons/omnibus.test.ts, performance-paths.test.ts: open a SQLite store of their own (query
+ *    plans, the SQLite caches); the omnibus routes run on PostgreSQL through tests/http/routes/omnibus.test.ts.
+ *  - tests/reliability/hostile.test.ts: snapshots every table through sqlite_schema.
+ *  - tests/reliability/backup-under-load, crash, shutdown: the SQLite file, its backups and the single-process lock.
+ */
+const ON_POSTGRES = [
+  'tests/http/auth.test.ts',
+  'tests/http/app.test.ts',
+  'tests/http/problem-handler.test.ts',
+  'tests/http/routes/batch.test.ts',
+  'tests/http/routes/erasure.test.ts',
+  'tests/http/routes/exclusions.test.ts',
+  'tests/http/routes/events.test.ts',
+  'tests/http/routes/experiments.test.ts',
+  'tests/http/routes/exports.test.ts',
+  'tests/http/routes/forms.test.ts',
+  'tests/http/routes/looks.test.ts',
+  'tests/http/routes/planning.test.ts',
+  'tests/reliability/access-matrix.test.ts',
+  'tests/http/form-keys.test.ts',
+  'tests/http/log-redaction.test.ts',
+  'tests/http/metrics.test.ts',
+  'tests/http/parsing.test.ts',
+  'tests/http/rate-limit.test.ts',
+  'tests/http/routes/assignments.test.ts',
+  'tests/http/routes/clean-up.test.ts',
+  'tests/http/routes/covariates.test.ts',
+  'tests/http/routes/form-client-routes.test.ts',
+  'tests/http/routes/measure-roles.test.ts',
+  'tests/http/routes/omnibus.test.ts',
+  'tests/http/routes/overview.test.ts',
+  'tests/http/routes/trajectory.test.ts',
+  'tests/http/routes/weights-comparisons.test.ts',
+  'tests/http/routes/weights-exports.test.ts',
+  'tests/http/routes/weights-ingest.test.ts',
+  'tests/http/secrets.test.ts',
+  'tests/http/security.test.ts',
+  'tests/services/comparisons/flagged-answers.test.ts',
+  'tests/services/comparisons/flags.test.ts',
+  'tests/services/comparisons/monitoring.test.ts',
+  'tests/services/comparisons/reference.test.ts',
+  'tests/services/comparisons/service.test.ts',
+  'tests/reliability/concurrency.test.ts',
+  'tests/services/monitoring/interim.test.ts',
+];
+
 export default defineConfig({
   test: {
-    include: ['tests/**/*.test.ts'],
     exclude: ['node_modules/**', 'dist/**', 'tests/bench/**'],
     testTimeout: 30_000,
     hookTimeout: 60_000,
     pool: 'forks',
     setupFiles: ['tests/setup.ts'],
     reporters: ['default'],
+    projects: [
+      // Every test file as before (the engine-specific ones choose their engine themselves).
+      { extends: true, test: { name: 'main', include: ['tests/**/*.test.ts'] } },
+      { extends: true, test: { name: 'postgres', include: ON_POSTGRES, env: { SPLITBALLOT_TEST_ENGINE: 'postgres' } } },
+    ],
   },
 });

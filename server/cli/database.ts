@@ -5,7 +5,7 @@ import { parseArgs } from 'node:util';
 import { loadConfig } from '../config.js';
 import { backupFile, restoreDatabase, type BackupProgress } from '../store/sqlite/backup.js';
 import { BackupError, checkFile, checkSummary } from '../store/sqlite/check.js';
-import { HELP, openStore, UsageError, type CliIo } from './io.js';
+import { HELP, openConfigured, UsageError, type CliIo } from './io.js';
 
 export async function migrateCommand(args: string[], io: CliIo): Promise<number> {
   const { values } = parseArgs({ args, options: { help: { type: 'boolean', short: 'h' } }, strict: true });
@@ -14,13 +14,13 @@ export async function migrateCommand(args: string[], io: CliIo): Promise<number>
     return 0;
   }
   const config = loadConfig(io.env);
-  const store = openStore(config, io);
+  const { store, where } = await openConfigured(config, io);
   try {
     const { applied, alreadyApplied } = store.migration;
     io.stdout.write(
       applied.length > 0
-        ? `Applied ${applied.length} migration${applied.length === 1 ? '' : 's'} to ${config.dbPath}: ${applied.join(', ')}\n`
-        : `${config.dbPath} is up to date (${alreadyApplied} migration${alreadyApplied === 1 ? '' : 's'} applied earlier).\n`,
+        ? `Applied ${applied.length} migration${applied.length === 1 ? '' : 's'} to ${where}: ${applied.join(', ')}\n`
+        : `${where} is up to date (${alreadyApplied} migration${alreadyApplied === 1 ? '' : 's'} applied earlier).\n`,
     );
     return 0;
   } finally {
@@ -48,6 +48,7 @@ export async function backupCommand(args: string[], io: CliIo): Promise<number> 
   }
   if (positionals.length !== 1) throw new UsageError('backup needs one PATH (the file to write; it must not exist)');
   const config = loadConfig(io.env);
+  if (config.databaseUrl !== undefined) return refusePostgres(io, 'backup');
   const destination = resolve(positionals[0]);
   if (existsSync(destination)) {
     io.stderr.write(`splitballot: ${destination} already exists; choose a new file name\n`);
@@ -80,6 +81,7 @@ export async function restoreCommand(args: string[], io: CliIo): Promise<number>
   }
   if (positionals.length !== 1) throw new UsageError('restore needs one BACKUP file');
   const config = loadConfig(io.env);
+  if (config.databaseUrl !== undefined) return refusePostgres(io, 'restore');
   try {
     const r = await restoreDatabase(positionals[0], config.dbPath, {
       onStage: (stage) => io.stderr.write(`restore: ${stage}\n`),
@@ -106,9 +108,32 @@ export async function checkCommand(args: string[], io: CliIo): Promise<number> {
     io.stdout.write(HELP.check);
     return 0;
   }
-  const path = values.db ?? loadConfig(io.env).dbPath;
+  const config = loadConfig(io.env);
+  if (values.db === undefined && config.databaseUrl !== undefined) {
+    // PostgreSQL: every invariant recomputed in one read-only snapshot (store/postgres/check.ts).
+    const { store, where } = await openConfigured(config);
+    try {
+      if (!('check' in store)) throw new Error('unreachable: a PostgreSQL store has check()');
+      const report = await store.check((stage) => io.stderr.write(`check: ${stage}\n`));
+      for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
+      io.stdout.write(`${checkSummary(report, where)}\n`);
+      return report.ok ? 0 : 1;
+    } finally {
+      await store.close();
+    }
+  }
+  const path = values.db ?? config.dbPath;
   const report = checkFile(path, (stage) => io.stderr.write(`check: ${stage}\n`));
   for (const p of [...report.integrity, ...report.problems]) io.stderr.write(`  ${p}\n`);
   io.stdout.write(`${checkSummary(report, path)}\n`);
   return report.ok ? 0 : 1;
+}
+
+/** backup and restore are SQLite file operations; PostgreSQL has its own tools (docs/operating.md). */
+function refusePostgres(io: CliIo, command: 'backup' | 'restore'): number {
+  io.stderr.write(
+    `splitballot: ${command} works on the SQLite file (SPLITBALLOT_DB); SPLITBALLOT_DATABASE_URL is set, so use PostgreSQL's own tools ` +
+      `(${command === 'backup' ? 'pg_dump --format=custom' : 'pg_restore --clean --if-exists'}), then run "splitballot check" (see docs/operating.md)\n`,
+  );
+  return 1;
 }

@@ -8,11 +8,10 @@
 import { closeSync, existsSync, openSync, writeSync } from 'node:fs';
 import { parseArgs } from 'node:util';
 import { stringify } from 'csv-stringify/sync';
-import { describeDatabase, type CliIo } from './io.js';
+import { describeDatabase, openStore, type CliIo } from './io.js';
 import { loadConfig } from '../config.js';
 import { importCsvFile } from '../services/ingest/csv-import.js';
 import { describeProblem, type ImportProblem } from '../services/ingest/csv-rows.js';
-import { openSqliteStore } from '../store/sqlite/store.js';
 
 export const IMPORT_HELP = `Usage: splitballot import --experiment ID FILE.csv [--skip-invalid] [--rejects FILE]
 
@@ -73,8 +72,11 @@ export async function importCommand(argv: string[], io: CliIo): Promise<number> 
   const rejectsPath = values.rejects ?? (skipInvalid ? `${file}.rejects.csv` : null);
 
   const config = loadConfig(io.env);
-  io.stderr.write(`splitballot import: database ${describeDatabase(config, io.env)}\n`);
-  const store = openSqliteStore(config.dbPath);
+  // Which database is used, on stderr (PostgreSQL: once connected, so a refused connection stays one line).
+  const sayDatabase = () => io.stderr.write(`splitballot import: database ${describeDatabase(config, io.env)}\n`);
+  if (config.databaseUrl === undefined) sayDatabase();
+  const store = await openStore(config);
+  if (config.databaseUrl !== undefined) sayDatabase();
   let rejectsFd: number | null = null;
   const started = Date.now();
   try {

@@ -27,7 +27,7 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
       throw new UsageError(`--scope must be one of ${SCOPES.join(', ')}`);
     }
     const config = loadConfig(io.env);
-    const store = openStore(config, io);
+    const store = await openStore(config, io);
     try {
       let experimentKey: number | null = null;
       if (values.experiment !== undefined) {
@@ -66,7 +66,7 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
       io.stdout.write(HELP['keys list']);
       return 0;
     }
-    const store = openStore(loadConfig(io.env), io);
+    const store = await openStore(loadConfig(io.env), io);
     try {
       const keys = await store.apiKeys.list();
       if (values.json) {
@@ -92,7 +92,7 @@ export async function keysCommand(args: string[], io: CliIo): Promise<number> {
     }
     if (positionals.length !== 1 || !/^\d+$/.test(positionals[0])) throw new UsageError('keys revoke needs one key id (a number; see "keys list")');
     const id = Number(positionals[0]);
-    const store = openStore(loadConfig(io.env), io);
+    const store = await openStore(loadConfig(io.env), io);
     try {
       const r = await store.apiKeys.revoke(id, new Date().toISOString());
       if (r === 'not-found') {

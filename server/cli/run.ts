@@ -1,11 +1,12 @@
 /**
- * The `splitballot` command line: serve, migrate, keys create/list/revoke, import, backup, restore, check, each
+ * The `splitballot` command line: serve, migrate, keys create/list/revoke, import, backup, restore, check, copy-to-postgres, each
  * with --help. runCli() returns the exit code (0 ok, 1 failure, 2 usage error); server/main.ts is the executable
  * wrapper. Long operations (backup, restore, check) write progress to stderr and one summary line to stdout.
  */
 import { ConfigError } from '../config.js';
 import { BackupError } from '../store/sqlite/check.js';
-import { MigrationError } from '../store/sqlite/migrate.js';
+import { MigrationError, StoreOpenError } from '../store/types.js';
+import { copyToPostgresCommand } from './copy.js';
 import { backupCommand, checkCommand, migrateCommand, restoreCommand } from './database.js';
 import { importCommand } from './import.js';
 import { HELP, UsageError, type CliIo } from './io.js';
@@ -38,12 +39,14 @@ export async function runCli(argv: string[], io: CliIo): Promise<number> {
         return await restoreCommand(rest, io);
       case 'check':
         return await checkCommand(rest, io);
+      case 'copy-to-postgres':
+        return await copyToPostgresCommand(rest, io);
       default:
         throw new UsageError(`unknown command "${command}"`);
     }
   } catch (err) {
     // BackupError: backup and check report it this way; restore words its own ("restore refused: …").
-    if (err instanceof ConfigError || err instanceof MigrationError || err instanceof BackupError) {
+    if (err instanceof ConfigError || err instanceof MigrationError || err instanceof StoreOpenError || err instanceof BackupError) {
       io.stderr.write(`splitballot: ${err.message}\n`);
       return 1;
     }

@@ -1,12 +1,16 @@
-/** splitballot serve: take the server lock, open and migrate the database, make the first admin key, listen, and shut down gracefully on SIGTERM/SIGINT. */
+/**
+ * splitballot serve: open and migrate the database (SQLite: after taking the single-process server lock;
+ * PostgreSQL: any number of nodes may serve one database, and each opens a LISTEN connection for live updates),
+ * make the first admin key, listen, and shut down gracefully on SIGTERM/SIGINT.
+ */
 import { parseArgs } from 'node:util';
 import { buildApp } from '../http/app.js';
 import { warmUp } from '../services/comparisons/service.js';
 import { ensureAdminKey } from '../services/keys.js';
 import { loadConfig } from '../config.js';
 import { acquireServerLock, lockPathOf } from '../store/sqlite/lock.js';
-import type { SqliteStore } from '../store/sqlite/store.js';
-import { describeDatabase, HELP, openStore, SHUTDOWN_GRACE_MS, type CliIo } from './io.js';
+import type { ChangeNotifier } from '../store/types.js';
+import { describeDatabase, HELP, openConfigured, SHUTDOWN_GRACE_MS, type CliIo, type OpenedStore } from './io.js';
 
 function defaultShutdownSignal(): Promise<string> {
   return new Promise((resolve) => {
@@ -23,17 +27,23 @@ export async function serveCommand(args: string[], io: CliIo): Promise<number> {
     return 0;
   }
   const config = loadConfig(io.env);
-  const lock = acquireServerLock(config.dbPath);
+  // The single-process file lock is the SQLite store's concern; on PostgreSQL any number of nodes may serve.
+  const lock = config.databaseUrl === undefined ? acquireServerLock(config.dbPath) : { release: () => undefined };
   if (lock === null) {
     io.stderr.write(`splitballot: another splitballot process (serve or restore) is using ${config.dbPath} (it holds ${lockPathOf(config.dbPath)})\n`);
     return 1;
   }
-  let store: SqliteStore;
+  let opened: OpenedStore;
   try {
-    store = openStore(config);
+    opened = await openConfigured(config);
   } catch (err) {
     lock.release();
     throw err;
+  }
+  const store = opened.store;
+  let notifier: ChangeNotifier | undefined;
+  if (opened.engine === 'postgres') {
+    notifier = await opened.store.openNotifier({ onError: (err) => io.stderr.write(`splitballot: live-update connection: ${(err as Error).message}\n`) });
   }
   let secret: string | null;
   try {
@@ -43,14 +53,15 @@ export async function serveCommand(args: string[], io: CliIo): Promise<number> {
     lock.release();
     throw err;
   }
-  const app = buildApp(config, { store, processMetrics: true });
-  // Which file this server uses, in its log (stdout): a `keys create` must be run with the same SPLITBALLOT_DB.
+  const app = buildApp(config, { store, processMetrics: true, notifier });
+  // Which database this server uses, in its log (stdout): a `keys create` must be run with the same SPLITBALLOT_DB
+  // (or SPLITBALLOT_DATABASE_URL).
   app.log.info({ database: describeDatabase(config, io.env) }, 'database opened');
   try {
     await app.listen({ port: config.port, host: config.host });
   } catch (err) {
     await app.close().catch(() => undefined);
-    await store.close();
+    await store.close(); // closes the notifier too
     lock.release();
     io.stderr.write(`splitballot: cannot listen on ${config.host}:${config.port}: ${(err as Error).message}\n`);
     return 1;

@@ -27,8 +27,9 @@ import { backupDirOf, REQUEST_TIMEOUT_DEFAULT_MS, type Config } from '../config.
 import { SINGLE_BODY_LIMIT } from '../schemas/responses.js';
 import { ComparisonService, DEFAULT_CACHE_LIMITS } from '../services/comparisons/service.js';
 import { backupDatabase } from '../store/sqlite/backup.js';
+import type { PostgresStore } from '../store/postgres/store.js';
 import { openSqliteStore, type SqliteStore } from '../store/sqlite/store.js';
-import type { Store } from '../store/types.js';
+import type { ChangeNotifier, Store } from '../store/types.js';
 import { registerAuth, type RouteAccess } from './auth.js';
 import { registerCors } from './cors.js';
 import { registerJsonParser } from './json-body.js';
@@ -69,6 +70,8 @@ export interface AppDeps {
   logStream?: { write(line: string): void };
   /** Also export process_* and nodejs_* metrics (serve turns this on; off by default so tests stay light). */
   processMetrics?: boolean;
+  /** Committed changes from every process (PostgreSQL LISTEN/NOTIFY): live updates go out at once instead of at the next poll. */
+  notifier?: ChangeNotifier;
 }
 
 /** One registered route, as the access-matrix test and the docs read them (app.routeTable). */
@@ -196,7 +199,7 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
   app.register(lookRoutes, { store, comparisons });
   app.register(planningRoutes, { store });
   app.register(assignmentRoutes, { store });
-  app.register(eventRoutes, { store });
+  app.register(eventRoutes, { store, notifier: deps.notifier });
   app.register(exportRoutes, { store, comparisons });
   app.register(importRoutes, { store });
   app.register(resultsPageRoutes, { store });
@@ -208,6 +211,9 @@ export function buildApp(config: Config, deps: AppDeps = {}): FastifyInstance {
     backupDir: backupDirOf(config),
     metrics,
     backup: (baseStore as Partial<SqliteStore>).db ? (destination: string) => backupDatabase((baseStore as SqliteStore).db, destination) : undefined,
+    backupRefusal: (baseStore as Partial<PostgresStore>).openNotifier
+      ? 'This service runs on PostgreSQL (SPLITBALLOT_DATABASE_URL): back it up with pg_dump and restore with pg_restore, then run `splitballot check` (docs/operating.md); the service takes no backups of it itself.'
+      : undefined,
   });
   app.register(metricsRoutes, { metrics, store, metricsTokenHash: config.metricsTokenHash ?? null });
 

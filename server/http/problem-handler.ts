@@ -11,6 +11,7 @@ import type { FastifyError, FastifyInstance, FastifyReply, FastifyRequest } from
 import { API_CSP } from './security-headers.js';
 import type { Problem } from '../schemas/common.js';
 import { PROBLEM_TYPES, ProblemError, problemType, RequestValidationError, type ProblemName } from '../errors.js';
+import { StoreUnavailableError } from '../store/types.js';
 import { errorPage, HTML_CSP, type RespondentLabels } from '../views/html.js';
 import { isFormContentType, prefersHtml } from './negotiate.js';
 
@@ -34,6 +35,19 @@ const DETAILS: Partial<Record<ProblemName, string>> = {
 
 export function toProblem(err: unknown, requestId: string): { problem: Problem; headers: Record<string, string>; serverError: boolean } {
   if (err instanceof ProblemError) return { problem: err.toProblem(), headers: err.headers ?? {}, serverError: err.status >= 500 };
+  if (err instanceof StoreUnavailableError) {
+    // The database is away (outage, restart, pool exhausted past its timeout): retry later, never a stack.
+    return {
+      problem: {
+        type: problemType('unavailable'),
+        title: PROBLEM_TYPES.unavailable.title,
+        status: 503,
+        detail: `The database cannot be reached right now; retry in ${err.retryAfterSeconds} s.`,
+      },
+      headers: { 'retry-after': String(err.retryAfterSeconds) },
+      serverError: false,
+    };
+  }
   if (err instanceof RequestValidationError) {
     const name: ProblemName = err.part === 'body' ? 'validation-failed' : 'invalid-parameters';
     const detail =

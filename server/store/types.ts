@@ -515,17 +515,34 @@ export interface ExportRow {
   values: (number | null)[];
 }
 
-/** An open all-or-nothing import transaction. Call add() for each chunk, then exactly one of commit() or rollback(). */
+/** A value, or a promise of it: what an engine that answers synchronously inside may return without wrapping. */
+export type MaybePromise<T> = T | Promise<T>;
+
+/**
+ * An open all-or-nothing import transaction. Call add() for each chunk, then exactly one of commit() or rollback().
+ *
+ * Sync or async, on purpose. An engine whose import transaction lives on a connection shared with every other
+ * request (SQLite: one connection per process) answers add/commit/rollback — and beginImport — synchronously, with
+ * plain values; an engine whose import owns a connection of its own (PostgreSQL: a dedicated pooled client)
+ * answers with promises. The caller (services/ingest/csv-import.ts) awaits ONLY what is a promise
+ * (`isPromise`): with SQLite the HTTP import's pass 2 then runs from BEGIN to COMMIT without a single await, so
+ * no other request's statement can run inside its open transaction (awaiting even a resolved value would let
+ * queued continuations of other requests run first); with PostgreSQL it awaits each chunk, and the event loop
+ * keeps serving while the import's own connection works. Making every method a promise would lose that SQLite
+ * guarantee; making every method synchronous would be impossible for a network database.
+ */
 export interface BulkImport {
-  /**
-   * Store one chunk with the same bookkeeping as ResponseRepository.ingest, inside the open transaction.
-   * Synchronous: the HTTP import calls it for every chunk without awaiting in between, so no other request's
-   * statement runs inside the import's transaction on a shared connection.
-   */
-  add(items: ValidResponse[]): IngestOutcome;
-  commit(): void;
-  rollback(): void;
+  /** Store one chunk with the same bookkeeping as ResponseRepository.ingest, inside the open transaction. */
+  add(items: ValidResponse[]): MaybePromise<IngestOutcome>;
+  commit(): MaybePromise<void>;
+  /** Roll back unless already committed or rolled back (safe to call in a finally). */
+  rollback(): MaybePromise<void>;
   readonly open: boolean;
+}
+
+/** Is this a promise (or any thenable) that must be awaited, rather than a value already there? */
+export function isPromise<T>(value: MaybePromise<T>): value is Promise<T> {
+  return typeof (value as { then?: unknown } | null)?.then === 'function';
 }
 
 /** Bulk reads and writes for the CSV export and import. */
@@ -535,8 +552,8 @@ export interface BulkRepository {
    * `pageSize` rows; each page is read on its own, so a slow client holds nothing between pages.
    */
   exportResponsePages(experimentKey: number, measureKeys: number[], pageSize: number): AsyncGenerator<ExportRow[]>;
-  /** Begin one write transaction for a bulk import (the write lock is taken at once). */
-  beginImport(experimentKey: number, receivedAt: string, apiKeyId: number | null): BulkImport;
+  /** Begin one write transaction for a bulk import (the write lock is taken at once); see BulkImport for sync vs async. */
+  beginImport(experimentKey: number, receivedAt: string, apiKeyId: number | null): MaybePromise<BulkImport>;
 }
 
 /** What an online backup of the database wrote. */
@@ -564,5 +581,60 @@ export interface Store {
   bulk: BulkRepository;
   /** Database reachable and every known migration applied with its recorded checksum. */
   readiness(): Promise<{ ready: true; migrations: number } | { ready: false; reason: string }>;
+  close(): Promise<void>;
+}
+
+// ---------------------------------------------------------------------------------------------------------
+// Errors every engine throws, and change notification (one vocabulary for the CLI, the HTTP layer and both engines)
+// ---------------------------------------------------------------------------------------------------------
+
+/**
+ * The database could not be reached or did not answer in time; the request may be retried later. The HTTP layer
+ * answers 503 problem+json with `Retry-After: retryAfterSeconds`.
+ */
+export class StoreUnavailableError extends Error {
+  override name = 'StoreUnavailableError';
+  readonly status = 503;
+  constructor(
+    message: string,
+    readonly retryAfterSeconds: number,
+    options?: { cause?: unknown },
+  ) {
+    super(message, options);
+  }
+}
+
+/**
+ * Opening the store failed: a malformed database URL, an unreachable server, a refused login, a database file that
+ * cannot be opened. The message is one line naming the setting and what failed, fit to print without a stack.
+ */
+export class StoreOpenError extends Error {
+  override name = 'StoreOpenError';
+  constructor(message: string, options?: { cause?: unknown }) {
+    super(message, options);
+  }
+}
+
+/** A migration was refused (edited, missing, unknown, or failed and rolled back); the same class for every engine. */
+export class MigrationError extends Error {
+  override name = 'MigrationError';
+}
+
+export type StoreChangeKind = 'responses' | 'exclusion' | 'erasure' | 'definition' | 'look' | 'import';
+
+export type StoreChange =
+  | { kind: StoreChangeKind; experimentKey: number; dataVersion: number }
+  /** The notifier was disconnected: changes may have been missed; every watcher should read its state again. */
+  | { kind: 'resync' };
+
+/**
+ * Committed changes announced to whoever watches (the Server-Sent Events of http/routes/events.ts). PostgreSQL
+ * implements it with LISTEN/NOTIFY (changes from every node); a single-process engine may implement it in-process.
+ */
+export interface ChangeNotifier {
+  /** Call `listener` for every committed change (from any process); returns the unsubscribe function. */
+  subscribe(listener: (change: StoreChange) => void): () => void;
+  /** Resolves once the notifier is listening (after the first successful LISTEN). */
+  ready(): Promise<void>;
   close(): Promise<void>;
 }

@@ -11,8 +11,34 @@ import { buildApp } from '../../server/http/app.js';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
 import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
+import { openPostgresStore } from '../../server/store/postgres/store.js';
 import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
-import type { Scope } from '../../server/store/types.js';
+import type { Scope, Store } from '../../server/store/types.js';
+import { createTestDatabase, migratedTemplate, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
+
+/**
+ * The engine the service-level tests run on: SPLITBALLOT_TEST_ENGINE=postgres (the "postgres" project of
+ * vitest.config.ts) gives every test app a fresh PostgreSQL database of the test server (dropped when the app
+ * closes); anything else, the SQLite file of today. Without a reachable server the PostgreSQL run fails with
+ * CI=true and is skipped with a notice otherwise (see TEST_ENGINE_SKIPPED).
+ */
+export const TEST_ENGINE: 'sqlite' | 'postgres' = process.env.SPLITBALLOT_TEST_ENGINE === 'postgres' ? 'postgres' : 'sqlite';
+const postgresHere = TEST_ENGINE === 'postgres' ? await postgresAvailable('the service tests on PostgreSQL') : false;
+/** True when this file should not run: the PostgreSQL engine was asked for and no server is reachable (not in CI). */
+export const TEST_ENGINE_SKIPPED = TEST_ENGINE === 'postgres' && !postgresHere;
+// Then every test of the file is skipped (postgresAvailable printed the notice; with CI=true it threw instead).
+if (TEST_ENGINE_SKIPPED) beforeEach((ctx) => ctx.skip());
+
+/** The migrated template every PostgreSQL test app of this file copies (made on first use, dropped after the file). */
+let template: Promise<{ name: string; drop(): Promise<void> }> | null = null;
+afterAll(async () => {
+  if (template) await (await template).drop();
+  template = null;
+});
+function postgresTemplate(): Promise<{ name: string; drop(): Promise<void> }> {
+  template ??= migratedTemplate(async (url) => (await openPostgresStore(url, { pool: { poolSize: 1 } })).close());
+  return template;
+}
 
 export { WATER_ID, waterBillDefinition } from './water.js';
 import { waterBillDefinition } from './water.js';
@@ -64,12 +90,17 @@ export interface TestApp {
   /** app.inject with the admin key unless headers.authorization is given (use null to send none). */
   request(opts: InjectOptions & { key?: string | null }): Promise<LightMyRequestResponse>;
   createWater(overrides?: Record<string, unknown>): Promise<LightMyRequestResponse>;
+  /**
+   * Rows of one read-only SQL query on whichever engine the app runs (SQLite `?` placeholders are turned into
+   * `$1…` for PostgreSQL; bigint results come back as numbers on both). For "nothing was stored" checks.
+   */
+  sql(text: string, ...params: unknown[]): Promise<Record<string, unknown>[]>;
   /** Close the app and build a new one on the same file (a restart). */
   restart(): Promise<void>;
   close(): Promise<void>;
 }
 
-export async function createKey(store: SqliteStore, scope: Scope, experiment: string | null = null, label = ''): Promise<string> {
+export async function createKey(store: Store, scope: Scope, experiment: string | null = null, label = ''): Promise<string> {
   let experimentKey: number | null = null;
   if (experiment !== null) {
     const e = await store.experiments.getBySlug(experiment);
@@ -86,7 +117,16 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
   const dbPath = join(dir, 'splitballot.db');
   const config = testConfig(dbPath, options.config);
   const logs = new LogCapture();
-  let app = buildApp(config, { logStream: logs });
+  // PostgreSQL: one fresh database per test app; the app is given an opened store (it does not own it).
+  let pgDb: TestDatabase | null = null;
+  let pgStore: Store | null = null;
+  if (TEST_ENGINE === 'postgres') {
+    if (!postgresHere) throw new Error('PostgreSQL is not reachable (check TEST_ENGINE_SKIPPED before starting apps)');
+    pgDb = await createTestDatabase({ template: (await postgresTemplate()).name });
+    pgStore = await openPostgresStore(pgDb.url, { pool: { poolSize: 4 } });
+  }
+  const build = () => buildApp(config, pgStore ? { logStream: logs, store: pgStore } : { logStream: logs });
+  let app = build();
   await app.ready();
   const store = () => app.store as SqliteStore;
   const adminKey = await createKey(store(), 'admin', null, 'test admin');
@@ -110,15 +150,26 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
       if (key !== null && headers.authorization === undefined) headers.authorization = `Bearer ${key ?? adminKey}`;
       return app.inject({ ...rest, headers });
     },
+    async sql(text: string, ...params: unknown[]) {
+      if (!pgStore) return store().db.prepare(text).all(...params) as Record<string, unknown>[];
+      let i = 0;
+      const r = await (pgStore as unknown as { database: { query(t: string, p: unknown[]): Promise<{ rows: Record<string, unknown>[] }> } }).database.query(
+        text.replace(/\?/g, () => `$${++i}`),
+        params,
+      );
+      return r.rows.map((row) => Object.fromEntries(Object.entries(row).map(([k, v]) => [k, typeof v === 'string' && /^-?\d+$/.test(v) ? Number(v) : v])));
+    },
     createWater: (overrides = {}) =>
       app.inject({ method: 'POST', url: '/v1/experiments', headers: { authorization: `Bearer ${adminKey}` }, payload: waterBillDefinition(overrides) }),
     async restart() {
       await app.close();
-      app = buildApp(config, { logStream: logs });
+      app = build();
       await app.ready();
     },
     async close() {
       await app.close();
+      if (pgStore) await pgStore.close();
+      if (pgDb) await pgDb.drop();
       rmSync(dir, { recursive: true, force: true });
     },
   } as TestApp;

@@ -6,7 +6,7 @@
 import SwaggerParser from '@apidevtools/swagger-parser';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
-import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { startTestApp, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
 const token = generateSecret();
@@ -132,7 +132,9 @@ describe('content', () => {
     expect(sample(after, 'splitballot_comparisons_total{cache="hit"}')).toBe(hits + 1);
   });
 
-  it('reports the database and WAL size, and backups', async () => {
+  // The database file, its WAL and online backups are the SQLite store's; on PostgreSQL the backup route answers 503
+  // (the PostgreSQL half of the access matrix, tests/reliability/access-matrix.test.ts, checks that answer).
+  it.skipIf(TEST_ENGINE === 'postgres')('reports the database and WAL size, and backups', async () => {
     const res = await t.request({ method: 'POST', url: '/v1/admin/backup', payload: {} });
     expect(res.statusCode).toBe(201);
     const text = await scrape();

@@ -128,6 +128,7 @@ describe('configuration', () => {
       backupDir: undefined,
       metricsTokenHash: null,
       trustProxy: false,
+      databasePoolSize: 10,
     });
   });
 
@@ -147,6 +148,8 @@ describe('configuration', () => {
       SPLITBALLOT_SHUTDOWN_TIMEOUT: '5',
       SPLITBALLOT_BACKUP_DIR: '/var/backups/splitballot',
       SPLITBALLOT_METRICS_TOKEN: metricsToken,
+      SPLITBALLOT_DATABASE_URL: 'postgres://sb:pw@db.example.org:5432/splitballot',
+      SPLITBALLOT_DATABASE_POOL_SIZE: '25',
     });
     expect(c).toEqual({
       port: 9090,
@@ -162,6 +165,8 @@ describe('configuration', () => {
       backupDir: '/var/backups/splitballot',
       metricsTokenHash: sha256(metricsToken),
       trustProxy: false,
+      databaseUrl: 'postgres://sb:pw@db.example.org:5432/splitballot',
+      databasePoolSize: 25,
     });
     expect(JSON.stringify(c)).not.toContain(secret);
     expect(JSON.stringify(c)).not.toContain(metricsToken);
@@ -173,6 +178,7 @@ describe('configuration', () => {
       [{ PORT: '65536' }, 'Configuration error: PORT must be a whole number from 0 to 65535 (got "65536")'],
       [{ HOST: 'local host' }, 'Configuration error: HOST must be a host name or address (got "local host")'],
       [{ LOG_LEVEL: 'loud' }, 'Configuration error: LOG_LEVEL must be one of fatal, error, warn, info, debug, trace, silent (got "loud")'],
+      [{ SPLITBALLOT_DATABASE_POOL_SIZE: '0' }, 'Configuration error: SPLITBALLOT_DATABASE_POOL_SIZE must be a whole number of connections from 1 to 1000 (got "0")'],
       [
         { SPLITBALLOT_ADMIN_KEY: 'short-secret' },
         'Configuration error: SPLITBALLOT_ADMIN_KEY must be at least 32 characters (for example the output of `openssl rand -hex 32`)',

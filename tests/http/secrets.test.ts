@@ -7,7 +7,7 @@ import { existsSync, readFileSync } from 'node:fs';
 import type { InjectOptions } from 'fastify';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
-import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { startTestApp, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 let t: TestApp;
 const envSecret = generateSecret();
@@ -69,7 +69,8 @@ describe('secrets', () => {
     for (const s of secrets) for (const f of forms(s)) expect(text.includes(f), `log contains ${f.slice(0, 8)}…`).toBe(false);
   });
 
-  it('no secret in the database file in clear (only hashes are stored)', () => {
+  // The SQLite file's bytes; on PostgreSQL only hashes are stored as well, in the same columns (not read as a file here).
+  it.skipIf(TEST_ENGINE === 'postgres')('no secret in the database file in clear (only hashes are stored)', () => {
     const files = [t.dbPath, `${t.dbPath}-wal`].filter((p) => existsSync(p));
     const bytes = Buffer.concat(files.map((p) => readFileSync(p)));
     expect(bytes.length).toBeGreaterThan(0);

@@ -11,7 +11,7 @@ import { REDACTED_LOG_PATHS } from '../../server/http/logging.js';
 import { API_CSP } from '../../server/http/security-headers.js';
 import { ConfigError, loadConfig, sha256 } from '../../server/config.js';
 import { HTML_CSP } from '../../server/views/html.js';
-import { LogCapture, startTestApp, tempDir, testConfig, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
+import { LogCapture, startTestApp, tempDir, TEST_ENGINE, testConfig, waterResponse, WATER_ID, type TestApp } from '../helpers/app.js';
 
 const PROBLEM = 'application/problem+json';
 
@@ -311,8 +311,9 @@ describe('no secret, key hash or SQL in logs or errors', () => {
   it('a database failure becomes a 500 whose body and log carry no SQL text', async () => {
     const t = await startTestApp({ config: { logLevel: 'trace' } });
     expect((await t.createWater()).statusCode).toBe(201);
-    // Break the schema under the running app: the ingest statement now fails inside SQLite.
-    t.store.db.exec('DROP TABLE value_counts');
+    // Break the schema under the running app: the ingest statement now fails inside the database.
+    if (TEST_ENGINE === 'postgres') await t.sql('DROP TABLE value_counts');
+    else t.store.db.exec('DROP TABLE value_counts');
     const res = await t.request({ method: 'POST', url: `/v1/experiments/${WATER_ID}/responses`, payload: waterResponse() });
     expect(res.statusCode).toBe(500);
     expect(res.headers['content-type']).toContain(PROBLEM);

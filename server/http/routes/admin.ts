@@ -28,6 +28,8 @@ export interface AdminRouteOptions {
   /** The backup folder (absolute). */
   backupDir?: string;
   metrics?: ServiceMetrics;
+  /** Why this store takes no online backup (PostgreSQL: its own tools), answered as the problem's detail. */
+  backupRefusal?: string;
 }
 
 const BackupRequestSchema = z
@@ -80,6 +82,7 @@ export async function adminRoutes(base: FastifyInstance, opts: AdminRouteOptions
       },
     },
     async (request, reply) => {
+      if (opts.backupRefusal) throw new ProblemError('unavailable', opts.backupRefusal);
       if (!opts.backup || !opts.backupDir) throw new ProblemError('unavailable', 'This store cannot be backed up online.');
       if (running !== null) {
         throw new ProblemError('unavailable', `A backup (${running}) is already running; try again when it has finished.`, {

@@ -17,6 +17,10 @@
  * cannot take every slot), per experiment (200; beyond → 503) and per process (1,000; beyond → 503). A refusal at
  * capacity is logged at warn, one line without a stack (it is load, not a fault).
  *
+ * With a change notifier (PostgreSQL: LISTEN/NOTIFY, so a write taken by ANY node of the deployment) the watcher
+ * reads the dataVersion at once when a change of a watched experiment is announced, and reads every watched
+ * experiment again after a `resync` (the notifier lost its connection); the one-second poll stays as the safety net.
+ *
  * The reply is a stream sent through fastify (not hijacked), so CORS and the security headers apply as for
  * every other route. Browsers' EventSource cannot send an Authorization header: the results page reads the
  * stream with fetch() instead; any other client (curl -N, a dashboard) sends the header normally.
@@ -25,7 +29,7 @@ import { PassThrough } from 'node:stream';
 import type { FastifyInstance } from 'fastify';
 import type { ZodTypeProvider } from 'fastify-type-provider-zod';
 import { z } from 'zod';
-import type { Store } from '../../store/types.js';
+import type { ChangeNotifier, Store } from '../../store/types.js';
 import { ProblemError } from '../../errors.js';
 import { problems } from '../../schemas/common.js';
 import { ExperimentParams } from '../../schemas/responses.js';
@@ -114,6 +118,16 @@ export class DataVersionWatcher {
     this.watches.delete(experimentKey);
   }
 
+  /** Read now (a change was announced); `null` = every watched experiment (after a resync). */
+  pollNow(experimentKey: number | null): void {
+    if (experimentKey === null) {
+      for (const [key, w] of this.watches) void this.poll(key, w);
+      return;
+    }
+    const w = this.watches.get(experimentKey);
+    if (w) void this.poll(experimentKey, w);
+  }
+
   private async poll(experimentKey: number, watch: Watch): Promise<void> {
     if (watch.polling) return; // the previous read has not come back yet
     watch.polling = true;
@@ -149,7 +163,10 @@ function countBy(map: Map<number, number>, key: number, delta: number): void {
   else map.set(key, n);
 }
 
-export async function eventRoutes(base: FastifyInstance, opts: { store: Store; timings?: EventTimings; limits?: EventStreamLimits }): Promise<void> {
+export async function eventRoutes(
+  base: FastifyInstance,
+  opts: { store: Store; timings?: EventTimings; limits?: EventStreamLimits; notifier?: ChangeNotifier },
+): Promise<void> {
   const app = base.withTypeProvider<ZodTypeProvider>();
   const { store } = opts;
   const timings = { pollMs: opts.timings?.pollMs ?? POLL_INTERVAL_MS, heartbeatMs: opts.timings?.heartbeatMs ?? HEARTBEAT_INTERVAL_MS };
@@ -163,6 +180,7 @@ export async function eventRoutes(base: FastifyInstance, opts: { store: Store; t
   const perKey = new Map<number, number>();
   const perExperiment = new Map<number, number>();
   let closing = false;
+  const unlisten = opts.notifier?.subscribe((change) => watcher.pollNow(change.kind === 'resync' ? null : change.experimentKey));
 
   // Revoked keys: one look at the (small) key table per poll interval while streams are open; a stream whose key is
   // revoked or gone ends at once.
@@ -192,6 +210,7 @@ export async function eventRoutes(base: FastifyInstance, opts: { store: Store; t
   const endAll = async () => {
     closing = true;
     clearInterval(keyCheck);
+    unlisten?.();
     watcher.closeAll();
     for (const s of [...open.keys()]) s.end();
   };

@@ -26,8 +26,21 @@ import { createReadStream } from 'node:fs';
 import { Readable } from 'node:stream';
 import { CsvError, parse as parseStream, type Options as CsvParseOptions } from 'csv-parse';
 import { parse as parseSync } from 'csv-parse/sync';
-import type { BulkImport, ExperimentRecord, IngestOutcome, RejectedIncrement, RejectedWeightIncrement, Store, ValidResponse } from '../../store/types.js';
+import {
+  isPromise,
+  type BulkImport,
+  type ExperimentRecord,
+  type IngestOutcome,
+  type MaybePromise,
+  type RejectedIncrement,
+  type RejectedWeightIncrement,
+  type Store,
+  type ValidResponse,
+} from '../../store/types.js';
 import { CSV_PARSE_OPTIONS, CsvRowChecker, IMPORT_CHUNK_ROWS, ImportCounts, ImportProblem, ImportSummary, LineTracker, MAX_KEPT_PROBLEMS, RecordPosition, parseErrorProblem } from './csv-rows.js';
+
+/** The part of a BulkImport pass 2 writes to. */
+type ChunkWriter = Pick<BulkImport, 'add'>;
 
 export interface CsvImportOptions {
   experiment: ExperimentRecord;
@@ -132,8 +145,12 @@ export class CsvImport {
     return { proceed, rejected, rejectedWeights };
   }
 
-  /** Pass 2: feed the same records again; valid rows go to the store in chunks. */
-  insert(record: string[], pos: RecordPosition, writer: { add(items: ValidResponse[]): IngestOutcome }): boolean {
+  /**
+   * Pass 2: feed the same records again; valid rows go to the store in chunks. Returns false when reading can
+   * stop — as a promise only when the engine's add() answered with one (see BulkImport in store/types.ts: with a
+   * synchronous engine nothing here awaits).
+   */
+  insert(record: string[], pos: RecordPosition, writer: ChunkWriter): MaybePromise<boolean> {
     if (this.pass !== 2) throw new Error('insert() before endValidation()');
     if (this.stopped) return false;
     const line = this.lines.start(pos);
@@ -146,54 +163,65 @@ export class CsvImport {
     if (!r.ok) return true; // reported in pass 1 (only reached with skipInvalid)
     this.chunk.push(r.item);
     this.chunkLines.push(line);
-    if (this.chunk.length >= this.chunkRows) this.flush(writer);
+    if (this.chunk.length >= this.chunkRows) {
+      const done = this.flush(writer);
+      if (isPromise(done)) return done.then(() => !this.stopped);
+    }
     return !this.stopped;
   }
 
-  endInsert(writer: { add(items: ValidResponse[]): IngestOutcome }): void {
-    if (!this.stopped) this.flush(writer);
+  endInsert(writer: ChunkWriter): MaybePromise<void> {
+    if (!this.stopped) return this.flush(writer);
   }
 
-  private flush(writer: { add(items: ValidResponse[]): IngestOutcome }): void {
+  private flush(writer: ChunkWriter): MaybePromise<void> {
     if (this.chunk.length === 0) return;
-    let items = this.chunk;
-    let lines = this.chunkLines;
+    const items = this.chunk;
+    const lines = this.chunkLines;
     this.chunk = [];
     this.chunkLines = [];
-    for (;;) {
-      const outcome = writer.add(items);
-      if (outcome.kind === 'stored') {
-        this.created += outcome.created;
-        this.repeated += outcome.repeated;
-        this.dataVersion = outcome.dataVersion;
-        this.insertedRows += items.length;
-        return;
-      }
-      if (outcome.kind === 'closed' || outcome.kind === 'not-found') {
-        this.setFatal({
-          line: 0,
-          column: '',
-          message: outcome.kind === 'closed' ? `experiment ${this.options.experiment.id} is closed and accepts no new responses` : `experiment ${this.options.experiment.id} no longer exists`,
-        });
-        this.stopped = true;
-        this.stoppedBy = outcome.kind;
-        return;
-      }
-      // Conflicts: report them, then store the rest of the chunk (also in all-or-nothing mode, so that every
-      // conflict in the file is found before the transaction is rolled back).
-      const bad = new Set(outcome.conflicts.map((c) => c.index));
-      for (const c of outcome.conflicts) {
-        if (!this.badLines.has(lines[c.index])) {
-          this.badLines.add(lines[c.index]);
-          this.counts.rejectedRows++;
-        }
-        this.conflicts++;
-        this.report({ line: lines[c.index], column: 'responseId', message: 'was already stored (or appears earlier in the file) with different content', value: c.responseId });
-      }
-      items = items.filter((_, i) => !bad.has(i));
-      lines = lines.filter((_, i) => !bad.has(i));
-      if (items.length === 0) return;
+    return this.store(items, lines, writer);
+  }
+
+  /** Hand one chunk to the store; after conflicts, the rest of the chunk again (sync or async as the engine answers). */
+  private store(items: ValidResponse[], lines: number[], writer: ChunkWriter): MaybePromise<void> {
+    const outcome = writer.add(items);
+    if (isPromise(outcome)) return outcome.then((o) => this.afterAdd(o, items, lines, writer));
+    return this.afterAdd(outcome, items, lines, writer);
+  }
+
+  private afterAdd(outcome: IngestOutcome, items: ValidResponse[], lines: number[], writer: ChunkWriter): MaybePromise<void> {
+    if (outcome.kind === 'stored') {
+      this.created += outcome.created;
+      this.repeated += outcome.repeated;
+      this.dataVersion = outcome.dataVersion;
+      this.insertedRows += items.length;
+      return;
     }
+    if (outcome.kind === 'closed' || outcome.kind === 'not-found') {
+      this.setFatal({
+        line: 0,
+        column: '',
+        message: outcome.kind === 'closed' ? `experiment ${this.options.experiment.id} is closed and accepts no new responses` : `experiment ${this.options.experiment.id} no longer exists`,
+      });
+      this.stopped = true;
+      this.stoppedBy = outcome.kind;
+      return;
+    }
+    // Conflicts: report them, then store the rest of the chunk (also in all-or-nothing mode, so that every
+    // conflict in the file is found before the transaction is rolled back).
+    const bad = new Set(outcome.conflicts.map((c) => c.index));
+    for (const c of outcome.conflicts) {
+      if (!this.badLines.has(lines[c.index])) {
+        this.badLines.add(lines[c.index]);
+        this.counts.rejectedRows++;
+      }
+      this.conflicts++;
+      this.report({ line: lines[c.index], column: 'responseId', message: 'was already stored (or appears earlier in the file) with different content', value: c.responseId });
+    }
+    const rest = items.filter((_, i) => !bad.has(i));
+    if (rest.length === 0) return;
+    return this.store(rest, lines.filter((_, i) => !bad.has(i)), writer);
   }
 
   /** Should pass 2's transaction be committed? */
@@ -232,10 +260,12 @@ const PROGRESS_EVERY = 50_000;
 
 /**
  * Import a CSV held in memory (the HTTP route). Pass 1 streams the buffer in 64 KiB slices, so the event loop
- * keeps serving other requests while the rows are checked. Pass 2 runs inside ONE transaction without yielding
- * to the event loop, so no other request's statement can run inside it (the service has one connection); the
- * price is that the service answers nothing else while the rows are stored — which is why the route's body
- * limit (IMPORT_BODY_LIMIT) is small and larger files belong to the CLI.
+ * keeps serving other requests while the rows are checked. Pass 2 runs inside ONE transaction. With an engine
+ * that answers the import synchronously (SQLite, one connection shared by every request) it runs from BEGIN to
+ * COMMIT without awaiting anything, so no other request's statement can run inside it; the price is that the
+ * service answers nothing else while the rows are stored — which is why the route's body limit
+ * (IMPORT_BODY_LIMIT) is small and larger files belong to the CLI. With an engine whose import owns its
+ * connection (PostgreSQL) each chunk is awaited and other requests go on meanwhile.
  */
 export async function importCsvBuffer(run: ImportRun, csv: Buffer | string): Promise<ImportSummary> {
   const imp = new CsvImport(run);
@@ -250,36 +280,42 @@ export async function importCsvBuffer(run: ImportRun, csv: Buffer | string): Pro
   if (rejected.length > 0) await run.store.responses.recordRejected(run.experiment.key, rejected);
   if (rejectedWeights.length > 0) await run.store.responses.recordRejectedWeights(run.experiment.key, rejectedWeights);
   if (!proceed) return imp.summary(false);
-  const writer = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
+  // Records with their positions, parsed before the transaction begins (the body is small: IMPORT_BODY_LIMIT).
+  const records = parseSync(bytes, {
+    ...CSV_PARSE_OPTIONS,
+    on_record: (record: string[], ctx: RecordPosition) => ({ record, lines: ctx.lines, empty_lines: ctx.empty_lines }),
+  } as unknown as CsvParseOptions) as unknown as ({ record: string[] } & RecordPosition)[];
+  const begun = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
+  const writer = isPromise(begun) ? await begun : begun;
   let committed = false;
   try {
-    parseSync(bytes, {
-      ...CSV_PARSE_OPTIONS,
-      on_record: (record: string[], ctx: RecordPosition) => {
-        imp.insert(record, ctx, writer);
-        return null;
-      },
-    });
-    imp.endInsert(writer);
-    committed = commitIfKept(imp, writer);
+    for (const entry of records) {
+      const go = imp.insert(entry.record, entry, writer);
+      if (!(isPromise(go) ? await go : go)) break;
+    }
+    const end = imp.endInsert(writer);
+    if (isPromise(end)) await end;
+    const commit = commitIfKept(imp, writer);
+    committed = isPromise(commit) ? await commit : commit;
   } finally {
-    writer.rollback();
+    const rb = writer.rollback();
+    if (isPromise(rb)) await rb;
   }
   return imp.summary(committed);
 }
 
 /** Commit the open import when its rows may be kept (all valid, or skipInvalid); returns whether it did. */
-function commitIfKept(imp: CsvImport, writer: BulkImport): boolean {
+function commitIfKept(imp: CsvImport, writer: BulkImport): MaybePromise<boolean> {
   if (!imp.shouldCommit()) return false;
-  writer.commit();
-  return true;
+  const done = writer.commit();
+  return isPromise(done) ? done.then(() => true) : true;
 }
 
 function* slices(bytes: Buffer, size = 64 * 1024): Generator<Buffer> {
   for (let i = 0; i < bytes.length; i += size) yield bytes.subarray(i, Math.min(bytes.length, i + size));
 }
 
-async function streamRecords(source: () => Readable, each: (record: string[], pos: RecordPosition) => boolean | void): Promise<void> {
+async function streamRecords(source: () => Readable, each: (record: string[], pos: RecordPosition) => MaybePromise<boolean | void>): Promise<void> {
   // on_record hands over only the two position counters (cheaper than `info: true`, which copies a whole object).
   const parser = source().pipe(
     parseStream({
@@ -290,7 +326,8 @@ async function streamRecords(source: () => Readable, each: (record: string[], po
   let sinceYield = 0;
   try {
     for await (const entry of parser as AsyncIterable<{ record: string[] } & RecordPosition>) {
-      if (each(entry.record, entry) === false) break;
+      const go = each(entry.record, entry);
+      if ((isPromise(go) ? await go : go) === false) break;
       // Streams fed from memory (or a fast disk) run on microtasks and would starve other I/O: let the event
       // loop turn every 1,000 records.
       if (++sinceYield >= 1000) {
@@ -324,23 +361,27 @@ export async function importCsvFile(run: ImportRun, path: string): Promise<Impor
   if (rejected.length > 0) await run.store.responses.recordRejected(run.experiment.key, rejected);
   if (rejectedWeights.length > 0) await run.store.responses.recordRejectedWeights(run.experiment.key, rejectedWeights);
   if (!proceed) return imp.summary(false);
-  const writer = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
+  const begun = run.store.bulk.beginImport(run.experiment.key, run.receivedAt, run.apiKeyId);
+  const writer = isPromise(begun) ? await begun : begun;
   let committed = false;
   let lastProgress = 0;
+  const progress = (go: boolean): boolean => {
+    if (imp.insertedRows - lastProgress >= PROGRESS_EVERY) {
+      lastProgress = imp.insertedRows;
+      run.onProgress?.(2, imp.insertedRows);
+    }
+    return go;
+  };
   try {
     await streamRecords(() => createReadStream(path), (record, pos) => {
       const go = imp.insert(record, pos, writer);
-      if (imp.insertedRows - lastProgress >= PROGRESS_EVERY) {
-        lastProgress = imp.insertedRows;
-        run.onProgress?.(2, imp.insertedRows);
-      }
-      return go;
+      return isPromise(go) ? go.then(progress) : progress(go);
     });
-    imp.endInsert(writer);
+    await imp.endInsert(writer);
     run.onProgress?.(2, imp.insertedRows);
-    committed = commitIfKept(imp, writer);
+    committed = await commitIfKept(imp, writer);
   } finally {
-    writer.rollback();
+    await writer.rollback();
   }
   return imp.summary(committed);
 }

@@ -15,6 +15,7 @@ import { createHash } from 'node:crypto';
 import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
 import { dirname, join, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { MigrationError } from '../types.js';
 import type { SqliteDatabase } from './open.js';
 
 export interface Migration {
@@ -29,9 +30,7 @@ export interface AppliedMigration {
   appliedAt: string;
 }
 
-export class MigrationError extends Error {
-  override name = 'MigrationError';
-}
+export { MigrationError };
 
 const MIGRATION_NAME = /^\d{4}_[a-z0-9_]+\.sql$/;
 

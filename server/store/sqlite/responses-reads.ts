@@ -1,12 +1,12 @@
 /**
  * Reads of stored responses in SQLite: stored responses, per-value counts, sorted values through the sorted-runs
- * cache (sorted-runs-cache.ts; merged with newer rows, or read whole, also by a worker thread), snapshots read in one
+ * cache (../sorted-runs-cache.ts; merged with newer rows, or read whole, also by a worker thread), snapshots read in one
  * transaction with the dataVersion and counters, and the comparison stamp. Part of the response repository
  * (responses.ts is the facade).
  */
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from './sorted-runs-cache.js';
+import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-runs-cache.js';
 import type { SqliteDatabase } from './open.js';
 import type {
   ComparisonStamp,
@@ -123,7 +123,7 @@ export class SqliteResponseReads implements SortedRunsReader {
   private readonly maxResponseId;
   private readonly newValuesOfRun;
   private readonly conditionCounter;
-  /** Sorted runs kept in memory (see sorted-runs-cache.ts). */
+  /** Sorted runs kept in memory (see ../sorted-runs-cache.ts). */
   readonly sortedCache = new SortedValuesCache();
 
   constructor(private readonly db: SqliteDatabase) {

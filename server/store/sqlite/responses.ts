@@ -2,7 +2,7 @@
  * Responses, their values, per-value counts and rejected-value counters (SQLite): the repository is a small facade
  * over three parts, one file each: responses-ingest.ts (ingest, group commit, rejected counters),
  * responses-exclusions.ts (exclusion, restoration, erasure) and responses-reads.ts (every read, through the
- * sorted-runs cache of sorted-runs-cache.ts).
+ * sorted-runs cache of ../sorted-runs-cache.ts).
  *
  * Ingest is ONE synchronous better-sqlite3 transaction (BEGIN IMMEDIATE): idempotency checks, response rows,
  * value rows, per-value counts of integer measures (aggregated in JS first: one upsert per distinct
@@ -13,7 +13,7 @@
  *
  * Reads for comparisons: getCounts / getValueCounts read value_counts (integer measures, O(distinct values));
  * getSortedValues walks the index (measure_id, condition_id, excluded, value) in order into a Float64Array
- * (O(n), no sort). getSortedValuesSnapshot goes through the sorted-values cache (sorted-runs-cache.ts):
+ * (O(n), no sort). getSortedValuesSnapshot goes through the sorted-values cache (../sorted-runs-cache.ts):
  * a held run is reused, newer rows (responses.id above the last one seen, same values epoch of migration 0004)
  * are merged in, anything else is read again; readRunsSnapshot/adoptRunsSnapshot let a worker thread do a large
  * full read on its own read-only connection (worker-reads.ts, run by the comparison service's worker pool). With includeExcluded the two sorted runs (excluded = 0 and = 1) are merged in O(n). The
@@ -76,7 +76,7 @@ export class SqliteResponseRepository implements ResponseRepository, SortedRunsR
     return this.writer.groupStats;
   }
 
-  /** Sorted runs of continuous measures kept between comparisons (see sorted-runs-cache.ts). */
+  /** Sorted runs of continuous measures kept between comparisons (see ../sorted-runs-cache.ts). */
   get sortedCache() {
     return this.reads.sortedCache;
   }

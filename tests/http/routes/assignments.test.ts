@@ -6,7 +6,7 @@
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
 import type { ExperimentRecord } from '../../../server/store/types.js';
 import { blockPlan, secureShuffle } from '../../../server/services/assignment.js';
-import { startTestApp, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
+import { startTestApp, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 const ASSIGN = `/v1/experiments/${WATER_ID}/assignments`;
 const SUMMARY = `/v1/experiments/${WATER_ID}/assignments/summary`;
@@ -29,7 +29,7 @@ async function water(overrides: Record<string, unknown> = {}): Promise<Experimen
  * here, so the test database skips the per-commit fsync (synchronous = OFF) to keep the run short.
  */
 async function assignMany(e: ExperimentRecord, count: number): Promise<number[]> {
-  t.store.db.pragma('synchronous = OFF');
+  if (TEST_ENGINE === 'sqlite') t.store.db.pragma('synchronous = OFF');
   const plan = blockPlan(e);
   if (!plan.ok) throw new Error(plan.reason);
   const out: number[] = [];
@@ -62,7 +62,8 @@ function checkBalance(e: ExperimentRecord, sequence: number[], weights: number[]
   return { worst };
 }
 
-describe('balance of 10,000 assignments', () => {
+// On PostgreSQL each of the 10,000 assignments is its own committed transaction (with its fsync): allow 2 minutes.
+describe('balance of 10,000 assignments', { timeout: TEST_ENGINE === 'postgres' ? 120_000 : 30_000 }, () => {
   it('equal allocation: blocks of 4, every prefix within one block of 1:1, exact at each block end', async () => {
     const e = await water();
     const plan = blockPlan(e);

@@ -3,7 +3,7 @@
  * conflicts, counts aggregated correctly, limits.
  */
 import { describe, expect, it } from 'vitest';
-import { dumpTables, eachTestApp, WATER_ID, waterResponse, type TestApp } from '../../helpers/app.js';
+import { eachTestApp, WATER_ID, waterResponse, type TestApp } from '../../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses/batch`;
 
@@ -19,10 +19,11 @@ function item(i: number, prefix = 'b'): Record<string, unknown> {
   };
 }
 
-function dataTables() {
-  const d = dumpTables(t.store);
-  delete d.api_keys; // last_used_at may be written by the first authenticated request
-  delete d.rejected_value_counts; // rejected values are counted even when the batch is refused (tested below)
+/** The data tables, read the same way on either engine (api_keys: last_used_at may be written by the first
+ * authenticated request; rejected_value_counts: rejected values are counted even when the batch is refused, tested below). */
+async function dataTables(): Promise<Record<string, unknown[]>> {
+  const d: Record<string, unknown[]> = {};
+  for (const table of ['experiments', 'conditions', 'measures', 'responses', 'response_values', 'value_counts']) d[table] = await t.sql(`SELECT * FROM ${table} ORDER BY 1, 2`);
   return d;
 }
 
@@ -40,13 +41,11 @@ describe('batch ingest', () => {
     ]);
 
     // value_counts equals a count over the raw values (aggregated in JS before the upserts).
-    const fromCounts = t.store.db.prepare(`SELECT measure_id, condition_id, value, count FROM value_counts ORDER BY 1, 2, 3`).all();
-    const fromRows = t.store.db
-      .prepare(
-        `SELECT v.measure_id, v.condition_id, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
-         WHERE m.is_integer = 1 GROUP BY 1, 2, 3 ORDER BY 1, 2, 3`,
-      )
-      .all();
+    const fromCounts = await t.sql(`SELECT measure_id, condition_id, value, count FROM value_counts ORDER BY 1, 2, 3`);
+    const fromRows = await t.sql(
+      `SELECT v.measure_id, v.condition_id, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
+       WHERE m.is_integer GROUP BY 1, 2, 3 ORDER BY 1, 2, 3`,
+    );
     expect(fromCounts).toEqual(fromRows);
 
     // Again, with 100 new items and 400 of the old ones: only the new ones are stored.
@@ -69,7 +68,7 @@ describe('batch ingest', () => {
 
   it('one bad item rejects the whole batch: every problem listed by index, the database unchanged', async () => {
     await t.request({ method: 'POST', url: URL, payload: { responses: [item(1000)] } });
-    const before = dataTables();
+    const before = await dataTables();
     const items = Array.from({ length: 50 }, (_, i) => item(i));
     items[3] = { ...item(3), values: { satisfaction: 170, trust: 5, fair_price: 10 } };
     items[17] = { ...item(17), condition: 'nowhere' };
@@ -89,11 +88,9 @@ describe('batch ingest', () => {
         { path: 'responses[42].values.trust', message: 'must be a number, not a string', value: '2' },
       ],
     });
-    expect(dataTables()).toEqual(before);
+    expect(await dataTables()).toEqual(before);
     // The refused values are counted (documented: a rejected batch's bad values count, once per request).
-    const rejected = t.store.db
-      .prepare(`SELECT m.slug AS measure, r.reason, r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id ORDER BY 1, 2`)
-      .all();
+    const rejected = await t.sql(`SELECT m.slug AS measure, r.reason, r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id ORDER BY 1, 2`);
     expect(rejected).toEqual([
       { measure: 'satisfaction', reason: 'not_integer', count: 1 },
       { measure: 'satisfaction', reason: 'out_of_range', count: 1 },
@@ -103,7 +100,7 @@ describe('batch ingest', () => {
 
   it('a conflict with a stored response, or inside the batch, rejects the whole batch with 409', async () => {
     await t.request({ method: 'POST', url: URL, payload: { responses: [item(1)] } });
-    const before = dataTables();
+    const before = await dataTables();
     const changed = { ...item(1), values: { satisfaction: 0, trust: 1, fair_price: 0 } };
     const res = await t.request({ method: 'POST', url: URL, payload: { responses: [item(5), changed, item(6), item(6, 'x'), { ...item(6, 'x'), condition: 'service-first' }] } });
     expect(res.statusCode).toBe(409);
@@ -117,7 +114,7 @@ describe('batch ingest', () => {
         { path: 'responses[4].responseId', message: 'was already stored with different content', value: 'x-6' },
       ],
     });
-    expect(dataTables()).toEqual(before);
+    expect(await dataTables()).toEqual(before);
   });
 
   it('envelope rules: at least one, at most 10,000 items, JSON only, no unknown fields', async () => {

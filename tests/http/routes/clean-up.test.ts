@@ -5,7 +5,14 @@
  */
 import { describe, expect, it } from 'vitest';
 import { checkFile } from '../../../server/store/sqlite/check.js';
-import { eachTestApp, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
+import type { PostgresStore } from '../../../server/store/postgres/store.js';
+import { eachTestApp, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
+
+/** `splitballot check` on the test app's database, whichever engine (SQLite: the file, after the app closed). */
+async function checkStore(): Promise<{ ok: boolean; problems: string[] }> {
+  if (TEST_ENGINE === 'postgres') return (t.store as unknown as PostgresStore).check();
+  return checkFile(t.dbPath);
+}
 
 const BASE = `/v1/experiments/${WATER_ID}`;
 let t: TestApp;
@@ -59,7 +66,7 @@ describe('POST …/clean-up', () => {
     // Applying again changes nothing and does not move dataVersion.
     expect((await cleanUp({ action: 'exclude', reason: 'again', apiKey: leakedId, dryRun: false })).json()).toMatchObject({ matched: 12, changed: 0, dataVersion: before.dataVersion + 1 });
     await t.app.close();
-    const report = checkFile(t.dbPath);
+    const report = await checkStore();
     expect(report.problems).toEqual([]);
     expect(report.ok).toBe(true);
   });
@@ -84,7 +91,7 @@ describe('POST …/clean-up', () => {
     expect(left).toEqual(['keep-1', 'keep-2']);
     expect((await auditEntries())[0]).toMatchObject({ action: 'erase', responseId: null, reason: 'test batch sent to the live study', count: 7, dataVersion: before.dataVersion + 1 });
     await t.app.close();
-    expect(checkFile(t.dbPath).problems).toEqual([]);
+    expect((await checkStore()).problems).toEqual([]);
   });
 
   it('refuses a clean-up without any filter, a window that ends before it starts, and non-admin keys', async () => {

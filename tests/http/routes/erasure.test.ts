@@ -4,7 +4,6 @@
  * earlier audit rows of the erased responses redacted. Invariants recomputed from raw rows. Data invented.
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import type { SqliteStore } from '../../../server/store/sqlite/store.js';
 import { startTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 let t: TestApp;
@@ -17,25 +16,19 @@ afterEach(async () => {
 });
 const base = `/v1/experiments/${WATER_ID}`;
 
-function checkInvariants(store: SqliteStore): void {
-  const db = store.db;
-  const stored = db.prepare(`SELECT measure_id, condition_id, excluded, value, count FROM value_counts ORDER BY 1, 2, 3, 4`).all();
-  const recomputed = db
-    .prepare(
-      `SELECT v.measure_id, v.condition_id, v.excluded, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
-       WHERE m.is_integer = 1 GROUP BY 1, 2, 3, 4 ORDER BY 1, 2, 3, 4`,
-    )
-    .all();
+async function checkInvariants(t: TestApp): Promise<void> {
+  const stored = await t.sql(`SELECT measure_id, condition_id, excluded, value, count FROM value_counts ORDER BY 1, 2, 3, 4`);
+  const recomputed = await t.sql(
+    `SELECT v.measure_id, v.condition_id, v.excluded, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
+     WHERE m.is_integer GROUP BY 1, 2, 3, 4 ORDER BY 1, 2, 3, 4`,
+  );
   expect(stored, 'value_counts = GROUP BY over response_values').toEqual(recomputed);
-  const bad = db
-    .prepare(
-      `SELECT count(*) FROM conditions c WHERE c.response_count != (SELECT count(*) FROM responses r WHERE r.condition_id = c.id)
-         OR c.excluded_count != (SELECT coalesce(sum(r.excluded), 0) FROM responses r WHERE r.condition_id = c.id)`,
-    )
-    .pluck()
-    .get();
+  const [{ n: bad }] = await t.sql(
+    `SELECT count(*) AS n FROM conditions c WHERE c.response_count != (SELECT count(*) FROM responses r WHERE r.condition_id = c.id)
+       OR c.excluded_count != (SELECT coalesce(sum(r.excluded), 0) FROM responses r WHERE r.condition_id = c.id)`,
+  );
   expect(bad, 'per-condition counters').toBe(0);
-  expect(db.prepare(`SELECT count(*) FROM response_values v LEFT JOIN responses r ON r.id = v.response_id WHERE r.id IS NULL`).pluck().get()).toBe(0);
+  expect(await t.sql(`SELECT count(*) AS n FROM response_values v LEFT JOIN responses r ON r.id = v.response_id WHERE r.id IS NULL`)).toEqual([{ n: 0 }]);
 }
 
 async function seed(): Promise<void> {
@@ -59,8 +52,8 @@ describe('DELETE /v1/experiments/{id}/respondents/{respondent}', () => {
     const res = await t.request({ method: 'DELETE', url: `${base}/respondents/${encodeURIComponent('anna@example.org')}` });
     expect(res.statusCode).toBe(200);
     expect(res.json()).toEqual({ erased: 3, dataVersion: 3 });
-    checkInvariants(t.store);
-    expect(t.store.db.prepare(`SELECT count(*) FROM responses WHERE respondent = ?`).pluck().get('anna@example.org')).toBe(0);
+    await checkInvariants(t);
+    expect(await t.sql(`SELECT count(*) AS n FROM responses WHERE respondent = ?`, 'anna@example.org')).toEqual([{ n: 0 }]);
     for (const id of ['r-0', 'r-1', 'r-2']) expect((await t.request({ method: 'GET', url: `${base}/responses/${id}/exclusion` })).statusCode).toBe(404);
     const view = (await t.request({ method: 'GET', url: base })).json();
     expect(view.counts).toEqual({
@@ -89,7 +82,7 @@ describe('DELETE /v1/experiments/{id}/respondents/{respondent}', () => {
     // The earlier exclusion of r-1 lost its link to the erased response.
     expect(audit[1]).toMatchObject({ action: 'exclude', responseId: null, redacted: true, reason: 'speeder' });
     // Nothing in the audit table names the respondent or the erased responses.
-    const dump = JSON.stringify(t.store.db.prepare(`SELECT * FROM audit_log`).all());
+    const dump = JSON.stringify(await t.sql(`SELECT * FROM audit_log`));
     expect(dump).not.toContain('anna');
     expect(dump).not.toMatch(/"r-[012]"/);
   });
@@ -104,7 +97,7 @@ describe('DELETE /v1/experiments/{id}/respondents/{respondent}', () => {
     // Erasing twice is safe.
     await t.request({ method: 'DELETE', url: `${base}/respondents/person-5` });
     expect((await t.request({ method: 'DELETE', url: `${base}/respondents/person-5` })).json()).toEqual({ erased: 0, dataVersion: 2 });
-    checkInvariants(t.store);
+    await checkInvariants(t);
   });
 
   it('4xx as problem+json: unknown experiment 404, read and ingest keys 403, no key 401', async () => {

@@ -10,7 +10,7 @@ import { beforeEach, describe, expect, it } from 'vitest';
 import { registerProblemHandlers } from '../../../server/http/problem-handler.js';
 import { DataVersionWatcher, eventRoutes } from '../../../server/http/routes/events.js';
 import { zodValidatorCompiler } from '../../../server/http/validator.js';
-import { eachTestApp, openStore, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
+import { eachTestApp, openStore, TEST_ENGINE, waterResponse, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 let t: TestApp;
 let base: string;
@@ -78,11 +78,16 @@ describe('event stream', () => {
   it('sees data written by another connection (as `splitballot import` in another process does)', async () => {
     const s = await open(`${base}/v1/experiments/${WATER_ID}/events`, t.adminKey);
     await s.waitFor(/"dataVersion":0\}/);
-    const other = openStore(t.dbPath);
-    try {
-      other.db.prepare(`UPDATE experiments SET data_version = data_version + 1 WHERE slug = ?`).run(WATER_ID);
-    } finally {
-      await other.close();
+    if (TEST_ENGINE === 'postgres') {
+      // Another pooled connection of the same database (no notification sent: the poll must see it).
+      await t.sql(`UPDATE experiments SET data_version = data_version + 1 WHERE slug = ?`, WATER_ID);
+    } else {
+      const other = openStore(t.dbPath);
+      try {
+        other.db.prepare(`UPDATE experiments SET data_version = data_version + 1 WHERE slug = ?`).run(WATER_ID);
+      } finally {
+        await other.close();
+      }
     }
     await s.waitFor(/"dataVersion":1\}/, 4000);
     s.close();
@@ -114,7 +119,7 @@ describe('event stream', () => {
 
 describe('heartbeats and the shared poll (short timings)', () => {
   it('sends a comment heartbeat and stops polling when the last listener leaves', async () => {
-    const store = openStore(t.dbPath);
+    const store = t.store; // the test app's store (SQLite file or PostgreSQL database); closed with the app
     const app = Fastify({ logger: false });
     app.setValidatorCompiler(zodValidatorCompiler);
     app.setSerializerCompiler(serializerCompiler);
@@ -129,7 +134,6 @@ describe('heartbeats and the shared poll (short timings)', () => {
       s.close();
     } finally {
       await app.close();
-      await store.close();
     }
   });
 
@@ -170,7 +174,8 @@ describe('revoked keys and limits per key and per experiment', () => {
   });
 
   it('refuses a stream beyond the limit per key (429) and per experiment (503), logged at warn without a stack', async () => {
-    const store = openStore(t.dbPath);
+    // The test app's own store (either engine); closed by the test app, not here.
+    const store = t.store;
     const lines: string[] = [];
     const app = Fastify({ logger: { level: 'info', stream: { write: (l: string) => void lines.push(l) } } });
     app.setValidatorCompiler(zodValidatorCompiler);
@@ -231,7 +236,6 @@ describe('revoked keys and limits per key and per experiment', () => {
     } finally {
       for (const s of streams) s.close();
       await app.close();
-      await store.close();
     }
   });
 });

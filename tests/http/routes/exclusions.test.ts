@@ -4,7 +4,6 @@
  * Data invented for the test.
  */
 import { afterEach, beforeEach, describe, expect, it } from 'vitest';
-import type { SqliteStore } from '../../../server/store/sqlite/store.js';
 import { startTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 let t: TestApp;
@@ -17,33 +16,27 @@ afterEach(async () => {
 });
 const base = `/v1/experiments/${WATER_ID}`;
 
-/** The invariants of DEVELOPERS.md, recomputed from raw rows. */
-function checkInvariants(store: SqliteStore): void {
-  const db = store.db;
-  const stored = db.prepare(`SELECT measure_id, condition_id, excluded, value, count FROM value_counts ORDER BY 1, 2, 3, 4`).all();
-  const recomputed = db
-    .prepare(
-      `SELECT v.measure_id, v.condition_id, v.excluded, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
-       WHERE m.is_integer = 1 GROUP BY 1, 2, 3, 4 ORDER BY 1, 2, 3, 4`,
-    )
-    .all();
+/** The invariants of DEVELOPERS.md, recomputed from raw rows (SQL both engines read alike, see TestApp.sql). */
+async function checkInvariants(t: TestApp): Promise<void> {
+  const stored = await t.sql(`SELECT measure_id, condition_id, excluded, value, count FROM value_counts ORDER BY 1, 2, 3, 4`);
+  const recomputed = await t.sql(
+    `SELECT v.measure_id, v.condition_id, v.excluded, v.value, count(*) AS count FROM response_values v JOIN measures m ON m.id = v.measure_id
+     WHERE m.is_integer GROUP BY 1, 2, 3, 4 ORDER BY 1, 2, 3, 4`,
+  );
   expect(stored, 'value_counts = GROUP BY over response_values').toEqual(recomputed);
-  const counters = db
-    .prepare(
-      `SELECT c.id, c.response_count, c.excluded_count,
-              (SELECT count(*) FROM responses r WHERE r.condition_id = c.id) AS responses,
-              (SELECT coalesce(sum(r.excluded), 0) FROM responses r WHERE r.condition_id = c.id) AS excluded
-       FROM conditions c`,
-    )
-    .all() as { response_count: number; excluded_count: number; responses: number; excluded: number }[];
+  const counters = (await t.sql(
+    `SELECT c.id, c.response_count, c.excluded_count,
+            (SELECT count(*) FROM responses r WHERE r.condition_id = c.id) AS responses,
+            (SELECT coalesce(sum(r.excluded), 0) FROM responses r WHERE r.condition_id = c.id) AS excluded
+     FROM conditions c`,
+  )) as { response_count: number; excluded_count: number; responses: number; excluded: number }[];
   for (const c of counters) {
     expect(c.response_count, 'conditions.response_count').toBe(c.responses);
     expect(c.excluded_count, 'conditions.excluded_count').toBe(c.excluded);
   }
-  const mismatched = db
-    .prepare(`SELECT count(*) FROM response_values v JOIN responses r ON r.id = v.response_id WHERE v.condition_id != r.condition_id OR v.excluded != r.excluded`)
-    .pluck()
-    .get();
+  const [{ n: mismatched }] = await t.sql(
+    `SELECT count(*) AS n FROM response_values v JOIN responses r ON r.id = v.response_id WHERE v.condition_id != r.condition_id OR v.excluded != r.excluded`,
+  );
   expect(mismatched, 'response_values.condition_id and .excluded equal their response').toBe(0);
 }
 
@@ -70,13 +63,11 @@ describe('POST/DELETE …/responses/{responseId}/exclusion', () => {
     const res = await t.request({ method: 'POST', url: `${base}/responses/r-4/exclusion`, payload: { reason: 'failed attention check' } });
     expect(res.statusCode).toBe(200);
     expect(res.json()).toEqual({ responseId: 'r-4', condition: 'bill-first', excluded: true, reason: 'failed attention check', changed: true, dataVersion: 2 });
-    checkInvariants(t.store);
+    await checkInvariants(t);
     const stored = await t.store.responses.getStored((await t.store.experiments.getBySlug(WATER_ID))!.key, 'r-4');
     expect(stored).toMatchObject({ excluded: true, excludedReason: 'failed attention check' });
     // r-4 answered satisfaction 4 and trust 5: those counts moved to excluded = 1.
-    const moved = t.store.db
-      .prepare(`SELECT m.slug, v.value, v.count FROM value_counts v JOIN measures m ON m.id = v.measure_id WHERE v.excluded = 1 ORDER BY m.position`)
-      .all();
+    const moved = await t.sql(`SELECT m.slug, v.value, v.count FROM value_counts v JOIN measures m ON m.id = v.measure_id WHERE v.excluded = 1 ORDER BY m.position`);
     expect(moved).toEqual([
       { slug: 'satisfaction', value: 4, count: 1 },
       { slug: 'trust', value: 5, count: 1 },
@@ -108,8 +99,8 @@ describe('POST/DELETE …/responses/{responseId}/exclusion', () => {
     expect(await dataVersion()).toBe(2);
     const restore = await t.request({ method: 'DELETE', url: `${base}/responses/r-4/exclusion` });
     expect(restore.json()).toEqual({ responseId: 'r-4', condition: 'bill-first', excluded: false, reason: null, changed: true, dataVersion: 3 });
-    checkInvariants(t.store);
-    expect(t.store.db.prepare(`SELECT count(*) FROM value_counts WHERE excluded = 1`).pluck().get()).toBe(0);
+    await checkInvariants(t);
+    expect(await t.sql(`SELECT count(*) AS n FROM value_counts WHERE excluded = 1`)).toEqual([{ n: 0 }]);
     const twice = await t.request({ method: 'DELETE', url: `${base}/responses/r-4/exclusion` });
     expect(twice.json()).toMatchObject({ excluded: false, changed: false, dataVersion: 3 });
     const audit = (await t.request({ method: 'GET', url: `${base}/audit` })).json().entries;
@@ -124,11 +115,11 @@ describe('POST/DELETE …/responses/{responseId}/exclusion', () => {
     await seed();
     for (const id of ['r-1', 'r-2', 'r-3', 'r-10', 'r-11', 'r-29']) {
       expect((await t.request({ method: 'POST', url: `${base}/responses/${id}/exclusion`, payload: { reason: 'check' } })).statusCode).toBe(200);
-      checkInvariants(t.store);
+      await checkInvariants(t);
     }
     for (const id of ['r-2', 'r-29']) {
       expect((await t.request({ method: 'DELETE', url: `${base}/responses/${id}/exclusion` })).statusCode).toBe(200);
-      checkInvariants(t.store);
+      await checkInvariants(t);
     }
     expect(await dataVersion()).toBe(1 + 6 + 2);
     const view = (await t.request({ method: 'GET', url: base })).json();
@@ -170,6 +161,6 @@ describe('POST/DELETE …/responses/{responseId}/exclusion', () => {
     expect((await t.request({ method: 'DELETE', url: `${base}/responses/r-1/exclusion`, key: null })).statusCode).toBe(401);
     // Nothing above changed the data.
     expect(await dataVersion()).toBe(1);
-    checkInvariants(t.store);
+    await checkInvariants(t);
   });
 });

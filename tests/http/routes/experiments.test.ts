@@ -120,7 +120,7 @@ describe('POST /v1/experiments', () => {
         detail: `The request body has ${errors.length} problem${errors.length === 1 ? '' : 's'}; nothing was stored.`,
         errors,
       });
-      expect(t.store.db.prepare('SELECT count(*) AS n FROM experiments').get()).toEqual({ n: 0 });
+      expect(await t.sql('SELECT count(*) AS n FROM experiments')).toEqual([{ n: 0 }]);
     });
   }
 

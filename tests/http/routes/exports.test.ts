@@ -4,7 +4,6 @@
  */
 import { parse } from 'csv-parse/sync';
 import { describe, expect, it } from 'vitest';
-import { exportResponsePages } from '../../../server/store/sqlite/bulk.js';
 import { COMPARISON_CSV_COLUMNS, csvStream } from '../../../server/http/routes/exports.js';
 import { eachTestApp, WATER_ID, waterResponse, type TestApp } from '../../helpers/app.js';
 
@@ -105,7 +104,7 @@ describe('GET …/responses.csv', () => {
     // The repository reads pages: 2500 rows in pages of 1000 → 3 pages.
     const e = (await t.store.experiments.getBySlug(WATER_ID))!;
     const sizes: number[] = [];
-    for await (const page of exportResponsePages(t.store, e.key, e.measures.map((m) => m.key), 1000)) sizes.push(page.length);
+    for await (const page of t.store.bulk.exportResponsePages(e.key, e.measures.map((m) => m.key), 1000)) sizes.push(page.length);
     expect(sizes).toEqual([1000, 1000, 500]);
   });
 

@@ -64,7 +64,7 @@ describe('form posts from scripts (JSON answers)', () => {
     await t.createWater({ id: 'other-study' });
     const otherKey = await t.key('ingest', 'other-study');
     expect((await postForm({ ...GOOD, ingestKey: otherKey })).statusCode).toBe(403);
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 0 });
+    expect(await t.sql('SELECT count(*) AS n FROM responses')).toEqual([{ n: 0 }]);
     // The refusal of an admin key in a form is logged (without the key) so that the operator can revoke it.
     expect(t.logs.text()).toContain('a key with the admin scope was sent in a form field and refused');
   });
@@ -90,13 +90,10 @@ describe('form posts from scripts (JSON answers)', () => {
       const errors = res.json().errors;
       expect(errors, `${field}=${JSON.stringify(text)}`).toHaveLength(1);
       expect(errors[0], `${field}=${JSON.stringify(text)}`).toMatchObject({ path: `values.${field}`, ...expected });
-      const counted = t.store.db
-        .prepare(`SELECT r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id WHERE m.slug = ? AND r.reason = ?`)
-        .pluck()
-        .get(field, reason);
+      const counted = (await t.sql(`SELECT r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id WHERE m.slug = ? AND r.reason = ?`, field, reason))[0]?.count;
       expect(counted, `${field}=${JSON.stringify(text)} counted as ${reason}`).toBeGreaterThan(0);
     }
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 0 });
+    expect(await t.sql('SELECT count(*) AS n FROM responses')).toEqual([{ n: 0 }]);
   });
 
   it('accepts "7", "7.5", ".5", "007", "1e1" and "-0" where the scale allows them', async () => {
@@ -144,7 +141,7 @@ describe('form posts from browsers (HTML answers)', () => {
     expect(res.statusCode).toBe(303);
     expect(res.headers.location).toBe('/thank-you');
     expect(res.body).toBe('');
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 1 });
+    expect(await t.sql('SELECT count(*) AS n FROM responses')).toEqual([{ n: 1 }]);
     const page = await t.request({ method: 'GET', url: '/thank-you', key: null });
     expect(page.statusCode).toBe(200);
     expect(page.headers['content-type']).toBe('text/html; charset=utf-8');

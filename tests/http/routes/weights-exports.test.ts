@@ -71,7 +71,7 @@ describe('weights in the CSV files', () => {
     expect(res.body).toContain('0 is not a valid weight: a weight must be greater than 0 and at most 1000000');
     const e = (await t.store.experiments.getBySlug('w3'))!;
     expect(await t.store.responses.getRejectedWeightCounts(e.key)).toEqual([{ reason: 'out_of_range', count: 1 }]);
-    expect(t.store.db.prepare(`SELECT count(*) FROM responses`).pluck().get()).toBe(0);
+    expect(await t.sql(`SELECT count(*) AS n FROM responses`)).toEqual([{ n: 0 }]);
   });
 
   it('comparisons.csv appends the weighted and the adjusted columns; covariates get no row of their own', async () => {

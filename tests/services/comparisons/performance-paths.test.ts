@@ -19,7 +19,7 @@ import { openSqliteStore, type SqliteStore } from '../../../server/store/sqlite/
 import type { ExperimentRecord, ValidResponse } from '../../../server/store/types.js';
 import { checkBatch, contentHash, plainlyValidShape } from '../../../server/services/ingest/validate.js';
 import { ResponseInputSchema } from '../../../server/schemas/responses.js';
-import { mergeNewValues, SortedValuesCache } from '../../../server/store/sqlite/sorted-runs-cache.js';
+import { mergeNewValues, SortedValuesCache } from '../../../server/store/sorted-runs-cache.js';
 import { tempDir } from '../../helpers/app.js';
 
 /** Deterministic pseudo-random numbers (a small LCG), so the invented data is the same on every run. */

@@ -17,7 +17,7 @@
  * array stays valid for its own dataVersion.
  *
  * Bounded by a total number of values (default 8,000,000 = 64 MB); the least recently used runs go first.
- * Pure bookkeeping: no SQL here (server/store/sqlite/responses.ts reads; this file keeps and merges).
+ * Pure bookkeeping, shared by the engines: no SQL here (store/sqlite/responses-reads.ts and store/postgres/responses.ts read; this file keeps and merges).
  */
 
 export interface SortedRun {
