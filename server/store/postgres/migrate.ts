@@ -10,24 +10,14 @@
  * Several service processes may start at once against one database: the whole run holds a session-level advisory
  * lock (MIGRATION_LOCK), so exactly one applies the pending files and the others then find them applied.
  */
-import { createHash } from 'node:crypto';
-import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
-import { dirname, join, resolve } from 'node:path';
+import { dirname } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { checksumOf, findMigrationsFolder, loadMigrationFiles, pendingMigrations, type AppliedMigration, type Migration } from '../migration-files.js';
 import { MigrationError } from '../types.js';
 import type { PostgresDatabase, Queryable } from './pool.js';
 
-export interface PgMigration {
-  name: string;
-  sql: string;
-  checksum: string;
-}
-
-export interface PgAppliedMigration {
-  name: string;
-  checksum: string;
-  appliedAt: string;
-}
+export type PgMigration = Migration;
+export type PgAppliedMigration = AppliedMigration;
 
 export interface PgMigrateResult {
   applied: string[];
@@ -38,65 +28,20 @@ export interface PgMigrateResult {
 /** Advisory lock key held while migrating (an arbitrary constant of this project: "sbmigr" in ASCII). */
 export const MIGRATION_LOCK = 0x73626d69677272;
 
-const MIGRATION_NAME = /^\d{4}_[a-z0-9_]+\.sql$/;
-
-/** migrations/postgres/ of this installation (the nearest ancestor holding package.json and migrations/postgres/). */
+/** migrations/postgres/ of this installation (beside package.json). */
 export function findPostgresMigrationsDir(start = dirname(fileURLToPath(import.meta.url))): string {
-  let dir = resolve(start);
-  for (let i = 0; i < 8; i++) {
-    const candidate = join(dir, 'migrations', 'postgres');
-    if (existsSync(join(dir, 'package.json')) && existsSync(candidate) && statSync(candidate).isDirectory()) return candidate;
-    const parent = dirname(dir);
-    if (parent === dir) break;
-    dir = parent;
-  }
-  throw new MigrationError(`cannot find the migrations/postgres/ folder above ${start}; it ships beside package.json`);
+  return findMigrationsFolder('postgres', start);
 }
 
-export function pgChecksumOf(sql: string): string {
-  return createHash('sha256').update(sql.replace(/\r\n/g, '\n'), 'utf8').digest('hex');
-}
+export const pgChecksumOf = checksumOf;
 
 export function loadPostgresMigrations(dir: string = findPostgresMigrationsDir()): PgMigration[] {
-  const names = readdirSync(dir).filter((f) => f.endsWith('.sql')).sort();
-  return names.map((name) => {
-    if (!MIGRATION_NAME.test(name)) {
-      throw new MigrationError(`migration file name ${name} in ${dir} does not look like 0002_what_it_does.sql (four digits, underscore, lowercase words)`);
-    }
-    const sql = readFileSync(join(dir, name), 'utf8');
-    return { name, sql, checksum: pgChecksumOf(sql) };
-  });
+  return loadMigrationFiles(dir);
 }
 
-/** The migrations still to apply, or a MigrationError describing the first refusal. */
+/** The migrations still to apply, or a MigrationError describing the first refusal (rules: ../migration-files.ts). */
 export function pendingPostgresMigrations(applied: PgAppliedMigration[], migrations: PgMigration[]): PgMigration[] {
-  const byName = new Map(migrations.map((m) => [m.name, m]));
-  for (const row of applied) {
-    const file = byName.get(row.name);
-    if (!file) {
-      throw new MigrationError(
-        `migration ${row.name} was applied to this database but its file is missing from migrations/postgres/; ` +
-          `restore it (applied migrations are append-only) or run the Splitballot release that created this database`,
-      );
-    }
-    if (file.checksum !== row.checksum) {
-      throw new MigrationError(
-        `migration ${row.name} was edited after it was applied to this database (checksum ${row.checksum.slice(0, 12)}… recorded, ` +
-          `${file.checksum.slice(0, 12)}… now); revert the file and put the change in a new migration instead`,
-      );
-    }
-  }
-  const appliedNames = new Set(applied.map((a) => a.name));
-  const lastApplied = applied.length > 0 ? applied[applied.length - 1].name : null;
-  const pending = migrations.filter((m) => !appliedNames.has(m.name));
-  for (const m of pending) {
-    if (lastApplied !== null && m.name < lastApplied) {
-      throw new MigrationError(
-        `migration ${m.name} is new but sorts before ${lastApplied}, which is already applied; rename it so that it sorts after every applied migration`,
-      );
-    }
-  }
-  return pending;
+  return pendingMigrations(applied, migrations, 'migrations/postgres/');
 }
 
 async function readApplied(c: Queryable): Promise<PgAppliedMigration[]> {

@@ -11,60 +11,21 @@
  * ends is not taken for an edit. Migration files must not change PRAGMAs that cannot run inside a
  * transaction (journal_mode); foreign_keys cannot be toggled inside one either.
  */
-import { createHash } from 'node:crypto';
-import { existsSync, readdirSync, readFileSync, statSync } from 'node:fs';
-import { dirname, join, resolve } from 'node:path';
+import { dirname } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import { checksumOf, findMigrationsFolder, loadMigrationFiles, pendingMigrations as pendingOf, type AppliedMigration, type Migration } from '../migration-files.js';
 import { MigrationError } from '../types.js';
 import type { SqliteDatabase } from './open.js';
 
-export interface Migration {
-  name: string;
-  sql: string;
-  checksum: string;
-}
+export { checksumOf, MigrationError, type AppliedMigration, type Migration };
 
-export interface AppliedMigration {
-  name: string;
-  checksum: string;
-  appliedAt: string;
-}
-
-export { MigrationError };
-
-const MIGRATION_NAME = /^\d{4}_[a-z0-9_]+\.sql$/;
-
-/**
- * The SQLite migrations folder of this installation (migrations/sqlite/): found in the nearest ancestor of this
- * module holding package.json (works from server/store/sqlite/ under vitest and from dist/server/store/sqlite/ when built).
- */
+/** The SQLite migrations folder of this installation (migrations/sqlite/ beside package.json). */
 export function findMigrationsDir(start = dirname(fileURLToPath(import.meta.url))): string {
-  let dir = resolve(start);
-  for (let i = 0; i < 6; i++) {
-    const candidate = join(dir, 'migrations', 'sqlite');
-    if (existsSync(join(dir, 'package.json')) && existsSync(candidate) && statSync(candidate).isDirectory()) return candidate;
-    const parent = dirname(dir);
-    if (parent === dir) break;
-    dir = parent;
-  }
-  throw new MigrationError(`cannot find the migrations/sqlite/ folder above ${start}; it ships beside package.json`);
-}
-
-export function checksumOf(sql: string): string {
-  return createHash('sha256').update(sql.replace(/\r\n/g, '\n'), 'utf8').digest('hex');
+  return findMigrationsFolder('sqlite', start);
 }
 
 export function loadMigrations(dir: string = findMigrationsDir()): Migration[] {
-  const names = readdirSync(dir).filter((f) => f.endsWith('.sql')).sort();
-  const out: Migration[] = [];
-  for (const name of names) {
-    if (!MIGRATION_NAME.test(name)) {
-      throw new MigrationError(`migration file name ${name} in ${dir} does not look like 0002_what_it_does.sql (four digits, underscore, lowercase words)`);
-    }
-    const sql = readFileSync(join(dir, name), 'utf8');
-    out.push({ name, sql, checksum: checksumOf(sql) });
-  }
-  return out;
+  return loadMigrationFiles(dir);
 }
 
 function ensureTable(db: SqliteDatabase): void {
@@ -83,38 +44,9 @@ function readApplied(db: SqliteDatabase): AppliedMigration[] {
     .all() as AppliedMigration[];
 }
 
-/**
- * Compare what the database has applied with the files. Returns the migrations still to apply, or throws
- * MigrationError describing the first refusal.
- */
+/** The migrations still to apply, or a MigrationError describing the first refusal (rules: ../migration-files.ts). */
 export function pendingMigrations(applied: AppliedMigration[], migrations: Migration[]): Migration[] {
-  const byName = new Map(migrations.map((m) => [m.name, m]));
-  for (const row of applied) {
-    const file = byName.get(row.name);
-    if (!file) {
-      throw new MigrationError(
-        `migration ${row.name} was applied to this database but its file is missing from migrations/; ` +
-          `restore it (applied migrations are append-only) or run the Splitballot release that created this database`,
-      );
-    }
-    if (file.checksum !== row.checksum) {
-      throw new MigrationError(
-        `migration ${row.name} was edited after it was applied to this database (checksum ${row.checksum.slice(0, 12)}… recorded, ` +
-          `${file.checksum.slice(0, 12)}… now); revert the file and put the change in a new migration instead`,
-      );
-    }
-  }
-  const appliedNames = new Set(applied.map((a) => a.name));
-  const lastApplied = applied.length > 0 ? applied[applied.length - 1].name : null;
-  const pending = migrations.filter((m) => !appliedNames.has(m.name));
-  for (const m of pending) {
-    if (lastApplied !== null && m.name < lastApplied) {
-      throw new MigrationError(
-        `migration ${m.name} is new but sorts before ${lastApplied}, which is already applied; rename it so that it sorts after every applied migration`,
-      );
-    }
-  }
-  return pending;
+  return pendingOf(applied, migrations, 'migrations/');
 }
 
 export interface MigrateResult {
