@@ -5,96 +5,46 @@
  * change of limits cannot slip past a concurrent ingest on another node.
  */
 import type {
-  ConditionRecord,
   CreateExperimentResult,
   ExperimentPatch,
   ExperimentRecord,
   ExperimentRepository,
   MeasureRecord,
-  MeasureRole,
   NewExperiment,
   UpdateExperimentResult,
 } from '../types.js';
+import { experimentRecord, type ConditionRow, type ExperimentRow, type MeasureRow } from '../experiment-rows.js';
 import { notifyChange } from './notifier.js';
 import { lockExperiments, type PostgresDatabase, type Queryable } from './pool.js';
 
-interface ExperimentRow {
-  id: number;
-  slug: string;
-  title: string;
-  status: 'open' | 'closed';
-  planned_per_condition: number | null;
-  alpha: number;
-  thank_you_url: string | null;
-  options: Record<string, unknown>;
-  data_version: number;
-  created_at: string;
-  updated_at: string;
-}
-
-interface ConditionRow {
-  id: number;
-  experiment_id: number;
-  slug: string;
-  label: string;
-  position: number;
-  response_count: number;
-  excluded_count: number;
-}
-
-interface MeasureRow {
-  id: number;
-  experiment_id: number;
-  slug: string;
-  label: string;
-  min: number;
-  max: number;
-  is_integer: boolean;
-  required: boolean;
-  position: number;
-  role: MeasureRole;
-}
+type PgExperimentRow = ExperimentRow<Record<string, unknown>>;
+type PgConditionRow = ConditionRow & { experiment_id: number };
+type PgMeasureRow = MeasureRow & { experiment_id: number };
 
 /** Read experiments (by a WHERE on `e`) with their conditions and measures, inside the caller's transaction. */
 export async function readExperiments(c: Queryable, where: string, params: unknown[]): Promise<ExperimentRecord[]> {
-  const rows = (await c.query<ExperimentRow>(`SELECT * FROM experiments e ${where} ORDER BY e.id`, params)).rows;
+  const rows = (await c.query<PgExperimentRow>(`SELECT * FROM experiments e ${where} ORDER BY e.id`, params)).rows;
   if (rows.length === 0) return [];
   const keys = rows.map((r) => r.id);
   const conditions = (
-    await c.query<ConditionRow>(
+    await c.query<PgConditionRow>(
       `SELECT id, experiment_id, slug, label, position, response_count, excluded_count FROM conditions WHERE experiment_id = ANY($1::bigint[]) ORDER BY experiment_id, position`,
       [keys],
     )
   ).rows;
   const measures = (
-    await c.query<MeasureRow>(
+    await c.query<PgMeasureRow>(
       `SELECT id, experiment_id, slug, label, min, max, is_integer, required, position, role FROM measures WHERE experiment_id = ANY($1::bigint[]) ORDER BY experiment_id, position`,
       [keys],
     )
   ).rows;
-  return rows.map((row) => {
-    const conds: ConditionRecord[] = conditions
-      .filter((x) => x.experiment_id === row.id)
-      .map((x) => ({ key: x.id, id: x.slug, label: x.label, position: x.position, responses: x.response_count, excluded: x.excluded_count }));
-    const meas: MeasureRecord[] = measures
-      .filter((m) => m.experiment_id === row.id)
-      .map((m) => ({ key: m.id, id: m.slug, label: m.label, min: m.min, max: m.max, integer: m.is_integer, required: m.required, position: m.position, role: m.role }));
-    return {
-      key: row.id,
-      id: row.slug,
-      title: row.title,
-      status: row.status,
-      plannedPerCondition: row.planned_per_condition,
-      alpha: row.alpha,
-      thankYouUrl: row.thank_you_url,
-      options: row.options,
-      dataVersion: row.data_version,
-      createdAt: row.created_at,
-      updatedAt: row.updated_at,
-      conditions: conds,
-      measures: meas,
-    };
-  });
+  return rows.map((row) =>
+    experimentRecord(
+      row,
+      conditions.filter((x) => x.experiment_id === row.id),
+      measures.filter((m) => m.experiment_id === row.id),
+    ),
+  );
 }
 
 export class PostgresExperimentRepository implements ExperimentRepository {

@@ -3,53 +3,17 @@
  * conditions and measures in definition order. Per-condition counts come from counters that the ingest
  * transaction maintains (conditions.response_count / excluded_count), never from counting rows.
  */
+import { experimentRecord, type ConditionRow, type ExperimentRow, type MeasureRow } from '../experiment-rows.js';
 import type { SqliteDatabase } from './open.js';
 import type {
-  ConditionRecord,
   CreateExperimentResult,
   ExperimentPatch,
   ExperimentRecord,
   ExperimentRepository,
   MeasureRecord,
-  MeasureRole,
   NewExperiment,
   UpdateExperimentResult,
 } from '../types.js';
-
-interface ExperimentRow {
-  id: number;
-  slug: string;
-  title: string;
-  status: 'open' | 'closed';
-  planned_per_condition: number | null;
-  alpha: number;
-  thank_you_url: string | null;
-  options: string;
-  data_version: number;
-  created_at: string;
-  updated_at: string;
-}
-
-interface ConditionRow {
-  id: number;
-  slug: string;
-  label: string;
-  position: number;
-  response_count: number;
-  excluded_count: number;
-}
-
-interface MeasureRow {
-  id: number;
-  slug: string;
-  label: string;
-  min: number;
-  max: number;
-  is_integer: number;
-  required: number;
-  position: number;
-  role: MeasureRole;
-}
 
 /** Synchronous reads shared with the other SQLite repositories (they run inside their transactions). */
 export class ExperimentReader {
@@ -72,41 +36,10 @@ export class ExperimentReader {
   }
 
   private toRecord(row: ExperimentRow): ExperimentRecord {
-    const conditions: ConditionRecord[] = this.conditionsOf.all(row.id).map((c) => ({
-      key: c.id,
-      id: c.slug,
-      label: c.label,
-      position: c.position,
-      responses: c.response_count,
-      excluded: c.excluded_count,
-    }));
-    const measures: MeasureRecord[] = this.measuresOf.all(row.id).map((m) => ({
-      key: m.id,
-      id: m.slug,
-      label: m.label,
-      min: m.min,
-      max: m.max,
-      integer: m.is_integer === 1,
-      required: m.required === 1,
-      position: m.position,
-      role: m.role,
-    }));
-    return {
-      key: row.id,
-      id: row.slug,
-      title: row.title,
-      status: row.status,
-      plannedPerCondition: row.planned_per_condition,
-      alpha: row.alpha,
-      thankYouUrl: row.thank_you_url,
-      options: JSON.parse(row.options) as Record<string, unknown>,
-      dataVersion: row.data_version,
-      createdAt: row.created_at,
-      updatedAt: row.updated_at,
-      conditions,
-      measures,
-    };
+    const options = JSON.parse(row.options) as Record<string, unknown>;
+    return experimentRecord({ ...row, options }, this.conditionsOf.all(row.id), this.measuresOf.all(row.id));
   }
+
 
   getBySlug(slug: string): ExperimentRecord | null {
     const row = this.bySlug.get(slug);
