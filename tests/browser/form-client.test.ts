@@ -19,8 +19,7 @@
  *
  * When Chromium is missing the tests are skipped and a banner says so.
  */
-import { execFileSync } from 'node:child_process';
-import { existsSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
 import { createServer, type Server } from 'node:http';
 import type { AddressInfo } from 'node:net';
 import { tmpdir } from 'node:os';
@@ -29,6 +28,7 @@ import { fileURLToPath } from 'node:url';
 import { chromium, type BrowserContext, type Page, type Route } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { startTestApp, waterBillDefinition, WATER_ID, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, CHROMIUM_ARGS, warnWithoutChromium } from '../helpers/browser.js';
 
 const ROOT = fileURLToPath(new URL('../../', import.meta.url));
 const EXAMPLE = readFileSync(join(ROOT, 'docs', 'examples', 'survey-page.html'), 'utf8');
@@ -37,26 +37,9 @@ const CHANGING_ID = 'water-limits-change';
 const SAVED = 'Saved, will send when back online.';
 const THANKS = 'Thank you: your answers were received.';
 
-function findChromium(): string | null {
-  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
-  try {
-    const found = execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim();
-    return found || null;
-  } catch {
-    return null;
-  }
-}
+warnWithoutChromium('tests/browser/form-client.test.ts');
 
-const CHROMIUM = findChromium();
-if (!CHROMIUM) {
-  const line = '!'.repeat(100);
-  console.warn(
-    `\n${line}\n!! SKIPPED tests/browser/form-client.test.ts: Chromium was not found (looked for /usr/bin/chromium and "chromium" on PATH).\n` +
-      `!! Install it with: apt-get install -y chromium   (.ci/run does this, so CI always runs the browser test)\n${line}\n`,
-  );
-}
-
-const LAUNCH_ARGS = ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'];
+const LAUNCH_ARGS = CHROMIUM_ARGS;
 
 /** Serves the example page (with this service, study and key filled in) and a copy of the client, on two ports. */
 class PageServer {

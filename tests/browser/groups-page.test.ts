@@ -9,30 +9,17 @@
  * equivalence number equals the pairwise comparison's; the verdict sentence is the API's; no script or CSP
  * errors. Screenshots: test-output/results-page-groups*.png (git-ignored).
  */
-import { execFileSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, openChromium, TEST_OUTPUT, warnWithoutChromium, type ChromiumSession } from '../helpers/browser.js';
 
-const ROOT = fileURLToPath(new URL('../..', import.meta.url));
-const OUTPUT = join(ROOT, 'test-output');
+const OUTPUT = TEST_OUTPUT;
 const ID = 'water-letter-2027';
 
-function findChromium(): string | null {
-  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
-  try {
-    return execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim() || null;
-  } catch {
-    return null;
-  }
-}
-const CHROMIUM = findChromium();
-if (!CHROMIUM) console.warn('!! SKIPPED tests/browser/groups-page.test.ts: Chromium was not found (apt-get install -y chromium).');
+warnWithoutChromium('tests/browser/groups-page.test.ts');
 
 const CONDITIONS = ['plain', 'bill-chart', 'neighbours'];
 
@@ -56,9 +43,8 @@ describe.skipIf(!CHROMIUM)('results page with three conditions and a margin', ()
   let t: TestApp;
   let base: string;
   let readKey: string;
-  let context: BrowserContext;
   let page: Page;
-  let profile: string;
+  let session: ChromiumSession | undefined;
   const problems: string[] = [];
 
   beforeAll(async () => {
@@ -88,24 +74,12 @@ describe.skipIf(!CHROMIUM)('results page with three conditions and a margin', ()
     await t.app.listen({ port: 0, host: '127.0.0.1' });
     const addr = t.app.server.address();
     base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
-    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
-    context = await chromium.launchPersistentContext(profile, {
-      executablePath: CHROMIUM!,
-      headless: true,
-      viewport: { width: 1280, height: 900 },
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-    });
-    page = context.pages()[0] ?? (await context.newPage());
-    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
-    page.on('console', (msg) => {
-      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
-    });
-    mkdirSync(OUTPUT, { recursive: true });
+    session = await openChromium(problems, { viewport: { width: 1280, height: 900 } });
+    page = session.page;
   }, 60_000);
 
   afterAll(async () => {
-    await context?.close();
-    if (profile) rmSync(profile, { recursive: true, force: true });
+    await session?.close();
     await t?.close();
   });
 

@@ -3,28 +3,16 @@
  * equal to GET /v1/overview formatted by server/pages/format.js, sorting by a column, the link to a study's page, and
  * a response posted during the test arriving through the conditional poll. Screenshot: test-output/overview.png.
  */
-import { execFileSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, openChromium, TEST_OUTPUT, warnWithoutChromium, type ChromiumSession } from '../helpers/browser.js';
 
-const OUTPUT = join(fileURLToPath(new URL('../..', import.meta.url)), 'test-output');
+const OUTPUT = TEST_OUTPUT;
 
-function findChromium(): string | null {
-  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
-  try {
-    return execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim() || null;
-  } catch {
-    return null;
-  }
-}
-const CHROMIUM = findChromium();
-if (!CHROMIUM) console.warn('\n!! SKIPPED tests/browser/overview.test.ts: Chromium was not found (apt-get install -y chromium)\n');
+warnWithoutChromium('tests/browser/overview.test.ts');
 
 // Three invented water-utility studies: one with a primary outcome, one without, one closed.
 const studies = [
@@ -54,9 +42,8 @@ describe.skipIf(!CHROMIUM)('the team overview in Chromium', () => {
   let t: TestApp;
   let base: string;
   let readKey: string;
-  let context: BrowserContext;
   let page: Page;
-  let profile: string;
+  let session: ChromiumSession | undefined;
   const problems: string[] = [];
 
   beforeAll(async () => {
@@ -71,24 +58,12 @@ describe.skipIf(!CHROMIUM)('the team overview in Chromium', () => {
     await t.app.listen({ port: 0, host: '127.0.0.1' });
     const addr = t.app.server.address();
     base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
-    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
-    context = await chromium.launchPersistentContext(profile, {
-      executablePath: CHROMIUM!,
-      headless: true,
-      viewport: { width: 1280, height: 900 },
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-    });
-    page = context.pages()[0] ?? (await context.newPage());
-    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
-    page.on('console', (msg) => {
-      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
-    });
-    mkdirSync(OUTPUT, { recursive: true });
+    session = await openChromium(problems, { viewport: { width: 1280, height: 900 } });
+    page = session.page;
   }, 90_000);
 
   afterAll(async () => {
-    await context?.close();
-    if (profile) rmSync(profile, { recursive: true, force: true });
+    await session?.close();
     await t?.close();
   });
 

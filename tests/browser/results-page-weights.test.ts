@@ -5,20 +5,18 @@
  * and the covariate is listed apart, not compared. Invented water-utility data with invented design weights.
  * Skipped (with the same banner as the other browser test) when Chromium is missing.
  */
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { mkdirSync } from 'node:fs';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, openChromium, TEST_OUTPUT, warnWithoutChromium, type ChromiumSession } from '../helpers/browser.js';
 
-const CHROMIUM = ['/usr/bin/chromium', '/usr/bin/chromium-browser'].find((p) => existsSync(p)) ?? null;
-if (!CHROMIUM) console.warn('!! SKIPPED tests/browser/results-page-weights.test.ts: Chromium was not found (apt-get install -y chromium)');
+warnWithoutChromium('tests/browser/results-page-weights.test.ts');
 
 const ID = 'water-weighted-2027';
-const OUTPUT = join(fileURLToPath(new URL('../..', import.meta.url)), 'test-output');
+const OUTPUT = TEST_OUTPUT;
 
 function seed(n: number) {
   return Array.from({ length: n }, (_, i) => {
@@ -36,9 +34,8 @@ describe.skipIf(!CHROMIUM)('results page with weights and covariates', () => {
   let t: TestApp;
   let base: string;
   let readKey: string;
-  let context: BrowserContext;
   let page: Page;
-  let profile: string;
+  let session: ChromiumSession | undefined;
   const problems: string[] = [];
 
   beforeAll(async () => {
@@ -65,23 +62,12 @@ describe.skipIf(!CHROMIUM)('results page with weights and covariates', () => {
     const addr = t.app.server.address();
     base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
     mkdirSync(OUTPUT, { recursive: true });
-    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
-    context = await chromium.launchPersistentContext(profile, {
-      executablePath: CHROMIUM!,
-      headless: true,
-      viewport: { width: 1280, height: 900 },
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-    });
-    page = context.pages()[0] ?? (await context.newPage());
-    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
-    page.on('console', (msg) => {
-      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
-    });
+    session = await openChromium(problems, { viewport: { width: 1280, height: 900 } });
+    page = session.page;
   }, 60_000);
 
   afterAll(async () => {
-    await context?.close();
-    if (profile) rmSync(profile, { recursive: true, force: true });
+    await session?.close();
     await t?.close();
   });
 

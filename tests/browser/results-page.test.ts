@@ -10,39 +10,21 @@
  *
  * When Chromium is missing the tests are skipped and a banner says so (.ci/run installs it, so CI always runs them).
  */
-import { execFileSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, WATER_ID, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, openChromium, TEST_OUTPUT, warnWithoutChromium, type ChromiumSession } from '../helpers/browser.js';
 
 const ROOT = fileURLToPath(new URL('../..', import.meta.url));
-const OUTPUT = join(ROOT, 'test-output');
+const OUTPUT = TEST_OUTPUT;
 const README_SCREENSHOT = join(ROOT, 'server', 'pages', 'screenshot.png');
 const MEASURES = ['satisfaction', 'trust', 'fair_price'];
 
-function findChromium(): string | null {
-  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
-  try {
-    const found = execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim();
-    return found || null;
-  } catch {
-    return null;
-  }
-}
 
-const CHROMIUM = findChromium();
-if (!CHROMIUM) {
-  const line = '!'.repeat(100);
-  console.warn(
-    `\n${line}\n!! SKIPPED tests/browser/results-page.test.ts: Chromium was not found (looked for /usr/bin/chromium and "chromium" on PATH).\n` +
-      `!! Install it with: apt-get install -y chromium   (.ci/run does this, so CI always runs the browser test)\n${line}\n`,
-  );
-}
+warnWithoutChromium('tests/browser/results-page.test.ts');
 
 /** Deterministic invented answers (bill-first a little lower), with a few extreme fair prices. */
 function seedResponses(n: number) {
@@ -65,9 +47,8 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
   let t: TestApp;
   let base: string;
   let readKey: string;
-  let context: BrowserContext;
   let page: Page;
-  let profile: string;
+  let session: ChromiumSession | undefined;
   const problems: string[] = [];
 
   beforeAll(async () => {
@@ -82,24 +63,12 @@ describe.skipIf(!CHROMIUM)('results page in Chromium', () => {
     await t.app.listen({ port: 0, host: '127.0.0.1' });
     const addr = t.app.server.address();
     base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
-    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
-    context = await chromium.launchPersistentContext(profile, {
-      executablePath: CHROMIUM!,
-      headless: true,
-      viewport: { width: 1280, height: 900 },
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-    });
-    page = context.pages()[0] ?? (await context.newPage());
-    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
-    page.on('console', (msg) => {
-      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
-    });
-    mkdirSync(OUTPUT, { recursive: true });
+    session = await openChromium(problems, { viewport: { width: 1280, height: 900 } });
+    page = session.page;
   }, 60_000);
 
   afterAll(async () => {
-    await context?.close();
-    if (profile) rmSync(profile, { recursive: true, force: true });
+    await session?.close();
     await t?.close();
   });
 

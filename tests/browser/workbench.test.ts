@@ -5,30 +5,18 @@
  * check against stats/ on the reduced data and against R), ISO 8601 times, and the download buttons whose saved
  * files are byte for byte the API's exports. Screenshots: test-output/workbench*.png (git-ignored).
  */
-import { execFileSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, readFileSync, rmSync } from 'node:fs';
-import { tmpdir } from 'node:os';
+import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { fileURLToPath } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { formatByKind, readPath } from '../../server/pages/format.js';
 import { startTestApp, type TestApp } from '../helpers/app.js';
+import { CHROMIUM, openChromium, TEST_OUTPUT, warnWithoutChromium, type ChromiumSession } from '../helpers/browser.js';
 
-const ROOT = fileURLToPath(new URL('../..', import.meta.url));
-const OUTPUT = join(ROOT, 'test-output');
+const OUTPUT = TEST_OUTPUT;
 const STUDY = 'water-tariff-2027';
 
-function findChromium(): string | null {
-  for (const p of ['/usr/bin/chromium', '/usr/bin/chromium-browser']) if (existsSync(p)) return p;
-  try {
-    return execFileSync('sh', ['-c', 'command -v chromium || command -v chromium-browser'], { encoding: 'utf8' }).trim() || null;
-  } catch {
-    return null;
-  }
-}
-const CHROMIUM = findChromium();
-if (!CHROMIUM) console.warn('\n!! SKIPPED tests/browser/workbench.test.ts: Chromium was not found (apt-get install -y chromium)\n');
+warnWithoutChromium('tests/browser/workbench.test.ts');
 
 // The invented water-utility survey, tariff wording variant: the main 0–100 item is declared after a second outcome
 // (so "primary first" is visible), with a handful of answers near the top in one condition; an optional process measure.
@@ -65,9 +53,8 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
   let t: TestApp;
   let base: string;
   let readKey: string;
-  let context: BrowserContext;
   let page: Page;
-  let profile: string;
+  let session: ChromiumSession | undefined;
   const problems: string[] = [];
 
   beforeAll(async () => {
@@ -84,20 +71,8 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
     await t.app.listen({ port: 0, host: '127.0.0.1' });
     const addr = t.app.server.address();
     base = `http://127.0.0.1:${typeof addr === 'object' && addr ? addr.port : 0}`;
-    profile = mkdtempSync(join(tmpdir(), 'splitballot-chromium-'));
-    context = await chromium.launchPersistentContext(profile, {
-      executablePath: CHROMIUM!,
-      headless: true,
-      acceptDownloads: true,
-      viewport: { width: 1280, height: 900 },
-      args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking', '--disable-component-update', '--disable-sync'],
-    });
-    page = context.pages()[0] ?? (await context.newPage());
-    page.on('pageerror', (err) => problems.push(`page error: ${err.message}`));
-    page.on('console', (msg) => {
-      if (msg.type() === 'error') problems.push(`console error: ${msg.text()}`);
-    });
-    mkdirSync(OUTPUT, { recursive: true });
+    session = await openChromium(problems, { acceptDownloads: true, viewport: { width: 1280, height: 900 } });
+    page = session.page;
     await page.goto(`${base}/experiments/${STUDY}`);
     await page.locator('#key-input').fill(readKey);
     await page.locator('#key-submit').click();
@@ -105,8 +80,7 @@ describe.skipIf(!CHROMIUM)('the workbench parts of the results page in Chromium'
   }, 90_000);
 
   afterAll(async () => {
-    await context?.close();
-    if (profile) rmSync(profile, { recursive: true, force: true });
+    await session?.close();
     await t?.close();
   });
 
