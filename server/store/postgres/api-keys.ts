@@ -2,43 +2,12 @@
  * API keys (PostgreSQL). Only SHA-256 hashes of secrets are stored. syncEnvironmentKey runs under a transaction
  * advisory lock, so two processes starting at once with the same SPLITBALLOT_ADMIN_KEY do not both insert it.
  */
-import type { ApiKeyRecord, ApiKeyRepository, NewApiKey, Scope } from '../types.js';
+import type { ApiKeyRecord, ApiKeyRepository, NewApiKey } from '../types.js';
+import { apiKeyRecord as toRecord, SELECT_KEYS, type KeyRow } from '../api-key-rows.js';
 import { toBuffer, type PostgresDatabase } from './pool.js';
 
 /** Advisory lock (two-int form) namespaces of this store. */
 export const LOCK_NAMESPACE = { environmentKey: 0x5342_0001, assignment: 0x5342_0002 } as const;
-
-interface KeyRow {
-  id: number;
-  hash: Buffer;
-  scope: Exclude<Scope, 'form'>;
-  /** 1 for a public form key (stored as scope 'ingest', see migrations/postgres/0006_form_keys.sql). */
-  form: number;
-  experiment_id: number | null;
-  experiment: string | null;
-  label: string;
-  origin: ApiKeyRecord['origin'];
-  created_at: string;
-  revoked_at: string | null;
-  last_used_at: string | null;
-}
-
-const SELECT_KEYS = `SELECT k.id, k.hash, k.scope, k.form, k.experiment_id, e.slug AS experiment, k.label, k.origin,
-  k.created_at, k.revoked_at, k.last_used_at FROM api_keys k LEFT JOIN experiments e ON e.id = k.experiment_id`;
-
-function toRecord(row: KeyRow): ApiKeyRecord {
-  return {
-    id: row.id,
-    scope: row.form === 1 ? 'form' : row.scope,
-    experiment: row.experiment,
-    experimentKey: row.experiment_id,
-    label: row.label,
-    origin: row.origin,
-    createdAt: row.created_at,
-    revokedAt: row.revoked_at,
-    lastUsedAt: row.last_used_at,
-  };
-}
 
 export class PostgresApiKeyRepository implements ApiKeyRepository {
   constructor(private readonly db: PostgresDatabase) {}
