@@ -14,9 +14,11 @@
 import type { BulkImport, BulkRepository, ExportRow, IngestOutcome, ValidResponse } from '../types.js';
 import { ingestLocked, type ExperimentLockState } from './responses.js';
 import { lockExperiments, mapError, type PostgresDatabase } from './pool.js';
+import { exportRow, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from '../response-rows.js';
 
 /** One exported response (the port's ExportRow). */
 export type PgExportRow = ExportRow;
+
 
 /** An open all-or-nothing import transaction. add() each chunk, then exactly one of commit() or rollback(). */
 export interface PgBulkImport extends BulkImport {
@@ -37,18 +39,8 @@ export async function* exportResponsePagesPostgres(
   while (after < last) {
     const page = await db.snapshot(async (c) => {
       const rows = (
-        await c.query<{
-          id: number;
-          response_id: string;
-          condition: string;
-          respondent: string | null;
-          submitted_at: string;
-          received_at: string;
-          excluded: number;
-          excluded_reason: string | null;
-          weight: number | null;
-        }>(
-          `SELECT r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason, r.weight
+        await c.query<StoredResponseRow>(
+          `SELECT ${STORED_RESPONSE_COLUMNS}
            FROM responses r JOIN conditions c ON c.id = r.condition_id
            WHERE r.experiment_id = $1 AND r.id > $2 AND r.id <= $3 ORDER BY r.id LIMIT $4`,
           [experimentKey, after, last, pageSize],
@@ -57,17 +49,7 @@ export async function* exportResponsePagesPostgres(
       if (rows.length === 0) return [];
       const byId = new Map<number, PgExportRow>();
       const out = rows.map((r) => {
-        const row: PgExportRow = {
-          responseId: r.response_id,
-          condition: r.condition,
-          respondent: r.respondent,
-          submittedAt: r.submitted_at,
-          receivedAt: r.received_at,
-          excluded: r.excluded === 1,
-          excludedReason: r.excluded_reason,
-          weight: r.weight,
-          values: new Array<number | null>(measureKeys.length).fill(null),
-        };
+        const row = exportRow(r, measureKeys.length);
         byId.set(r.id, row);
         return row;
       });

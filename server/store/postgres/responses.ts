@@ -50,10 +50,11 @@ import {
   type WeightedValues,
 } from '../types.js';
 import { addRejectedWeights, readAdjustmentRows, readRejectedWeights, readWeightedSnapshot } from './responses-weights.js';
-import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-runs-cache.js';
+import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, type SortedRun } from '../sorted-runs-cache.js';
 import { recordAudit, redactAudit } from './audit.js';
 import { notifyChange } from './notifier.js';
 import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type Queryable } from './pool.js';
+import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
 
 /** Most single-response requests written in one group commit. */
 export const GROUP_COMMIT_MAX = 256;
@@ -502,18 +503,8 @@ export class PostgresResponseRepository implements ResponseRepository {
   async getStored(experimentKey: number, responseId: string): Promise<StoredResponse | null> {
     return this.db.snapshot(async (c) => {
       const row = (
-        await c.query<{
-          id: number;
-          response_id: string;
-          condition: string;
-          respondent: string | null;
-          submitted_at: string;
-          received_at: string;
-          excluded: number;
-          excluded_reason: string | null;
-          weight: number | null;
-        }>(
-          `SELECT r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason, r.weight
+        await c.query<StoredResponseRow>(
+          `SELECT ${STORED_RESPONSE_COLUMNS}
            FROM responses r JOIN conditions c ON c.id = r.condition_id WHERE r.experiment_id = $1 AND r.response_id = $2`,
           [experimentKey, responseId],
         )
@@ -525,17 +516,7 @@ export class PostgresResponseRepository implements ResponseRepository {
         [row.id],
       );
       for (const v of vs.rows) values[v.measure] = v.value;
-      return {
-        responseId: row.response_id,
-        condition: row.condition,
-        respondent: row.respondent,
-        values,
-        weight: row.weight,
-        submittedAt: row.submitted_at,
-        receivedAt: row.received_at,
-        excluded: row.excluded === 1,
-        excludedReason: row.excluded_reason,
-      };
+      return storedResponse(row, values);
     });
   }
 
@@ -769,7 +750,6 @@ export class PostgresResponseRepository implements ResponseRepository {
       ).rows;
       let dataVersion = state.dataVersion;
       if (rows.length > 0) {
-        const ids = rows.map((r) => r.id);
         // Counts are decremented per (measure, condition, excluded, value) with the number of erased answers there.
         await eraseRows(c, experimentKey, rows);
         dataVersion = await bumpDataVersion(c, experimentKey);

@@ -14,7 +14,7 @@
  *    dataVersion) stays in the one place that keeps it, SqliteResponseRepository. dataVersion moves by one per
  *    chunk, all committed together.
  */
-import { STORED_RESPONSE_COLUMNS, type StoredResponseRow } from './responses.js';
+import { exportRow, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from '../response-rows.js';
 import type { SqliteDatabase } from './open.js';
 import type { SqliteResponseRepository } from './responses.js';
 import type { BulkImport, BulkRepository, ExportRow } from '../types.js';
@@ -70,17 +70,7 @@ export async function* exportResponsePages(
     if (rows.length === 0) return [];
     const byId = new Map<number, ExportRow>();
     const out: ExportRow[] = rows.map((r) => {
-      const row: ExportRow = {
-        responseId: r.response_id,
-        condition: r.condition,
-        respondent: r.respondent,
-        submittedAt: r.submitted_at,
-        receivedAt: r.received_at,
-        excluded: r.excluded === 1,
-        excludedReason: r.excluded_reason,
-        weight: r.weight,
-        values: new Array<number | null>(measureKeys.length).fill(null),
-      };
+      const row = exportRow(r, measureKeys.length);
       byId.set(r.id, row);
       return row;
     });

@@ -8,6 +8,7 @@ import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-runs-cache.js';
 import type { SqliteDatabase } from './open.js';
+import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
 import type {
   ComparisonStamp,
   ConditionCounter,
@@ -58,25 +59,6 @@ export function mergeSorted(a: Float64Array, b: Float64Array): Float64Array {
 
 export const NEW_VALUES_OF_RUN_SQL = `SELECT value FROM response_values
   WHERE response_id > ? AND response_id <= ? AND +measure_id = ? AND +condition_id = ? AND +excluded = ?`;
-
-/** One stored response with its condition's slug (values apart), as read by getStored and by the CSV export. */
-
-export interface StoredResponseRow {
-  id: number;
-  response_id: string;
-  condition: string;
-  respondent: string | null;
-  submitted_at: string;
-  received_at: string;
-  excluded: number;
-  excluded_reason: string | null;
-  weight: number | null;
-}
-
-/** The columns of a StoredResponseRow, from `responses r JOIN conditions c ON c.id = r.condition_id`. */
-
-export const STORED_RESPONSE_COLUMNS =
-  'r.id, r.response_id, c.slug AS condition, r.respondent, r.submitted_at, r.received_at, r.excluded, r.excluded_reason, r.weight';
 
 /** Most single-response requests written in one group commit. */
 
@@ -210,17 +192,7 @@ export class SqliteResponseReads implements SortedRunsReader {
       if (!row) return null;
       const values: Record<string, number> = {};
       for (const v of this.storedValues.all(row.id)) values[v.measure] = v.value;
-      return {
-        responseId: row.response_id,
-        condition: row.condition,
-        respondent: row.respondent,
-        values,
-        weight: row.weight,
-        submittedAt: row.submitted_at,
-        receivedAt: row.received_at,
-        excluded: row.excluded === 1,
-        excludedReason: row.excluded_reason,
-      };
+      return storedResponse(row, values);
     })();
   }
 

@@ -56,7 +56,7 @@ import type {
 import { SqliteWeightReads } from './responses-weights.js';
 
 export { GROUP_COMMIT_MAX, ID_LOOKUP_CHUNK, RESPONSE_ROWS_PER_INSERT, VALUE_ROWS_PER_INSERT } from './responses-ingest.js';
-export { INCREMENTAL_MAX_SHARE, INCREMENTAL_MIN_ROWS, mergeSorted, NEW_VALUES_OF_RUN_SQL, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from './responses-reads.js';
+export { INCREMENTAL_MAX_SHARE, INCREMENTAL_MIN_ROWS, mergeSorted, NEW_VALUES_OF_RUN_SQL } from './responses-reads.js';
 
 export class SqliteResponseRepository implements ResponseRepository, SortedRunsReader {
   private readonly writer: SqliteIngestWriter;
