@@ -1,7 +1,7 @@
 /** Schemas of the bulk clean-up route (exclude or erase the answers of a time window and/or an API key). */
 import { z } from 'zod';
+import { NO_CONTROL_CHARS } from './common.js';
 
-const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]*$/;
 const instant = z.iso
   .datetime({ offset: true, message: 'must be an ISO 8601 date-time with a time zone, e.g. 2027-03-01T12:00:00Z' })
   .describe('Compared with each response\'s receivedAt (inclusive)');

@@ -10,6 +10,12 @@ export const Slug = z
   .string()
   .regex(SLUG_PATTERN, 'must be a lowercase slug: a–z, 0–9, "_" or "-", starting with a letter or digit, at most 64 characters');
 
+/** No control characters (U+0000–U+001F, U+007F): refused in every text the service stores or looks up (PostgreSQL text cannot even hold U+0000). */
+export const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]*$/;
+
+/** An experiment, measure or condition id as given in a path or query: only looked up; at most 200 characters, no control characters. */
+export const PathId = z.string().max(200).regex(NO_CONTROL_CHARS, 'must not contain control characters');
+
 export const FieldErrorSchema = z
   .object({
     path: z.string().describe('Where the problem is, e.g. "values.satisfaction" or "responses[3].values.trust"; "" for the whole body'),

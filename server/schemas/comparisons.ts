@@ -5,6 +5,7 @@
  * only declared fields, so a field missing here would silently vanish from the reply).
  */
 import { z } from 'zod';
+import { PathId } from './common.js';
 import { MonitoringSchema } from './monitoring.js';
 import { EquivalenceSchema, MarginQuery } from './equivalence.js';
 import { AdjustedBlockSchema, WeightedBlockSchema } from './weighted.js';
@@ -217,11 +218,11 @@ const commonQuery = {
   includeExcluded,
 };
 
-export const ComparisonParams = z.object({ id: z.string().max(200), measure: z.string().max(200) });
+export const ComparisonParams = z.object({ id: PathId, measure: PathId });
 
 export const ComparisonQuery = z.strictObject({
-  a: z.string().max(200).optional().describe('Condition id; defaults to the first condition when the experiment has exactly two'),
-  b: z.string().max(200).optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
+  a: PathId.optional().describe('Condition id; defaults to the first condition when the experiment has exactly two'),
+  b: PathId.optional().describe('Condition id; defaults to the other condition when the experiment has exactly two'),
   ...commonQuery,
   margin: MarginQuery,
   covariates: z

@@ -1,18 +1,18 @@
 /** Schemas of the exclusion, erasure and audit routes. */
 import { z } from 'zod';
+import { NO_CONTROL_CHARS, PathId } from './common.js';
 import { RESPONSE_ID_PATTERN } from './responses.js';
 
 export const ResponseParams = z.object({
-  id: z.string().max(200),
+  id: PathId,
   responseId: z.string().regex(RESPONSE_ID_PATTERN, 'is not a valid responseId').describe('The responseId given (or generated) at ingest'),
 });
 
 export const RespondentParams = z.object({
-  id: z.string().max(200),
-  respondent: z.string().min(1).max(256).describe('The respondent reference sent with the responses (URL-encoded)'),
+  id: PathId,
+  respondent: z.string().min(1).max(256).regex(NO_CONTROL_CHARS, 'must not contain control characters').describe('The respondent reference sent with the responses (URL-encoded)'),
 });
 
-const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]*$/;
 
 export const ExclusionInputSchema = z
   .strictObject({

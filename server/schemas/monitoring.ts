@@ -3,8 +3,8 @@
  * and balanced assignment.
  */
 import { z } from 'zod';
+import { NO_CONTROL_CHARS, PathId } from './common.js';
 
-const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]+$/;
 
 // ---------------------------------------------------------------------------------------------------------
 // Monitoring block (part of every comparison)
@@ -78,7 +78,7 @@ export const MonitoringSchema = z
 // Looks
 // ---------------------------------------------------------------------------------------------------------
 
-export const MeasureParams = z.object({ id: z.string().max(200), measure: z.string().max(200) });
+export const MeasureParams = z.object({ id: PathId, measure: PathId });
 
 export const LookInputSchema = z
   .strictObject({
@@ -110,7 +110,7 @@ export const LookListSchema = z
   .meta({ id: 'InterimLookList' });
 
 export const LookListQuery = z.strictObject({
-  measure: z.string().max(200).optional().describe('Only looks of this measure'),
+  measure: PathId.optional().describe('Only looks of this measure'),
 });
 
 export const PairQuery = z.strictObject({

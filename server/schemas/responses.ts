@@ -1,5 +1,6 @@
 /** Schemas of the ingest routes: one response, a batch, and what the service answers. */
 import { z } from 'zod';
+import { NO_CONTROL_CHARS, PathId } from './common.js';
 
 /** Name of the form field that may carry an ingest key (never an admin or read key). */
 export const FORM_KEY_FIELD = 'ingestKey';
@@ -15,7 +16,6 @@ export const MAX_BATCH_ITEMS = 10_000;
 export const SINGLE_BODY_LIMIT = 1024 * 1024;
 export const BATCH_BODY_LIMIT = 16 * 1024 * 1024;
 
-const NO_CONTROL_CHARS = /^[^\u0000-\u001f\u007f]+$/;
 
 export const ResponseInputSchema = z
   .strictObject({
@@ -92,4 +92,4 @@ export const BatchResultSchema = z
   })
   .meta({ id: 'BatchResult' });
 
-export const ExperimentParams = z.object({ id: z.string().max(200) });
+export const ExperimentParams = z.object({ id: PathId });

@@ -112,4 +112,16 @@ describe('DELETE /v1/experiments/{id}/respondents/{respondent}', () => {
     expect((await t.request({ method: 'DELETE', url: `${base}/respondents/person-4`, key: null })).statusCode).toBe(401);
     expect((await t.request({ method: 'GET', url: base })).json().dataVersion).toBe(1);
   });
+
+  it('a control character in a path id (a respondent, an experiment) is a 400 problem naming it, never a database error; nothing changes', async () => {
+    await seed();
+    for (const url of [`${base}/respondents/a%00b`, `${base}/respondents/%1B`, '/v1/experiments/wat%00er/respondents/anna']) {
+      const res = await t.request({ method: 'DELETE', url });
+      expect(res.statusCode, url).toBe(400);
+      expect(res.headers['content-type']).toMatch(/^application\/problem\+json/);
+      expect(res.json().errors[0].message, url).toBe('must not contain control characters');
+    }
+    expect((await t.request({ method: 'GET', url: base })).json().dataVersion).toBe(1);
+    await checkInvariants(t);
+  });
 });
