@@ -5,10 +5,8 @@ import { defineConfig } from 'vitest/config';
  * a fresh database per test app copied from a migrated template, see tests/helpers/app.ts): every file of tests/http
  * and the service files that build a test app, except these (they run on SQLite only, in project "main"):
  *  - tests/http/postgres-outage.test.ts: PostgreSQL-only by itself (a relay in front of the server), in "main".
- *  - tests/services/ingest/validate.test.ts, csv-import.test.ts: compare whole tables through the SQLite dump helper.
  *  - tests/services/comparisons/omnibus.test.ts, performance-paths.test.ts: open a SQLite store of their own (query
  *    plans, the SQLite caches); the omnibus routes run on PostgreSQL through tests/http/routes/omnibus.test.ts.
- *  - tests/reliability/hostile.test.ts: snapshots every table through sqlite_schema.
  *  - tests/reliability/backup-under-load, crash, shutdown: the SQLite file, its backups and the single-process lock.
  */
 const ON_POSTGRES = [
@@ -50,6 +48,9 @@ const ON_POSTGRES = [
   'tests/services/comparisons/service.test.ts',
   'tests/reliability/concurrency.test.ts',
   'tests/services/monitoring/interim.test.ts',
+  'tests/services/ingest/validate.test.ts',
+  'tests/services/ingest/csv-import.test.ts',
+  'tests/reliability/hostile.test.ts',
 ];
 
 export default defineConfig({

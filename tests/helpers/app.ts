@@ -11,8 +11,9 @@ import { buildApp } from '../../server/http/app.js';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
 import { runCli } from '../../server/cli/run.js';
 import type { Config } from '../../server/config.js';
-import { openPostgresStore } from '../../server/store/postgres/store.js';
+import { openPostgresStore, redactUrl } from '../../server/store/postgres/store.js';
 import { openSqliteStore, type SqliteStore } from '../../server/store/sqlite/store.js';
+import { checkDatabase } from '../../server/store/sqlite/check.js';
 import type { Scope, Store } from '../../server/store/types.js';
 import { createTestDatabase, migratedTemplate, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
 
@@ -95,6 +96,14 @@ export interface TestApp {
    * `$1…` for PostgreSQL; bigint results come back as numbers on both). For "nothing was stored" checks.
    */
   sql(text: string, ...params: unknown[]): Promise<Record<string, unknown>[]>;
+  /** The PostgreSQL database of this app (null on SQLite). */
+  databaseUrl: string | null;
+  /** The environment that points the command line at this app's database (SPLITBALLOT_DB or SPLITBALLOT_DATABASE_URL). */
+  cliEnv(): Record<string, string>;
+  /** How the command line names this app's database in its messages (the file, or the redacted URL, with the variable). */
+  cliWhere(): string;
+  /** `splitballot check` on this app's database, either engine: every invariant that does not hold, and integrity findings. */
+  check(): Promise<{ problems: string[]; integrity: string[] }>;
   /** Close the app and build a new one on the same file (a restart). */
   restart(): Promise<void>;
   close(): Promise<void>;
@@ -159,6 +168,17 @@ export async function startTestApp(options: { config?: Partial<Config>; dir?: st
       );
       return r.rows.map((row) => Object.fromEntries(Object.entries(row).map(([k, v]) => [k, typeof v === 'string' && /^-?\d+$/.test(v) ? Number(v) : v])));
     },
+    databaseUrl: pgDb?.url ?? null,
+    cliEnv: (): Record<string, string> => (pgDb ? { SPLITBALLOT_DATABASE_URL: pgDb.url } : { SPLITBALLOT_DB: dbPath }),
+    cliWhere: () => (pgDb ? `${redactUrl(pgDb.url)} (SPLITBALLOT_DATABASE_URL)` : `${dbPath} (SPLITBALLOT_DB)`),
+    async check() {
+      if (pgStore) {
+        const report = await (pgStore as unknown as { check(): Promise<{ problems: string[]; integrity: string[] }> }).check();
+        return { problems: report.problems, integrity: report.integrity };
+      }
+      const report = checkDatabase(store().db);
+      return { problems: report.problems, integrity: report.integrity };
+    },
     createWater: (overrides = {}) =>
       app.inject({ method: 'POST', url: '/v1/experiments', headers: { authorization: `Bearer ${adminKey}` }, payload: waterBillDefinition(overrides) }),
     async restart() {
@@ -205,11 +225,30 @@ export async function cli(args: string[], env: Record<string, string> = {}): Pro
   return { code, stdout, stderr };
 }
 
-/** Every row of every application table, for "the database is unchanged" comparisons. */
+/** Every application table of the app's database, in name order (either engine; migration bookkeeping left out). */
+export async function tableNames(t: TestApp): Promise<string[]> {
+  const rows = t.databaseUrl
+    ? await t.sql(`SELECT tablename AS name FROM pg_catalog.pg_tables WHERE schemaname = current_schema() AND tablename <> 'schema_migrations' ORDER BY tablename COLLATE "C"`)
+    : await t.sql(`SELECT name FROM sqlite_schema WHERE type = 'table' AND name NOT LIKE 'sqlite_%' AND name <> 'schema_migrations' ORDER BY name`);
+  return rows.map((r) => r.name as string);
+}
+
+/** Every row of every application table of a SQLite store, for "the database is unchanged" comparisons. */
 export function dumpTables(store: SqliteStore): Record<string, unknown[]> {
-  const tables = ['experiments', 'conditions', 'measures', 'responses', 'response_values', 'value_counts', 'rejected_value_counts', 'api_keys'];
   const out: Record<string, unknown[]> = {};
-  for (const t of tables) out[t] = store.db.prepare(`SELECT * FROM ${t} ORDER BY 1, 2`).all();
+  for (const t of DATA_TABLES) out[t] = store.db.prepare(`SELECT * FROM ${t} ORDER BY 1, 2`).all();
+  return out;
+}
+
+const DATA_TABLES = ['experiments', 'conditions', 'measures', 'responses', 'response_values', 'value_counts', 'rejected_value_counts', 'api_keys'];
+
+/** Every row of the named tables (default: the data tables) of a test app's database, either engine, for "unchanged" comparisons. */
+export async function dumpAppTables(
+  t: TestApp,
+  tables = DATA_TABLES,
+): Promise<Record<string, Record<string, unknown>[]>> {
+  const out: Record<string, Record<string, unknown>[]> = {};
+  for (const name of tables) out[name] = await t.sql(`SELECT * FROM "${name}" ORDER BY 1, 2`);
   return out;
 }
 

@@ -9,7 +9,7 @@ import { parse } from 'csv-parse/sync';
 import { describe, expect, it } from 'vitest';
 import { importCsvBuffer } from '../../../server/services/ingest/csv-import.js';
 import { IMPORT_BODY_LIMIT } from '../../../server/services/ingest/csv-rows.js';
-import { cli as runCliCaptured, dumpTables, eachTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
+import { cli as runCliCaptured, dumpAppTables, eachTestApp, WATER_ID, type TestApp } from '../../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses/import`;
 const HEADER = 'responseId,condition,respondent,satisfaction,trust,fair_price';
@@ -17,8 +17,8 @@ const HEADER = 'responseId,condition,respondent,satisfaction,trust,fair_price';
 let t: TestApp;
 eachTestApp((app) => (t = app));
 
-function dataTables() {
-  const d = dumpTables(t.store);
+async function dataTables() {
+  const d = await dumpAppTables(t);
   delete d.api_keys;
   delete d.rejected_value_counts;
   return d;
@@ -34,7 +34,7 @@ function post(body: string, query = '', key?: string) {
 }
 
 function cli(args: string[]) {
-  return runCliCaptured(args, { SPLITBALLOT_DB: t.dbPath });
+  return runCliCaptured(args, t.cliEnv());
 }
 
 describe('POST …/responses/import', () => {
@@ -49,18 +49,17 @@ describe('POST …/responses/import', () => {
     const def = (await t.request({ method: 'GET', url: `/v1/experiments/${WATER_ID}` })).json();
     expect(def.counts.responses).toBe(250);
     // The per-value counts agree with the raw values (the repository's bookkeeping was used).
-    const check = t.store.db
-      .prepare(
-        `SELECT count(*) FROM (SELECT measure_id, condition_id, excluded, value, count(*) AS n FROM response_values GROUP BY 1,2,3,4) g
-         LEFT JOIN value_counts c USING (measure_id, condition_id, excluded, value) WHERE c.count IS NOT g.n AND g.measure_id IN (SELECT id FROM measures WHERE is_integer = 1)`,
-      )
-      .pluck()
-      .get();
+    const [{ n: check }] = await t.sql(
+      `SELECT count(*) AS n FROM (SELECT measure_id, condition_id, excluded, value, count(*) AS n FROM response_values GROUP BY 1,2,3,4) g
+       LEFT JOIN value_counts c USING (measure_id, condition_id, excluded, value)
+       WHERE (c.count IS NULL OR c.count <> g.n) AND g.measure_id IN (SELECT id FROM measures WHERE is_integer = ?)`,
+      t.databaseUrl ? true : 1,
+    );
     expect(check).toBe(0);
   });
 
   it('all or nothing: every bad row is reported by line and column, nothing is stored', async () => {
-    const before = dataTables();
+    const before = await dataTables();
     const csv = [
       HEADER,
       'a-1,bill-first,,7,5,42.5', // line 2: fine
@@ -86,7 +85,7 @@ describe('POST …/responses/import', () => {
       { path: 'line 7', message: 'has 5 fields; the header has 6' },
       { path: 'line 8, column satisfaction', message: 'is required' },
     ]);
-    expect(dataTables()).toEqual(before);
+    expect(await dataTables()).toEqual(before);
     // Refused values are counted like refused ingest values.
     const rejected = await t.store.responses.getRejectedCounts((await t.store.experiments.getBySlug(WATER_ID))!.key);
     expect(rejected).toEqual([
@@ -172,7 +171,7 @@ describe('POST …/responses/import', () => {
 
   it('a responseId stored earlier with other content is a conflict; all or nothing rolls back every chunk', async () => {
     expect((await post(`${HEADER}\nc-5,bill-first,,1,1,1\n`)).statusCode).toBe(201);
-    const before = dataTables();
+    const before = await dataTables();
     const experiment = (await t.store.experiments.getBySlug(WATER_ID))!;
     // 25 rows in chunks of 10: the conflict is in the first chunk, the duplicate inside the file in the third.
     const body = [HEADER, ...rows(25, 'c'), 'c-21,bill-first,,0,1,0'].join('\n');
@@ -182,8 +181,8 @@ describe('POST …/responses/import', () => {
       { line: 7, column: 'responseId', message: 'was already stored (or appears earlier in the file) with different content', value: 'c-5' },
       { line: 27, column: 'responseId', message: 'was already stored (or appears earlier in the file) with different content', value: 'c-21' },
     ]);
-    expect(dataTables()).toEqual(before);
-    expect(t.store.db.inTransaction).toBe(false);
+    expect(await dataTables()).toEqual(before);
+    if (!t.databaseUrl) expect(t.store.db.inTransaction).toBe(false);
     // With skipInvalid the other 24 rows are stored.
     const kept = await importCsvBuffer({ store: t.store, experiment, receivedAt: new Date().toISOString(), skipInvalid: true, apiKeyId: null, chunkRows: 10 }, body);
     expect(kept).toMatchObject({ committed: true, created: 24, rejectedRows: 2 });
@@ -224,12 +223,12 @@ describe('splitballot import', () => {
   it('all or nothing by default: exit 1, problems on stderr, nothing stored', async () => {
     const file = join(t.dir, 'bad.csv');
     writeFileSync(file, [HEADER, ...rows(5, 'x'), 'x-9,bill-first,,7,0,1'].join('\n'));
-    const before = dataTables();
+    const before = await dataTables();
     const r = await cli(['import', '--experiment', WATER_ID, file]);
     expect(r.code).toBe(1);
     expect(r.stderr).toContain('  line 7, column trust: 0 is outside the scale from 1 to 7 (value: "0")\n');
     expect(r.stdout).toBe('import refused: 1 of 6 rows have problems; nothing was stored (fix them, or use --skip-invalid)\n');
-    expect(dataTables()).toEqual(before);
+    expect(await dataTables()).toEqual(before);
   });
 
   it('--skip-invalid keeps the good rows and writes the rejects file (line, column, message, value)', async () => {
@@ -253,7 +252,7 @@ describe('splitballot import', () => {
     writeFileSync(file, HEADER);
     expect(await cli(['import', '--experiment', 'nope', file])).toMatchObject({
       code: 1,
-      stderr: `splitballot import: database ${t.dbPath} (SPLITBALLOT_DB)\nsplitballot import: there is no experiment nope in ${t.dbPath} (SPLITBALLOT_DB)\n`,
+      stderr: `splitballot import: database ${t.cliWhere()}\nsplitballot import: there is no experiment nope in ${t.cliWhere()}\n`,
     });
   });
 });

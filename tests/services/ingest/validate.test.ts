@@ -3,7 +3,7 @@
  * nothing stored on a 422, rejected-value counters, idempotent and conflicting retries, closed experiments.
  */
 import { describe, expect, it } from 'vitest';
-import { dumpTables, eachTestApp, WATER_ID, waterResponse, type TestApp } from '../../helpers/app.js';
+import { dumpAppTables, eachTestApp, WATER_ID, waterResponse, type TestApp } from '../../helpers/app.js';
 
 const URL = `/v1/experiments/${WATER_ID}/responses`;
 const VALIDATION = { type: 'urn:splitballot:problem:validation-failed', title: 'Validation failed', status: 422 };
@@ -11,14 +11,14 @@ const VALIDATION = { type: 'urn:splitballot:problem:validation-failed', title: '
 let t: TestApp;
 eachTestApp((app) => (t = app));
 
-function rejectedCounts(): { measure: string; reason: string; count: number }[] {
-  return t.store.db
-    .prepare(`SELECT m.slug AS measure, r.reason, r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id ORDER BY m.slug, r.reason`)
-    .all() as { measure: string; reason: string; count: number }[];
+async function rejectedCounts(): Promise<{ measure: string; reason: string; count: number }[]> {
+  return (await t.sql(
+    `SELECT m.slug AS measure, r.reason, r.count FROM rejected_value_counts r JOIN measures m ON m.id = r.measure_id ORDER BY m.slug, r.reason`,
+  )) as { measure: string; reason: string; count: number }[];
 }
 
-function storedData() {
-  const d = dumpTables(t.store);
+async function storedData() {
+  const d = await dumpAppTables(t);
   return { responses: d.responses, response_values: d.response_values, value_counts: d.value_counts, conditions: d.conditions, experiments: d.experiments };
 }
 
@@ -54,14 +54,14 @@ describe('accepted responses', () => {
         { condition: 'service-first', responses: 0, excluded: 0 },
       ],
     });
-    const values = t.store.db.prepare(`SELECT m.slug, v.value, v.excluded FROM response_values v JOIN measures m ON m.id = v.measure_id ORDER BY m.position`).all();
+    const values = await t.sql(`SELECT m.slug, v.value, v.excluded FROM response_values v JOIN measures m ON m.id = v.measure_id ORDER BY m.position`);
     expect(values).toEqual([
       { slug: 'satisfaction', value: 7, excluded: 0 },
       { slug: 'trust', value: 5, excluded: 0 },
       { slug: 'fair_price', value: 42.5, excluded: 0 },
     ]);
     // Per-value counts exist for the integer measures only.
-    const counts = t.store.db.prepare(`SELECT m.slug, c.value, c.count FROM value_counts c JOIN measures m ON m.id = c.measure_id ORDER BY m.position`).all();
+    const counts = await t.sql(`SELECT m.slug, c.value, c.count FROM value_counts c JOIN measures m ON m.id = c.measure_id ORDER BY m.position`);
     expect(counts).toEqual([
       { slug: 'satisfaction', value: 7, count: 1 },
       { slug: 'trust', value: 5, count: 1 },
@@ -75,7 +75,7 @@ describe('accepted responses', () => {
     expect(b.statusCode).toBe(201);
     expect(a.json().responseId).toMatch(/^[0-9a-f-]{36}$/);
     expect(a.json().responseId).not.toBe(b.json().responseId);
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 2 });
+    expect((await t.sql('SELECT count(*) AS n FROM responses'))[0]).toEqual({ n: 2 });
   });
 
   it('accepts the scale limits themselves, -0 (stored as 0), and an optional measure left out or null', async () => {
@@ -89,7 +89,7 @@ describe('accepted responses', () => {
     expect(omitted.statusCode).toBe(201);
     expect(omitted.json().values).toEqual({ satisfaction: 3, trust: 2 });
     expect((await post({ responseId: 'null', condition: 'service-first', values: { satisfaction: 3, trust: 2, fair_price: null } })).statusCode).toBe(201);
-    const stored = t.store.db.prepare(`SELECT value FROM response_values v JOIN responses r ON r.id = v.response_id WHERE r.response_id = 'neg' ORDER BY v.measure_id`).all();
+    const stored = await t.sql(`SELECT value FROM response_values v JOIN responses r ON r.id = v.response_id WHERE r.response_id = 'neg' ORDER BY v.measure_id`);
     expect(stored).toEqual([{ value: 0 }, { value: 3 }, { value: 0 }]);
   });
 });
@@ -211,21 +211,21 @@ describe('validation: exact problem bodies, nothing stored', () => {
 
   for (const c of cases) {
     it(`${c.name} → 422`, async () => {
-      const before = storedData();
+      const before = await storedData();
       const res = await postRaw(c.body);
       expect(res.statusCode).toBe(422);
       expect(res.headers['content-type']).toBe('application/problem+json; charset=utf-8');
       const n = c.errors.length;
       expect(res.json()).toEqual({ ...VALIDATION, detail: `The request body has ${n} problem${n === 1 ? '' : 's'}; nothing was stored.`, errors: c.errors });
-      expect(storedData()).toEqual(before);
-      expect(rejectedCounts()).toEqual(c.rejected);
+      expect(await storedData()).toEqual(before);
+      expect(await rejectedCounts()).toEqual(c.rejected);
     });
   }
 
   it('counts every rejected attempt (two posts of the same bad value count twice)', async () => {
     await postRaw('{"condition":"bill-first","values":{"satisfaction":170,"trust":5,"fair_price":10}}');
     await postRaw('{"condition":"bill-first","values":{"satisfaction":-1,"trust":5,"fair_price":10}}');
-    expect(rejectedCounts()).toEqual([{ measure: 'satisfaction', reason: 'out_of_range', count: 2 }]);
+    expect(await rejectedCounts()).toEqual([{ measure: 'satisfaction', reason: 'out_of_range', count: 2 }]);
     const api = await t.store.responses.getRejectedCounts((await t.store.experiments.getBySlug(WATER_ID))!.key);
     expect(api).toEqual([{ measure: 'satisfaction', reason: 'out_of_range', count: 2 }]);
   });
@@ -250,7 +250,7 @@ describe('validation: exact problem bodies, nothing stored', () => {
   it('__proto__ in the body → 400 and nothing stored', async () => {
     const res = await postRaw('{"condition":"bill-first","values":{"satisfaction":1,"trust":5,"fair_price":10},"__proto__":{"x":1}}');
     expect(res.statusCode).toBe(400);
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 0 });
+    expect((await t.sql('SELECT count(*) AS n FROM responses'))[0]).toEqual({ n: 0 });
   });
 
   it('a body over 1 MiB → 413 problem', async () => {
@@ -270,17 +270,17 @@ describe('retries', () => {
   it('the same responseId with the same content → 200 with the stored record; no new row, dataVersion unchanged', async () => {
     const first = await post(waterResponse({ responseId: 'retry-1', submittedAt: '2027-03-01T10:00:00Z' }));
     expect(first.statusCode).toBe(201);
-    const before = storedData();
+    const before = await storedData();
     // A retry with a fresh client timestamp and the keys in another order is still the same response.
     const again = await post({ submittedAt: '2027-03-01T10:00:05Z', values: { fair_price: 42.5, trust: 5, satisfaction: 7 }, condition: 'bill-first', responseId: 'retry-1' });
     expect(again.statusCode).toBe(200);
     expect(again.json()).toEqual(first.json());
-    expect(storedData()).toEqual(before);
+    expect(await storedData()).toEqual(before);
   });
 
   it('the same responseId with different content → 409 and the stored response is untouched', async () => {
     expect((await post(waterResponse({ responseId: 'retry-2' }))).statusCode).toBe(201);
-    const before = storedData();
+    const before = await storedData();
     const res = await post(waterResponse({ responseId: 'retry-2' }, { satisfaction: 8 }));
     expect(res.statusCode).toBe(409);
     expect(res.json()).toEqual({
@@ -290,7 +290,7 @@ describe('retries', () => {
       detail: 'Response retry-2 was already stored with different content; nothing was changed.',
       errors: [{ path: 'responseId', message: 'was already stored with different content', value: 'retry-2' }],
     });
-    expect(storedData()).toEqual(before);
+    expect(await storedData()).toEqual(before);
     // A different condition or respondent is different content too.
     expect((await post(waterResponse({ responseId: 'retry-2', condition: 'service-first' }))).statusCode).toBe(409);
     expect((await post(waterResponse({ responseId: 'retry-2', respondent: 'someone' }))).statusCode).toBe(409);
@@ -316,10 +316,10 @@ describe('closed experiment', () => {
       status: 409,
       detail: 'Experiment water-bill-2027 is closed and accepts no new responses.',
     });
-    expect(rejectedCounts()).toEqual([]);
+    expect(await rejectedCounts()).toEqual([]);
     const batch = await t.request({ method: 'POST', url: `${URL}/batch`, payload: { responses: [waterResponse()] } });
     expect(batch.statusCode).toBe(409);
-    expect(t.store.db.prepare('SELECT count(*) AS n FROM responses').get()).toEqual({ n: 0 });
+    expect((await t.sql('SELECT count(*) AS n FROM responses'))[0]).toEqual({ n: 0 });
     await t.request({ method: 'PATCH', url: `/v1/experiments/${WATER_ID}`, payload: { status: 'open' } });
     expect((await post(waterResponse())).statusCode).toBe(201);
   });
