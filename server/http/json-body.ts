@@ -8,6 +8,9 @@
  *    rejects it with reason `too_many_digits`, every other schema rejects it as "not a number". (A double needs
  *    at most 24 characters, e.g. -1.2345678901234567e-308, so 40 leaves room for any honest formatting.)
  *  - Nesting deeper than MAX_JSON_DEPTH (32) levels → 400, before JSON.parse recurses into it.
+ *  - A U+0000 (NUL) escaped in a string (`\u0000`) → 400: no text the service keeps may hold one (PostgreSQL text
+ *    cannot, and every id and label is looked up or shown somewhere), so it is refused for every engine alike.
+ *    (Raw control characters inside strings are invalid JSON and fail the parse itself.)
  */
 import { randomBytes } from 'node:crypto';
 import type { FastifyInstance, FastifyRequest } from 'fastify';
@@ -20,6 +23,8 @@ export interface JsonScan {
   /** [start, end) of every number token longer than MAX_NUMBER_LENGTH. */
   overlong: [number, number][];
   maxDepth: number;
+  /** A string (value or key) holds an escaped U+0000. */
+  nul: boolean;
 }
 
 function isNumberChar(c: number): boolean {
@@ -33,11 +38,16 @@ export function scanJson(text: string): JsonScan {
   let depth = 0;
   let maxDepth = 0;
   let inString = false;
+  let nul = false;
   const n = text.length;
   for (let i = 0; i < n; i++) {
     const c = text.charCodeAt(i);
     if (inString) {
-      if (c === 92) i++; // backslash: skip the escaped character
+      if (c === 92) {
+        // backslash: skip the escaped character, noting \u0000
+        if (text.charCodeAt(i + 1) === 117 && text.startsWith('0000', i + 2)) nul = true;
+        i++;
+      }
       else if (c === 34) inString = false;
       continue;
     }
@@ -53,7 +63,7 @@ export function scanJson(text: string): JsonScan {
       i = j - 1;
     }
   }
-  return { overlong, maxDepth };
+  return { overlong, maxDepth, nul };
 }
 
 type JsonParser = (req: FastifyRequest, body: string, done: (err: Error | null, body?: unknown) => void) => void;
@@ -76,6 +86,9 @@ export function parseJsonBody(text: string, base: (text: string) => unknown): un
   const scan = scanJson(text);
   if (scan.maxDepth > MAX_JSON_DEPTH) {
     throw new ProblemError('malformed-request', `The JSON body is nested more than ${MAX_JSON_DEPTH} levels deep.`);
+  }
+  if (scan.nul) {
+    throw new ProblemError('malformed-request', 'The JSON body holds a U+0000 (NUL) character in a string; no text the service keeps may contain one. Remove it and send again.');
   }
   if (scan.overlong.length === 0) return base(text);
   // Replace each overlong token by a string marker no client can guess, parse, then swap markers for objects.

@@ -78,9 +78,12 @@ describe('JSON body scan', () => {
     expect(result.list[1]).toBe(2);
   });
 
-  it('a client cannot forge the marker: marker-like strings stay strings', () => {
-    const r = parse(`{"a":"\\u0000overlong:abc:0","b":${'1'.repeat(50)}}`) as Record<string, unknown>;
-    expect(r.a).toBe('\u0000overlong:abc:0');
+  it('a client cannot forge the marker: a U+0000 in any string (the marker starts with one) is refused, an escaped backslash before "u0000" is not one', () => {
+    expect(() => parse(`{"a":"\\u0000overlong:abc:0","b":${'1'.repeat(50)}}`)).toThrow('U+0000 (NUL)');
+    expect(() => parse(`{"k\\u0000":1}`)).toThrow('U+0000 (NUL)');
+    expect(() => parse(`{"a":"x\\U0000"}`)).toThrow(SyntaxError); // \U is no JSON escape: the base parser's own error, not ours
+    const r = parse(`{"a":"\\\\u0000overlong:abc:0","b":${'1'.repeat(50)}}`) as Record<string, unknown>;
+    expect(r.a).toBe('\\u0000overlong:abc:0');
     expect(r.b).toBeInstanceOf(OverlongNumber);
   });
 

@@ -139,6 +139,21 @@ describe('POST /v1/experiments', () => {
   });
 });
 
+describe('U+0000 in any text of a definition', () => {
+  it('is refused with 400 before anything is stored (PostgreSQL text cannot hold it; refused on every engine alike)', async () => {
+    const withNul = waterBillDefinition({ title: 'a\u0000b' });
+    const labelled = waterBillDefinition() as { measures: { label: string }[] };
+    labelled.measures[0].label = 'x\u0000';
+    for (const payload of [withNul, labelled]) {
+      const res = await t.request({ method: 'POST', url: '/v1/experiments', payload: JSON.stringify(payload), headers: { 'content-type': 'application/json' } });
+      expect(res.statusCode).toBe(400);
+      expect(res.headers['content-type']).toMatch(/^application\/problem\+json/);
+      expect(res.json().detail).toContain('U+0000 (NUL)');
+    }
+    expect((await t.request({ method: 'GET', url: '/v1/experiments' })).json().experiments).toEqual([]);
+  });
+});
+
 describe('GET /v1/experiments and /v1/experiments/{id}', () => {
   it('lists experiments and reads one with counts per condition; unknown → 404', async () => {
     await t.createWater();
