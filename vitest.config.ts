@@ -35,6 +35,7 @@ const ON_POSTGRES = [
   'tests/http/routes/covariates.test.ts',
   'tests/http/routes/form-client-routes.test.ts',
   'tests/http/routes/measure-roles.test.ts',
+  'tests/http/routes/primary-change-audit.test.ts',
   'tests/http/routes/omnibus.test.ts',
   'tests/http/routes/overview.test.ts',
   'tests/http/routes/trajectory.test.ts',
