@@ -33,6 +33,7 @@ const ON_POSTGRES = [
   'tests/http/routes/covariates.test.ts',
   'tests/http/routes/form-client-routes.test.ts',
   'tests/http/routes/measure-roles.test.ts',
+  'tests/http/routes/primary-change-audit.test.ts',
   'tests/http/routes/omnibus.test.ts',
   'tests/http/routes/overview.test.ts',
   'tests/http/routes/trajectory.test.ts',
@@ -53,6 +54,15 @@ const ON_POSTGRES = [
   'tests/reliability/hostile.test.ts',
 ];
 
+/**
+ * Files that must run when nothing else does: tests/reliability/pg-restart.test.ts restarts the shared PostgreSQL
+ * server (immediate mode), which would break the connections of any other test file running beside it. They form the
+ * project "pg-restart", which `npm test` runs on its own after the other projects (`vitest run --project main
+ * --project postgres && vitest run --project pg-restart`); the file itself runs only with SPLITBALLOT_TEST_PG_RESTART=1
+ * or CI=true and skips with a notice otherwise.
+ */
+const ALONE = ['tests/reliability/pg-restart.test.ts'];
+
 export default defineConfig({
   test: {
     exclude: ['node_modules/**', 'dist/**', 'tests/bench/**'],
@@ -63,8 +73,10 @@ export default defineConfig({
     reporters: ['default'],
     projects: [
       // Every test file as before (the engine-specific ones choose their engine themselves).
-      { extends: true, test: { name: 'main', include: ['tests/**/*.test.ts'] } },
+      { extends: true, test: { name: 'main', include: ['tests/**/*.test.ts'], exclude: [...ALONE, 'node_modules/**', 'dist/**', 'tests/bench/**'] } },
       { extends: true, test: { name: 'postgres', include: ON_POSTGRES, env: { SPLITBALLOT_TEST_ENGINE: 'postgres' } } },
+      // Run by `npm test` in a second vitest run, after every other file (see ALONE).
+      { extends: true, test: { name: 'pg-restart', include: ALONE } },
     ],
   },
 });

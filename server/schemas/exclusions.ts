@@ -47,14 +47,18 @@ export const ErasureSchema = z
 export const AuditEntrySchema = z
   .object({
     id: z.number().int(),
-    action: z.enum(['exclude', 'restore', 'erase']),
-    responseId: z.string().nullable().describe('null for an erasure, and for earlier rows of responses erased since (redacted)'),
+    action: z
+      .enum(['exclude', 'restore', 'erase', 'primary-change'])
+      .describe('primary-change: the primary outcome was changed after answers existed (fromMeasure → toMeasure)'),
+    responseId: z.string().nullable().describe('null for an erasure, a primary-change, and for earlier rows of responses erased since (redacted)'),
     reason: z.string().nullable(),
-    count: z.number().int().describe('Responses affected'),
+    count: z.number().int().describe('Responses affected (exclude/restore: 1; erase: the number erased); primary-change: the responses stored at the time'),
     apiKeyId: z.number().int().nullable().describe('The key that made the change'),
     at: z.string(),
-    dataVersion: z.number().int().describe('The data version after the change'),
+    dataVersion: z.number().int().describe('The data version after the change (a primary-change does not move it)'),
     redacted: z.boolean(),
+    fromMeasure: z.string().nullable().describe('primary-change: the primary measure before (null: none); null for other actions'),
+    toMeasure: z.string().nullable().describe('primary-change: the primary measure after (null: none); null for other actions'),
   })
   .meta({ id: 'AuditEntry' });
 

@@ -10,32 +10,26 @@
  * The primary outcome lives in the experiment's options (no table change): `primaryMeasure` holds its id (absent:
  * none). A change of the primary outcome after answers exist (the experiment's dataVersion is above 0) is appended to
  * `primaryChanges` — who, when, from, to, and the dataVersion at the time — so the page can say "changed after data
- * collection began" and the record stays with the definition.
+ * collection began" and the record stays with the definition; the same change is written to the audit trail
+ * (action 'primary-change'). Both are decided and written by the repository inside the update's transaction
+ * (store/primary-outcome.ts): this file only says which measure the request makes primary.
  */
 import type { ExperimentRecord, MeasureRole } from '../store/types.js';
+import { storedPrimary, storedPrimaryChanges, type PrimaryChange } from '../store/primary-outcome.js';
 
 export const MEASURE_ROLES: readonly MeasureRole[] = ['outcome', 'covariate', 'process'];
-export type { MeasureRole };
-
-export interface PrimaryChange {
-  from: string | null;
-  to: string | null;
-  at: string;
-  dataVersion: number;
-  apiKeyId: number | null;
-}
+export type { MeasureRole, PrimaryChange };
 
 export function roleOf(e: Pick<ExperimentRecord, 'measures'>, measureId: string): MeasureRole {
   return e.measures.find((m) => m.id === measureId)?.role ?? 'outcome';
 }
 
 export function primaryOf(e: Pick<ExperimentRecord, 'options'>): string | null {
-  const p = e.options.primaryMeasure;
-  return typeof p === 'string' ? p : null;
+  return storedPrimary(e.options);
 }
 
 export function primaryChangesOf(e: Pick<ExperimentRecord, 'options'>): PrimaryChange[] {
-  return Array.isArray(e.options.primaryChanges) ? (e.options.primaryChanges as PrimaryChange[]) : [];
+  return storedPrimaryChanges(e.options);
 }
 
 /** The options of a new definition from its measures' primary fields (at most one primary; checked by the schema). */
@@ -45,28 +39,15 @@ export function definitionRoleOptions(measures: readonly { id: string; primary?:
 }
 
 /**
- * The options patch for a PATCH of measures' primary fields (empty when nothing changes): `primary: true` makes that
- * measure the primary one, `primary: false` on the current primary leaves none. A primary change once answers exist
- * appends to primaryChanges.
+ * The primary outcome a PATCH of measures' primary fields asks for, or undefined when it leaves it as it is:
+ * `primary: true` makes that measure the primary one, `primary: false` on the current primary leaves none.
  */
-export function patchRoleOptions(
-  e: ExperimentRecord,
-  measures: readonly { id: string; primary?: boolean }[],
-  now: string,
-  apiKeyId: number | null,
-): Record<string, unknown> {
-  const out: Record<string, unknown> = {};
+export function requestedPrimary(e: ExperimentRecord, measures: readonly { id: string; primary?: boolean }[]): string | null | undefined {
   const current = primaryOf(e);
   let next = current;
   for (const m of measures) {
     if (m.primary === true) next = m.id;
     else if (m.primary === false && next === m.id) next = null;
   }
-  if (next !== current) {
-    out.primaryMeasure = next;
-    if (e.dataVersion > 0) {
-      out.primaryChanges = [...primaryChangesOf(e), { from: current, to: next, at: now, dataVersion: e.dataVersion, apiKeyId }];
-    }
-  }
-  return out;
+  return next !== current ? next : undefined;
 }

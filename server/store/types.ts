@@ -109,6 +109,13 @@ export interface ExperimentPatch {
   measures?: MeasurePatch[];
   /** Keys to set in the definition's options (flagThresholds, …); a null value removes the key. */
   options?: Record<string, unknown>;
+  /**
+   * The primary outcome after the change (a measure id, or null for none) and the key making it. The repository
+   * compares it with the stored one inside its transaction; a change once answers exist (dataVersion above 0) is
+   * appended to the options' primaryChanges and written to the audit trail ('primary-change') in that same
+   * transaction (see store/primary-outcome.ts).
+   */
+  primary?: { measure: string | null; apiKeyId: number | null };
 }
 
 export type CreateExperimentResult = { kind: 'created'; experiment: ExperimentRecord } | { kind: 'duplicate' };
@@ -280,20 +287,25 @@ export type ExclusionOutcome =
 
 export type ErasureOutcome = { kind: 'not-found' } | { kind: 'erased'; erased: number; dataVersion: number };
 
-export type AuditAction = 'exclude' | 'restore' | 'erase';
+/** 'primary-change': the primary outcome changed after answers existed (migration 0007). */
+export type AuditAction = 'exclude' | 'restore' | 'erase' | 'primary-change';
 
 export interface AuditEntry {
   id: number;
   action: AuditAction;
-  /** The responseId for exclude/restore; null for erase and for rows redacted by a later erasure. */
+  /** The responseId for exclude/restore; null for erase, primary-change and for rows redacted by a later erasure. */
   responseId: string | null;
   reason: string | null;
+  /** exclude/restore: 1; erase: the responses erased; primary-change: the responses stored at the time. */
   count: number;
   /** The API key that made the change. */
   apiKeyId: number | null;
   at: string;
   dataVersion: number;
   redacted: boolean;
+  /** primary-change: the primary measure's id before and after (null: none); null for every other action. */
+  fromMeasure: string | null;
+  toMeasure: string | null;
 }
 
 /** One stored answer behind a quality flag (see ResponseRepository.getAnswersWithValues). */

@@ -4,7 +4,9 @@
  *  POST   /v1/experiments/{id}/responses/{responseId}/exclusion   { reason }  leave a response out of comparisons
  *  DELETE /v1/experiments/{id}/responses/{responseId}/exclusion             take it back in
  *  DELETE /v1/experiments/{id}/respondents/{respondent}                      erase every response of one respondent
- *  GET    /v1/experiments/{id}/audit                                         the audit trail, newest first
+ *  GET    /v1/experiments/{id}/audit                                         the audit trail, newest first (these
+ *                                                                            changes and primary-outcome changes made
+ *                                                                            after answers existed)
  *
  * Each change is ONE transaction in the repository (flags, per-value counts, counters, dataVersion + 1, audit row).
  * Idempotent: excluding an excluded response (or restoring one that is not excluded) answers 200 with
@@ -112,7 +114,11 @@ export async function exclusionRoutes(base: FastifyInstance, opts: { store: Stor
       config: ADMIN,
       schema: {
         tags: ['exclusions'],
-        summary: 'The audit trail of exclusions, restorations and erasures (newest first, at most 1,000)',
+        summary: 'The audit trail of exclusions, restorations, erasures and primary-outcome changes (newest first, at most 1,000)',
+        description:
+          'One entry per change: exclude and restore name the response and the reason; erase keeps only the count and the time; ' +
+          'primary-change (a change of the primary outcome after answers existed, written with the definition update) names ' +
+          'the measures before and after in fromMeasure and toMeasure.',
         params: ExperimentParams,
         response: { 200: AuditListSchema, ...problems(400, 401, 403, 404, 500) },
       },

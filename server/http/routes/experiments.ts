@@ -18,7 +18,7 @@ function weightsView(e: ExperimentRecord): { weights: ExperimentView['weights'];
   const w = weightsOf(e.options);
   return { weights: w.weights, maxWeight: w.weights === 'none' ? null : w.maxWeight };
 }
-import { definitionRoleOptions, patchRoleOptions, primaryChangesOf, primaryOf, roleOf } from '../../services/measure-roles.js';
+import { definitionRoleOptions, primaryChangesOf, primaryOf, requestedPrimary, roleOf } from '../../services/measure-roles.js';
 
 export function experimentView(e: ExperimentRecord): ExperimentView {
   let responses = 0;
@@ -158,8 +158,8 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
       const { flagThresholds, ...rest } = patch;
       const now = new Date().toISOString();
       const margins = patchedMargins(e, patch.measures ?? []);
-      const roleOptions = patchRoleOptions(e, patch.measures ?? [], now, request.principal?.keyId ?? null);
-      const primaryNow = 'primaryMeasure' in roleOptions ? (roleOptions.primaryMeasure as string | null) : primaryOf(e);
+      const primary = requestedPrimary(e, patch.measures ?? []);
+      const primaryNow = primary !== undefined ? primary : primaryOf(e);
       if (primaryNow !== null && roleOf(e, primaryNow) !== 'outcome') {
         const i = (patch.measures ?? []).findIndex((m) => m.id === primaryNow);
         throw new RequestValidationError('body', [{ path: `measures[${Math.max(0, i)}].primary`, message: 'a primary measure must have the role "outcome"' }]);
@@ -167,12 +167,17 @@ export async function experimentRoutes(base: FastifyInstance, opts: { store: Sto
       const options = {
         ...(flagThresholds !== undefined ? { flagThresholds } : {}),
         ...(margins !== undefined ? { [MARGINS_OPTION]: margins } : {}),
-        ...roleOptions,
       };
       const measures = rest.measures?.map(({ equivalenceMargin: _margin, primary: _primary, ...m }) => m);
       const result = await store.experiments.update(
         e.key,
-        { ...rest, ...(measures ? { measures } : {}), ...(Object.keys(options).length > 0 ? { options } : {}) },
+        {
+          ...rest,
+          ...(measures ? { measures } : {}),
+          ...(Object.keys(options).length > 0 ? { options } : {}),
+          // Recorded with the definition and in the audit trail when answers exist (decided inside the update's transaction).
+          ...(primary !== undefined ? { primary: { measure: primary, apiKeyId: request.principal?.keyId ?? null } } : {}),
+        },
         now,
       );
       switch (result.kind) {

@@ -2,7 +2,9 @@
  * Experiments, their conditions and measures (PostgreSQL). A definition is read whole in one snapshot (the
  * experiment row, its conditions and measures in definition order). Per-condition counts come from the counters
  * the writing transactions maintain, never from counting rows. An update locks the experiment row first, so a
- * change of limits cannot slip past a concurrent ingest on another node.
+ * change of limits cannot slip past a concurrent ingest on another node, and a change of the primary outcome sees
+ * the dataVersion as it is (after data collection began: an audit row in the same transaction, see
+ * store/primary-outcome.ts).
  */
 import type {
   CreateExperimentResult,
@@ -14,6 +16,8 @@ import type {
   UpdateExperimentResult,
 } from '../types.js';
 import { experimentRecord, type ConditionRow, type ExperimentRow, type MeasureRow } from '../experiment-rows.js';
+import { primaryOutcomeChange } from '../primary-outcome.js';
+import { recordAudit } from './audit.js';
 import { notifyChange } from './notifier.js';
 import { lockExperiments, type PostgresDatabase, type Queryable } from './pool.js';
 
@@ -121,6 +125,9 @@ export class PostgresExperimentRepository implements ExperimentRepository {
       }
       if (lockedMeasures.length > 0) return { kind: 'limits-locked', measures: lockedMeasures };
       if (invalid.length > 0) return { kind: 'invalid-limits', measures: invalid };
+      const primary = primaryOutcomeChange(current, patch.primary, now);
+      // The audit row first: a failure of any later statement rolls it back with the rest.
+      if (primary?.audit) await recordAudit(c, primary.audit);
       for (const u of updates) {
         await c.query(`UPDATE measures SET label = $1, min = $2, max = $3, is_integer = $4, required = $5 WHERE id = $6`, [
           u.label,
@@ -139,7 +146,7 @@ export class PostgresExperimentRepository implements ExperimentRepository {
           patch.plannedPerCondition !== undefined ? patch.plannedPerCondition : current.plannedPerCondition,
           patch.alpha ?? current.alpha,
           patch.thankYouUrl !== undefined ? patch.thankYouUrl : current.thankYouUrl,
-          JSON.stringify(mergeOptions(current.options, patch.options)),
+          JSON.stringify(mergeOptions(current.options, { ...patch.options, ...primary?.options })),
           now,
           experimentKey,
         ],

@@ -1,12 +1,14 @@
 /**
- * The audit trail (table audit_log, migrations/sqlite/0002_exclusions_audit.sql): who excluded, restored or erased what,
- * when and why. Rows are written by the repositories inside the transaction that makes the change (see
- * AuditWriter, used by responses.ts), so a change and its audit row commit together or not at all.
+ * The audit trail (table audit_log, migrations/sqlite/0002_exclusions_audit.sql, rebuilt by 0007): who excluded,
+ * restored or erased what, when and why, and who changed the primary outcome after answers existed (from which
+ * measure to which). Rows are written by the repositories inside the transaction that makes the change (see
+ * AuditWriter, used by responses.ts and experiments.ts), so a change and its audit row commit together or not at all.
  *
  * Erasure rows hold only the count and the time (and the key that did it): no respondent id, no response ids.
  * An erasure also redacts the response_id of earlier exclude/restore rows of the erased responses.
  */
 import type { SqliteDatabase } from './open.js';
+import type { AuditRecordInput } from '../primary-outcome.js';
 import type { AuditAction, AuditEntry, AuditRepository } from '../types.js';
 
 interface AuditRow {
@@ -19,6 +21,8 @@ interface AuditRow {
   at: string;
   data_version: number;
   redacted: number;
+  from_measure: string | null;
+  to_measure: string | null;
 }
 
 /** Prepared statements that write audit rows; call them only inside a write transaction. */
@@ -27,17 +31,28 @@ export class AuditWriter {
   private readonly redact;
 
   constructor(db: SqliteDatabase) {
-    this.insert = db.prepare<[number, AuditAction, string | null, string | null, number, number | null, string, number]>(
-      `INSERT INTO audit_log (experiment_id, action, response_id, reason, count, api_key_id, at, data_version)
-       VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
+    this.insert = db.prepare<[number, AuditAction, string | null, string | null, number, number | null, string, number, string | null, string | null]>(
+      `INSERT INTO audit_log (experiment_id, action, response_id, reason, count, api_key_id, at, data_version, from_measure, to_measure)
+       VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?)`,
     );
     this.redact = db.prepare<[number, string]>(
       `UPDATE audit_log SET response_id = NULL, redacted = 1 WHERE experiment_id = ? AND response_id = ?`,
     );
   }
 
-  record(entry: Omit<AuditEntry, 'id' | 'redacted'> & { experimentKey: number }): void {
-    this.insert.run(entry.experimentKey, entry.action, entry.responseId, entry.reason, entry.count, entry.apiKeyId, entry.at, entry.dataVersion);
+  record(entry: AuditRecordInput): void {
+    this.insert.run(
+      entry.experimentKey,
+      entry.action,
+      entry.responseId,
+      entry.reason,
+      entry.count,
+      entry.apiKeyId,
+      entry.at,
+      entry.dataVersion,
+      entry.fromMeasure ?? null,
+      entry.toMeasure ?? null,
+    );
   }
 
   /** Remove the link between earlier audit rows and an erased response. */
@@ -51,7 +66,7 @@ export class SqliteAuditRepository implements AuditRepository {
 
   constructor(db: SqliteDatabase) {
     this.listOf = db.prepare<[number, number], AuditRow>(
-      `SELECT id, action, response_id, reason, count, api_key_id, at, data_version, redacted
+      `SELECT id, action, response_id, reason, count, api_key_id, at, data_version, redacted, from_measure, to_measure
        FROM audit_log WHERE experiment_id = ? ORDER BY id DESC LIMIT ?`,
     );
   }
@@ -67,6 +82,8 @@ export class SqliteAuditRepository implements AuditRepository {
       at: r.at,
       dataVersion: r.data_version,
       redacted: r.redacted === 1,
+      fromMeasure: r.from_measure,
+      toMeasure: r.to_measure,
     }));
   }
 }

@@ -1,9 +1,12 @@
 /**
  * Experiments, their conditions and measures (SQLite). Definitions are read whole: one experiment row, its
  * conditions and measures in definition order. Per-condition counts come from counters that the ingest
- * transaction maintains (conditions.response_count / excluded_count), never from counting rows.
+ * transaction maintains (conditions.response_count / excluded_count), never from counting rows. A change of the
+ * primary outcome after answers exist writes its audit row in the update's transaction (store/primary-outcome.ts).
  */
 import { experimentRecord, type ConditionRow, type ExperimentRow, type MeasureRow } from '../experiment-rows.js';
+import { primaryOutcomeChange } from '../primary-outcome.js';
+import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
 import type {
   CreateExperimentResult,
@@ -73,9 +76,11 @@ export class SqliteExperimentRepository implements ExperimentRepository {
   private readonly createTx;
   private readonly updateTx;
   private readonly getTx;
+  private readonly audit: AuditWriter;
 
   constructor(private readonly db: SqliteDatabase) {
     this.reader = new ExperimentReader(db);
+    this.audit = new AuditWriter(db);
     this.insertExperiment = db.prepare<[string, string, number | null, number, string | null, string, string, string]>(
       `INSERT INTO experiments (slug, title, planned_per_condition, alpha, thank_you_url, options, created_at, updated_at)
        VALUES (?, ?, ?, ?, ?, ?, ?, ?)`,
@@ -153,6 +158,9 @@ export class SqliteExperimentRepository implements ExperimentRepository {
       }
       if (locked.length > 0) return { kind: 'limits-locked', measures: locked };
       if (invalid.length > 0) return { kind: 'invalid-limits', measures: invalid };
+      const primary = primaryOutcomeChange(current, patch.primary, now);
+      // The audit row first: a failure of any later statement rolls it back with the rest.
+      if (primary?.audit) this.audit.record(primary.audit);
       for (const u of measureUpdates) {
         this.updateMeasure.run(u.label, u.min, u.max, u.integer ? 1 : 0, u.required ? 1 : 0, u.m.key);
       }
@@ -162,7 +170,7 @@ export class SqliteExperimentRepository implements ExperimentRepository {
         patch.plannedPerCondition !== undefined ? patch.plannedPerCondition : current.plannedPerCondition,
         patch.alpha ?? current.alpha,
         patch.thankYouUrl !== undefined ? patch.thankYouUrl : current.thankYouUrl,
-        JSON.stringify(mergeOptions(current.options, patch.options)),
+        JSON.stringify(mergeOptions(current.options, { ...patch.options, ...primary?.options })),
         now,
         key,
       );

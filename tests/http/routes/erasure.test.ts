@@ -78,6 +78,8 @@ describe('DELETE /v1/experiments/{id}/respondents/{respondent}', () => {
       at: expect.stringMatching(/Z$/),
       dataVersion: 3,
       redacted: false,
+      fromMeasure: null,
+      toMeasure: null,
     });
     // The earlier exclusion of r-1 lost its link to the erased response.
     expect(audit[1]).toMatchObject({ action: 'exclude', responseId: null, redacted: true, reason: 'speeder' });

@@ -86,6 +86,8 @@ describe('POST/DELETE …/responses/{responseId}/exclusion', () => {
         at: expect.stringMatching(/^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\d\.\d{3}Z$/),
         dataVersion: 2,
         redacted: false,
+        fromMeasure: null,
+        toMeasure: null,
       },
     ]);
   });
