@@ -60,8 +60,8 @@ import type { OmnibusBody } from '../../schemas/omnibus.js';
 function effectiveMargin(t: ComparisonTarget, o: ComparisonOptions): number | null {
   return o.margin !== undefined ? o.margin : declaredMargin(t.experiment, t.measure);
 }
-import { computeWeighted } from './weighted.js';
-import { computeAdjusted } from './adjusted.js';
+import { answersInWeighted, computeWeighted, weightedFromSnapshot, type WeightedInput } from './weighted.js';
+import { adjustedFromRows, computeAdjusted, type AdjustedInput } from './adjusted.js';
 import type { AdjustedBlock } from '../../schemas/weighted.js';
 
 import { primaryOf, roleOf } from '../measure-roles.js';
@@ -383,7 +383,7 @@ export class ComparisonService {
       if (attempt > 0) s = await this.stamp(t.experiment);
       const base = await this.comparison(t, o, s);
       const value = await this.cached(this.adjustedKey(t, o, covariates, s), async () => {
-        const r = await computeAdjusted(this.store, t, covariates, o);
+        const r = await computeAdjusted(this.store, t, covariates, o, (input) => this.fitAdjusted(input));
         return { kind: 'adjusted', key: this.adjustedKey(t, o, covariates, { ...s, dataVersion: r.dataVersion }), dataVersion: r.dataVersion, block: r.block };
       });
       if (value.kind !== 'adjusted') throw new Error('cache entry of the wrong kind');
@@ -526,6 +526,40 @@ export class ComparisonService {
   }
 
   /**
+   * The statistics of a weighted block: in the worker pool when its snapshot holds at least workerMinValues answers
+   * (a continuous item's weighted answers are sorted to build the samples), else in-thread. The same function either way.
+   */
+  private async weightedStats(input: WeightedInput): Promise<ReturnType<typeof weightedFromSnapshot>> {
+    if (answersInWeighted(input.snapshot) < this.workerMinValues) {
+      return weightedFromSnapshot(input);
+    }
+    let fellBack = false;
+    const r = await this.workerPool().runOr<ReturnType<typeof weightedFromSnapshot>>({ kind: 'weighted', ...input }, () => {
+      fellBack = true;
+      return weightedFromSnapshot(input);
+    });
+    if (!fellBack) this.paths.workerComputes++;
+    return r;
+  }
+
+  /**
+   * Lin's covariate-adjusted fit, O(n·p²) with p = 2 + 2k: in the worker pool when rows × (1 + covariates) reach
+   * workerMinValues, else in-thread. The same function either way.
+   */
+  private async fitAdjusted(input: AdjustedInput): Promise<ReturnType<typeof adjustedFromRows>> {
+    if (input.rows.outcome.length * (1 + input.covariateNames.length) < this.workerMinValues) {
+      return adjustedFromRows(input);
+    }
+    let fellBack = false;
+    const r = await this.workerPool().runOr<ReturnType<typeof adjustedFromRows>>({ kind: 'adjusted', ...input }, () => {
+      fellBack = true;
+      return adjustedFromRows(input);
+    });
+    if (!fellBack) this.paths.workerComputes++;
+    return r;
+  }
+
+  /**
    * A box plot's SVG: drawn in the worker pool when its groups hold at least workerMinValues answers (the O(n)
    * summaries and the formatting of up to 2,000 dots per group took 50–80 ms of the request thread for two groups of
    * 20,000 on a loaded machine: tests/bench/read-cost.ts --cpu-prof), else in-thread. The same function either way,
@@ -630,7 +664,7 @@ export class ComparisonService {
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
     const margin = effectiveMargin(t, o);
     const { cmp, flags: unweightedFlags, sensitivity, equivalence: tost } = await this.compareAndFlag(t, o, snapshot, margin === null ? null : { margin, alpha: e.alpha });
-    const weighted = await computeWeighted(this.store, t, o, cmp);
+    const weighted = await computeWeighted(this.store, t, o, cmp, (input) => this.weightedStats(input));
     const flags = weighted ? [...unweightedFlags, ...weighted.flags] : unweightedFlags;
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;

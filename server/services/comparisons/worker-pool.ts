@@ -12,6 +12,8 @@
  *   compare  the two groups' Samples (fromSortedValues, or fromCounts for an integer measure read as per-value
  *            counts), compareSamples, computeFlags and the sensitivity view: pure stats/, plain objects back;
  *   omnibus  the Samples of every condition and compareConditionSamples (the omnibus route, omnibus.ts);
+ *   weighted the statistics of a comparison's weighted block (weighted.ts) from its weighted snapshot;
+ *   adjusted Lin's covariate-adjusted fit (adjusted.ts) from the per-respondent rows;
  *   chart    the box plot of two or more groups (views/charts/distribution.ts): the Samples, their summaries and the
  *            SVG text, so neither the O(n) summaries nor the thousands of formatted dots cost the main thread.
  *   trajectory  one measure's answers in arrival order, read by the engine's worker module (readArrivalInWorker) on
@@ -45,6 +47,9 @@ import { describe } from '../../../stats/descriptives.js';
 import { distributionGroupFromSample, type ChartScale } from '../../views/charts/common.js';
 import { renderDistributionChart } from '../../views/charts/distribution.js';
 import type { RunsSnapshot } from '../../store/types.js';
+import { weightedFromSnapshot, type WeightedInput, type WeightedResult } from './weighted.js';
+import { adjustedFromRows, type AdjustedInput } from './adjusted.js';
+import type { AdjustedBlock } from '../../schemas/weighted.js';
 import { trajectoryPoints, type ArrivalArrays, type TrajectoryOptions, type TrajectoryPointView } from '../monitoring/trajectory-points.js';
 
 export interface ReadTask {
@@ -139,7 +144,15 @@ export interface ChartTask extends GroupsForm {
   range?: 'scale' | 'data';
 }
 
-type Task = ReadTask | CompareTask | OmnibusTask | TrajectoryTask | ChartTask;
+export interface WeightedTask extends WeightedInput {
+  kind: 'weighted';
+}
+
+export interface AdjustedTask extends AdjustedInput {
+  kind: 'adjusted';
+}
+
+type Task = ReadTask | CompareTask | OmnibusTask | TrajectoryTask | ChartTask | WeightedTask | AdjustedTask;
 
 /** The same values on a SharedArrayBuffer (as they are when already shared), so a worker reads them without a copy. O(n). */
 export function shareable(x: Float64Array): Float64Array {
@@ -220,7 +233,11 @@ if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_M
               ? await trajectoryIn(t)
               : t.kind === 'chart'
                 ? chartGroups(t)
-                : compareGroups(t);
+                : t.kind === 'weighted'
+                  ? weightedFromSnapshot(t)
+                  : t.kind === 'adjusted'
+                    ? adjustedFromRows(t)
+                    : compareGroups(t);
       reply = { id: msg.id, ok: true, result };
     } catch (err) {
       reply = { id: msg.id, ok: false, message: err instanceof Error ? `${err.name}: ${err.message}` : String(err) };
@@ -268,6 +285,8 @@ export class ComparePool {
   run(task: OmnibusTask): Promise<ConditionsComparison>;
   run(task: TrajectoryTask): Promise<TrajectoryResult>;
   run(task: ChartTask): Promise<string>;
+  run(task: WeightedTask): Promise<Omit<WeightedResult, 'dataVersion'>>;
+  run(task: AdjustedTask): Promise<AdjustedBlock>;
   run(task: Task): Promise<unknown> {
     const slot = this.slot();
     if (!slot) return Promise.reject(new Error('no comparison worker available'));
@@ -283,7 +302,7 @@ export class ComparePool {
   /** Run in a worker, or in-thread with `fallback` when the worker fails. */
   async runOr<T>(task: Task, fallback: () => T): Promise<T> {
     try {
-      return (await this.run(task as ReadTask & CompareTask & TrajectoryTask & ChartTask)) as T;
+      return (await this.run(task as ReadTask & CompareTask & TrajectoryTask & ChartTask & WeightedTask & AdjustedTask)) as T;
     } catch {
       this.stats.fallbacks++;
       return fallback();

@@ -4,7 +4,9 @@
  * (SVG text), and the omnibus of an integer item, computed in the worker pool (workerMinValues 0) and in-thread
  * (workerMinValues ∞) on the same data: the same JSON apart from computedAt, the same SVG bytes, the same ETags. The
  * charts are also compared with the box plot drawn straight from the stats Samples as the service drew it before
- * (views/charts on fromCounts / fromSortedValues). Identical requests that arrive together share one computation.
+ * (views/charts on fromCounts / fromSortedValues). The weighted block and the covariate-adjusted block (Lin's fit)
+ * computed in the worker pool equal the in-thread ones too. Identical requests that arrive together share one
+ * computation.
  */
 import { afterAll, describe, expect, it } from 'vitest';
 import { ComparePool } from '../../../server/services/comparisons/worker-pool.js';
@@ -95,6 +97,53 @@ function services(store: SqliteStore): { inWorker: ComparisonService; inThread: 
   };
 }
 
+/** Two conditions with survey weights; a 1–7 item, a continuous item and a covariate; 2,400 invented answers. */
+async function weightedStudy(): Promise<{ store: SqliteStore; e: ExperimentRecord }> {
+  const store = openSqliteStore(`${tempDir()}/off-thread-weights.db`);
+  stores.push(store);
+  const created = await store.experiments.create({
+    id: 'weighted',
+    title: 'Weighted study (invented data)',
+    conditions: ['p', 'q'].map((id) => ({ id, label: `Condition ${id.toUpperCase()}` })),
+    measures: [
+      { id: 'agree', label: 'Agreement 1–7', min: 1, max: 7, integer: true, required: true },
+      { id: 'spend', label: 'Spend', min: 0, max: 500, integer: false, required: true },
+      { id: 'age', label: 'Age', min: 18, max: 99, integer: true, required: false, role: 'covariate' },
+    ],
+    plannedPerCondition: null,
+    alpha: 0.05,
+    thankYouUrl: null,
+    options: { weights: 'optional' },
+  });
+  if (created.kind !== 'created') throw new Error('experiment not created');
+  const e = created.experiment;
+  const rand = lcg(97);
+  const items: ValidResponse[] = Array.from({ length: 2400 }, (_, i) => {
+    const c = i % 2;
+    const age = 18 + Math.floor(rand() * 60);
+    const agree = Math.min(7, 1 + Math.floor(rand() * 6) + (c === 0 && rand() < 0.2 ? 1 : 0));
+    const spend = Math.round((rand() * 300 + age * 1.5 + c * 10) * 100) / 100;
+    const weight = i % 10 === 3 ? null : Math.round((0.5 + rand() * 2) * 1000) / 1000;
+    const values = new Map<number, number>([
+      [e.measures[0].key, agree],
+      [e.measures[1].key, spend],
+    ]);
+    const answered: [string, number][] = [
+      ['agree', agree],
+      ['spend', spend],
+    ];
+    if (i % 17 !== 5) {
+      values.set(e.measures[2].key, age);
+      answered.push(['age', age]);
+    }
+    const id = e.conditions[c].id;
+    return { responseId: `w${i}`, generated: false, conditionKey: e.conditions[c].key, respondent: null, weight, submittedAt: '2027-03-01T12:00:00.000Z', values, contentHash: contentHash(id, null, answered, weight) };
+  });
+  const stored = await store.responses.ingest(e.key, items, '2027-03-01T12:00:00.000Z', null);
+  if (stored.kind !== 'stored') throw new Error(`not stored: ${stored.kind}`);
+  return { store, e: (await store.experiments.getBySlug('weighted'))! };
+}
+
 const strip = (body: object): unknown => JSON.parse(JSON.stringify({ ...body, computedAt: null }));
 
 describe('work moved off the request thread', () => {
@@ -182,6 +231,28 @@ describe('work moved off the request thread', () => {
       }
     }
     expect(inWorker.paths.workerComputes).toBe(e.measures.length * 2);
+    expect(inThread.paths.workerComputes).toBe(0);
+    expect(pool.stats.fallbacks).toBe(0);
+  });
+
+  it('the weighted block and the covariate-adjusted block computed in a worker equal the in-thread ones', async () => {
+    const { store, e } = await weightedStudy();
+    const { inWorker, inThread, pool } = services(store);
+    const covariates = [e.measures[2]];
+    for (const measure of e.measures.slice(0, 2)) {
+      const target: ComparisonTarget = { experiment: e, measure, a: e.conditions[0], b: e.conditions[1] };
+      for (const options of [DEFAULT_COMPARISON_OPTIONS, { alternative: 'greater' as const, confidenceLevel: 0.9, includeExcluded: false }]) {
+        const w = await inWorker.comparisonWithAdjustment(target, options, covariates);
+        store.responses.sortedCache.clear();
+        const t = await inThread.comparisonWithAdjustment(target, options, covariates);
+        expect(w.body.weighted, measure.id).not.toBeNull();
+        expect(w.body.adjusted, measure.id).toBeDefined();
+        expect(JSON.stringify(strip(w.body))).toBe(JSON.stringify(strip(t.body)));
+        expect(w.etag).toBe(t.etag);
+      }
+    }
+    // Per request: the comparison, its weighted block and the adjusted fit, each in the worker.
+    expect(inWorker.paths.workerComputes).toBe(2 * 2 * 3);
     expect(inThread.paths.workerComputes).toBe(0);
     expect(pool.stats.fallbacks).toBe(0);
   });
