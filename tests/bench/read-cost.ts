@@ -20,7 +20,12 @@
  * Printed per phase: the probe's p50 / p99 / max (ms) and failed answers, the server's event-loop delay max and p99
  * (ms; prom-client's nodejs_eventloop_lag_max_seconds and _p99_seconds, read from perf_hooks.monitorEventLoopDelay in
  * the server and reset at each scrape, so one scrape before and one after a phase give that phase's figures), the
- * replies by status (0: the connection failed), and the server's peak rss. --family-requests K (default 40) sets how
+ * replies by status (0: the connection failed), the computations the server made in the phase (cache misses of
+ * comparisons, charts, omnibus and trajectories, with their mean wall time from the request's start: time spent
+ * waiting for a worker counts), and the server's peak rss. A control — a bare Node process that does nothing but
+ * measure its own event-loop delay the same way — runs beside the server: its max is what the machine alone does
+ * to a loop (a process that is not scheduled cannot run its loop; on a shared 2-core machine with a load average of 7
+ * that alone reaches 100 ms and more), so a server delay near the control's is the machine, not the code. --family-requests K (default 40) sets how
  * many pairs=all requests are sent.
  *
  * --cpu-prof DIR runs the server with `node --cpu-prof` (profile written to DIR when it stops) and then prints every
@@ -28,7 +33,9 @@
  * functions that held it (tests/bench/stall-profile.ts). Profiling slows the server a little: compare figures of runs
  * with the same flags.
  */
+import { spawn } from 'node:child_process';
 import { mkdirSync, readdirSync, readFileSync } from 'node:fs';
+import { createInterface } from 'node:readline';
 import { join, resolve } from 'node:path';
 import { generateStream } from './data.js';
 import { busyStretches, formatStretches, type CpuProfile } from './stall-profile.js';
@@ -47,17 +54,55 @@ const STALL_MS = argNum('--stall-ms', 50);
 /** The monotonic clock in µs: the clock of the server's CPU profile timestamps (same machine). */
 const monotonicMicros = (): number => Number(process.hrtime.bigint() / 1000n);
 
-/** The server's event-loop delay (max and p99, ms) since the previous scrape. */
-async function lagMs(s: RunningServer, key: string): Promise<{ max: number; p99: number } | null> {
+interface Scrape {
+  /** Event-loop delay since the previous scrape, ms. */
+  max: number;
+  p99: number;
+  /** Running totals: computations (cache misses) and their summed duration, s. */
+  computed: number;
+  computeSeconds: number;
+}
+
+/** The server's event-loop delay (max and p99, ms) since the previous scrape, and its computation counters. */
+async function lagMs(s: RunningServer, key: string): Promise<Scrape | null> {
   const r = await fetch(`${s.url}/metrics`, { headers: { authorization: `Bearer ${key}` } });
   if (!r.ok) return null;
   const text = await r.text();
-  const gauge = (name: string): number => {
-    const m = text.match(new RegExp(`^${name}(?:\\{[^}]*\\})?\\s+([0-9.eE+-]+)`, 'm'));
-    return m ? Number(m[1]) * 1000 : NaN;
+  const value = (name: string, labels = ''): number => {
+    const m = text.match(new RegExp(`^${name}${labels ? `\\{${labels}\\}` : '(?:\\{[^}]*\\})?'}\\s+([0-9.eE+-]+)`, 'm'));
+    return m ? Number(m[1]) : NaN;
   };
-  return { max: gauge('nodejs_eventloop_lag_max_seconds'), p99: gauge('nodejs_eventloop_lag_p99_seconds') };
+  return {
+    max: value('nodejs_eventloop_lag_max_seconds') * 1000,
+    p99: value('nodejs_eventloop_lag_p99_seconds') * 1000,
+    computed: value('splitballot_comparison_duration_seconds_count'),
+    computeSeconds: value('splitballot_comparison_duration_seconds_sum'),
+  };
 }
+
+/**
+ * A bare Node process measuring its own event-loop delay (perf_hooks.monitorEventLoopDelay, as prom-client does in
+ * the server): each `scrape()` answers the max and p99 (ms) since the previous one.
+ */
+function controlLoop(): { scrape(): Promise<{ max: number; p99: number }>; stop(): void } {
+  const code =
+    "const { monitorEventLoopDelay } = require('node:perf_hooks');" +
+    'const h = monitorEventLoopDelay({ resolution: 10 }); h.enable();' +
+    "require('node:readline').createInterface({ input: process.stdin }).on('line', () => {" +
+    "  process.stdout.write(JSON.stringify({ max: h.max / 1e6, p99: h.percentile(99) / 1e6 }) + '\\n'); h.reset(); });";
+  const child = spawn(process.execPath, ['-e', code], { stdio: ['pipe', 'pipe', 'inherit'] });
+  const waiting: ((v: { max: number; p99: number }) => void)[] = [];
+  createInterface({ input: child.stdout! }).on('line', (line) => waiting.shift()?.(JSON.parse(line) as { max: number; p99: number }));
+  return {
+    scrape: () =>
+      new Promise((resolve) => {
+        waiting.push(resolve);
+        child.stdin!.write('scrape\n');
+      }),
+    stop: () => child.kill(),
+  };
+}
+const control = controlLoop();
 
 /** Single answers to the probe study, one after another, until stopped. */
 function probe(s: RunningServer, key: string): { stop(): Promise<number[]>; failures(): number } {
@@ -110,7 +155,10 @@ async function createWide(s: RunningServer, key: string, id: string, k: number, 
 interface PhaseResult {
   name: string;
   probe: number[];
-  lag: { max: number; p99: number } | null;
+  lag: Scrape | null;
+  /** The server's computation totals when the phase began. */
+  before: Scrape | null;
+  control: { max: number; p99: number };
   /** When the phase ran, µs on the monotonic clock. */
   startMicros: number;
   endMicros: number;
@@ -120,7 +168,8 @@ interface PhaseResult {
 
 async function phase(s: RunningServer, key: string, name: string, work: (count: (status: number) => void) => Promise<string>): Promise<PhaseResult> {
   log(`phase: ${name}`);
-  await lagMs(s, key);
+  const before = await lagMs(s, key);
+  await control.scrape();
   const startMicros = monotonicMicros();
   const statuses = new Map<number, number>();
   const p = probe(s, key);
@@ -128,7 +177,8 @@ async function phase(s: RunningServer, key: string, name: string, work: (count: 
   const ms = await p.stop();
   const failed = p.failures();
   const endMicros = monotonicMicros();
-  return { name, probe: ms, lag: await lagMs(s, key), startMicros, endMicros, statuses, note: failed > 0 ? `${note} ${failed} probe answers failed`.trim() : note };
+  const controlLag = await control.scrape();
+  return { name, probe: ms, lag: await lagMs(s, key), before, control: controlLag, startMicros, endMicros, statuses, note: failed > 0 ? `${note} ${failed} probe answers failed`.trim() : note };
 }
 
 /** A page-like client: `old` re-fetches everything on every change; `new` revalidates at most every 2 s. */
@@ -261,14 +311,19 @@ async function main(): Promise<void> {
       Math.max(...r.probe).toFixed(1),
       r.lag === null ? '–' : r.lag.max.toFixed(0),
       r.lag === null ? '–' : r.lag.p99.toFixed(0),
+      `${r.control.max.toFixed(0)} / ${r.control.p99.toFixed(0)}`,
+      r.lag === null || r.before === null
+        ? '–'
+        : `${r.lag.computed - r.before.computed} (${r.lag.computed > r.before.computed ? fmt.int((1000 * (r.lag.computeSeconds - r.before.computeSeconds)) / (r.lag.computed - r.before.computed)) : 0} ms)`,
       [...r.statuses].sort((a, b) => a[0] - b[0]).map(([st, c]) => `${st}×${c}`).join(' '),
       r.note,
     ]);
     const summary =
       `read cost, polled study 2 × ${fmt.int(N)}, ${SECONDS} s per page phase; peak rss ${rss ? rss.peakMb.toFixed(0) : '?'} MB\n` +
-      table(['phase', 'probes', 'ingest p50 ms', 'p99 ms', 'max ms', 'loop delay max ms', 'loop delay p99 ms', 'replies', 'note'], rows);
+      table(['phase', 'probes', 'ingest p50 ms', 'p99 ms', 'max ms', 'loop delay max ms', 'loop delay p99 ms', 'control max / p99 ms', 'computed (mean)', 'replies', 'note'], rows);
     process.stdout.write(`${summary}\n`);
   } finally {
+    control.stop();
     await s.stop();
     env.cleanup();
   }
