@@ -60,7 +60,7 @@ import type { OmnibusBody } from '../../schemas/omnibus.js';
 function effectiveMargin(t: ComparisonTarget, o: ComparisonOptions): number | null {
   return o.margin !== undefined ? o.margin : declaredMargin(t.experiment, t.measure);
 }
-import { answersInWeighted, computeWeighted, weightedFromSnapshot, type WeightedInput } from './weighted.js';
+import { valuesInWeighted, computeWeighted, weightedFromSnapshot, type WeightedInput } from './weighted.js';
 import { adjustedFromRows, computeAdjusted, type AdjustedInput } from './adjusted.js';
 import type { AdjustedBlock } from '../../schemas/weighted.js';
 
@@ -68,21 +68,43 @@ import { primaryOf, roleOf } from '../measure-roles.js';
 import { flaggedAnswers } from './flagged-answers.js';
 import { ProblemError } from '../../errors.js';
 
-/** The answers a snapshot's groups hold: the sum of per-value counts, or the number of sorted values. O(groups × values). */
-function answersIn(groups: readonly Float64Array[], counts: boolean): number {
+/**
+ * What the work on a snapshot's groups grows with, in the unit of workerMinValues: the values the arrays hold — the
+ * sorted values of a continuous item (summaries, ranks, the chart's O(n) pass), or the per-value counts of an integer
+ * item (its statistics cost O(distinct values) whatever the number of answers: 2–10 ms of CPU for a 0–100 item, so
+ * those stay in-thread unless the scale is thousands of values wide). O(groups).
+ */
+function valuesHeld(groups: readonly Float64Array[]): number {
   let n = 0;
-  for (const g of groups) {
-    if (!counts) n += g.length;
-    else for (let k = 0; k < g.length; k++) n += g[k];
-  }
+  for (const g of groups) n += g.length;
   return n;
 }
 
+/** Dots a box plot draws per group at most (distributionGroupFromSample's evenly spaced subsample). */
+const CHART_DOTS_PER_GROUP = 2000;
+
 /**
- * What one pair of conditions adds to the cost of an omnibus, in answers (the unit of workerMinValues): its
- * Games–Howell p-value (a studentized-range integral) and Dunn test take ≈ 4 ms whatever the group sizes, about as
- * long as a comparison of 2,000 values; an 8-condition integer item (28 pairs) took 100–160 ms in the request
- * thread. So an omnibus of three or more conditions always runs in the worker pool at the default minimum (4,000).
+ * What drawing a box plot grows with, in the unit of workerMinValues: the sorted values of a continuous item (O(n)
+ * summaries and whiskers, then its dots), or for an integer item read as counts the dots it draws (up to 2,000 a group:
+ * formatting them is most of the time) plus its per-value counts. O(groups × counts).
+ */
+function chartCost(task: Omit<ChartTask, 'kind'>): number {
+  if (!task.counts) return valuesHeld(task.groups);
+  let cost = 0;
+  for (const g of task.groups) {
+    let n = 0;
+    for (let k = 0; k < g.length; k++) n += g[k];
+    cost += g.length + Math.min(n, CHART_DOTS_PER_GROUP);
+  }
+  return cost;
+}
+
+/**
+ * What one pair of conditions adds to the cost of an omnibus, in the unit of workerMinValues: its Games–Howell
+ * p-value (a studentized-range integral) and Dunn test take ≈ 3 ms of CPU whatever the group sizes (8 conditions of a
+ * 0–10 item, 28 pairs: 75–83 ms of CPU, 100–160 ms of the request thread on a loaded machine), about as long as the
+ * work on 2,000 sorted values. So an omnibus of three or more conditions runs in the worker pool at the default
+ * minimum (4,000).
  */
 export const OMNIBUS_PAIR_COST = 2000;
 
@@ -267,7 +289,7 @@ export class ComparisonService {
       let inWorker = false;
       const runner = async (task: Omit<OmnibusTask, 'kind'>) => {
         const k = task.groups.length;
-        const cost = answersIn(task.groups, task.counts !== undefined) + ((k * (k - 1)) / 2) * OMNIBUS_PAIR_COST;
+        const cost = valuesHeld(task.groups) + ((k * (k - 1)) / 2) * OMNIBUS_PAIR_COST;
         if (cost < this.workerMinValues) return omnibusGroups(task);
         const groups = task.counts ? task.groups : task.groups.map((g) => shareable(g));
         let fellBack = false;
@@ -526,11 +548,11 @@ export class ComparisonService {
   }
 
   /**
-   * The statistics of a weighted block: in the worker pool when its snapshot holds at least workerMinValues answers
+   * The statistics of a weighted block: in the worker pool when its snapshot holds at least workerMinValues values
    * (a continuous item's weighted answers are sorted to build the samples), else in-thread. The same function either way.
    */
   private async weightedStats(input: WeightedInput): Promise<ReturnType<typeof weightedFromSnapshot>> {
-    if (answersInWeighted(input.snapshot) < this.workerMinValues) {
+    if (valuesInWeighted(input.snapshot) < this.workerMinValues) {
       return weightedFromSnapshot(input);
     }
     let fellBack = false;
@@ -560,13 +582,14 @@ export class ComparisonService {
   }
 
   /**
-   * A box plot's SVG: drawn in the worker pool when its groups hold at least workerMinValues answers (the O(n)
-   * summaries and the formatting of up to 2,000 dots per group took 50–80 ms of the request thread for two groups of
-   * 20,000 on a loaded machine: tests/bench/read-cost.ts --cpu-prof), else in-thread. The same function either way,
-   * so the text is the same.
+   * A box plot's SVG: drawn in the worker pool when its cost (chartCost) reaches workerMinValues — two continuous
+   * groups of 20,000 (O(n) summaries and whiskers, 2,000 formatted dots a group: 10–16 ms of CPU, 50–200 ms of the
+   * request thread on a loaded machine: tests/bench/read-cost.ts --cpu-prof), or an integer item with 2,000 answers
+   * or more in all (≈ 5 ms of CPU for 4,000 dots, 40–65 ms on that machine) — else in-thread. The same function
+   * either way, so the text is the same.
    */
   private async renderChart(task: Omit<ChartTask, 'kind'>): Promise<string> {
-    if (answersIn(task.groups, task.counts !== undefined) < this.workerMinValues) {
+    if (chartCost(task) < this.workerMinValues) {
       this.paths.inThreadCharts++;
       return chartGroups(task);
     }
@@ -608,9 +631,9 @@ export class ComparisonService {
 
   /**
    * Stats, flags, the sensitivity view and (with a margin) the equivalence tests of a comparison: in a worker when
-   * the two groups hold at least workerMinValues answers — sorted values, or per-value counts of an integer item
-   * (whose sensitivity view and flags cost 40–60 ms of the request thread for two groups of 20,000 answers on a
-   * loaded machine: tests/bench/read-cost.ts --cpu-prof) — else in-thread. The same function either way.
+   * the two groups hold at least workerMinValues values (sorted values; or per-value counts of an integer item whose
+   * scale is that wide), else in-thread (an integer item of a usual scale: 2–10 ms of CPU at any n, which a worker's
+   * queue would only delay). The same function either way.
    */
   private async compareAndFlag(
     t: ComparisonTarget,
@@ -629,7 +652,7 @@ export class ComparisonService {
       flagContext: flagContext(t, snapshot, o.includeExcluded),
       ...(tost ? { equivalence: tost } : {}),
     };
-    if (answersIn([ga, gb], counts) < this.workerMinValues) {
+    if (valuesHeld([ga, gb]) < this.workerMinValues) {
       this.paths.inThreadComputes++;
       return compareGroups(task);
     }

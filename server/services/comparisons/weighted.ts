@@ -54,14 +54,13 @@ export interface WeightedInput {
 /** Where the statistics of a weighted block run (the service passes its worker pool; in-thread by default). */
 export type WeightedRunner = (input: WeightedInput) => Promise<Omit<WeightedResult, 'dataVersion'>>;
 
-/** The answers a weighted snapshot holds (weighted or not), the measure of its cost. O(groups × values). */
-export function answersInWeighted(snapshot: WeightedSnapshot): number {
+/**
+ * What the work on a weighted snapshot grows with: the weighted answers of a continuous item (sorted to build the
+ * samples), or the per-value sums of an integer item (O(distinct values) whatever the number of answers). O(groups).
+ */
+export function valuesInWeighted(snapshot: WeightedSnapshot): number {
   let n = 0;
-  for (const g of snapshot.groups) {
-    n += g.unweighted;
-    if (g.kind === 'pairs') n += g.values.length;
-    else for (let k = 0; k < g.counts.length; k++) n += g.counts[k];
-  }
+  for (const g of snapshot.groups) n += g.kind === 'pairs' ? g.values.length : g.counts.length;
   return n;
 }
 
