@@ -7,13 +7,14 @@
  * not the outcome itself; anything else is a 422 listing every bad name. Reading: the store's per-respondent rows
  * (responses of the two conditions that answered the outcome, with their covariate answers; complete cases are
  * used, missing covariates counted). Cost O(n·k) to read and O(n·p²) to fit, p = 2 + 2k; the comparison service
- * caches the result by dataVersion like a comparison.
+ * caches the result by dataVersion like a comparison, and fits it in its worker pool when the rows are many (the
+ * runner; `adjustedFromRows` is pure).
  */
 import { covariateAdjusted } from '../../../stats/covariate-adjustment.js';
 import { ProblemError } from '../../errors.js';
 import type { FieldError } from '../../schemas/common.js';
 import type { AdjustedBlock } from '../../schemas/weighted.js';
-import type { ExperimentRecord, MeasureRecord, Store } from '../../store/types.js';
+import type { AdjustmentRows, ExperimentRecord, MeasureRecord, Store } from '../../store/types.js';
 import type { ComparisonTarget } from '../targets.js';
 
 /** At most this many covariates in one request (p = 2 + 2k parameters). */
@@ -45,12 +46,34 @@ export function resolveCovariates(experiment: ExperimentRecord, outcome: Measure
   return out;
 }
 
-/** Lin's adjusted comparison for a target, with the dataVersion of the rows it used. O(n·p²). */
+/** The fit of an adjusted block: pure, so it runs in a worker thread as well as in-thread. */
+export interface AdjustedInput {
+  rows: AdjustmentRows;
+  covariateNames: string[];
+  alternative: 'two-sided' | 'less' | 'greater';
+  confidenceLevel: number;
+}
+
+/** Where the fit runs (the service passes its worker pool; in-thread by default). */
+export type AdjustedRunner = (input: AdjustedInput) => Promise<AdjustedBlock>;
+
+/** The adjusted block from the rows: Lin's fit (stats/covariate-adjustment.ts). O(n·p²). */
+export function adjustedFromRows(input: AdjustedInput): AdjustedBlock {
+  const { rows, covariateNames: names } = input;
+  const result = covariateAdjusted(
+    { outcome: rows.outcome, inA: rows.inA, covariates: rows.covariates, covariateNames: names },
+    { alternative: input.alternative, confidenceLevel: input.confidenceLevel },
+  );
+  return { covariates: names, ...result } as AdjustedBlock;
+}
+
+/** Lin's adjusted comparison for a target, with the dataVersion of the rows it used. O(n·k) to read, O(n·p²) to fit. */
 export async function computeAdjusted(
   store: Store,
   t: ComparisonTarget,
   covariates: MeasureRecord[],
   options: { alternative: 'two-sided' | 'less' | 'greater'; confidenceLevel: number; includeExcluded: boolean },
+  run: AdjustedRunner = async (input) => adjustedFromRows(input),
 ): Promise<{ dataVersion: number; block: AdjustedBlock }> {
   const rows = await store.responses.getAdjustmentRows(
     t.measure.key,
@@ -58,10 +81,6 @@ export async function computeAdjusted(
     [t.a.key, t.b.key],
     options.includeExcluded,
   );
-  const names = covariates.map((c) => c.id);
-  const result = covariateAdjusted(
-    { outcome: rows.outcome, inA: rows.inA, covariates: rows.covariates, covariateNames: names },
-    { alternative: options.alternative, confidenceLevel: options.confidenceLevel },
-  );
-  return { dataVersion: rows.dataVersion, block: { covariates: names, ...result } as AdjustedBlock };
+  const input: AdjustedInput = { rows, covariateNames: covariates.map((c) => c.id), alternative: options.alternative, confidenceLevel: options.confidenceLevel };
+  return { dataVersion: rows.dataVersion, block: await run(input) };
 }

@@ -26,20 +26,28 @@
  * requests that miss at the same time share one computation.
  */
 import { createHash } from 'node:crypto';
-import { describe } from '../../../stats/descriptives.js';
 import { computeFlags, type FlagContext } from '../../../stats/flags.js';
 import { adjustPValues, type AdjustMethod } from '../../../stats/adjust.js';
-import { compareSamples, fromCounts, type Alternative, type ConditionsComparison, type Sample } from '../../../stats/index.js';
+import { compareSamples, fromCounts, type Alternative, type ConditionsComparison } from '../../../stats/index.js';
 import type { ComparisonStamp, ExperimentRecord, MeasureRecord, MeasureSnapshot, RunsSnapshot, Store } from '../../store/types.js';
 import { COMPARE_WORKER_MIN_DEFAULT } from '../../config.js';
-import { readSnapshot, readsCounts, samplesOf } from '../samples.js';
+import { readSnapshot, readsCounts } from '../samples.js';
 import { LruCache } from './cache.js';
-import { compareSorted, omnibusSorted, sensitivityOf, shareable, sharedComparePool, type ComparePool, type CompareResult, type OmnibusTask } from './worker-pool.js';
+import {
+  chartGroups,
+  compareGroups,
+  omnibusGroups,
+  shareable,
+  sharedComparePool,
+  type ChartTask,
+  type ComparePool,
+  type CompareResult,
+  type CompareTask,
+  type OmnibusTask,
+} from './worker-pool.js';
 import { computeMonitoring } from '../monitoring/interim.js';
 import { computeTrajectory, type TrajectoryBody } from '../monitoring/trajectory.js';
 import { renderTrajectoryChart } from '../../views/charts/trajectory.js';
-import { distributionGroupFromSample } from '../../views/charts/common.js';
-import { renderDistributionChart } from '../../views/charts/distribution.js';
 import { experimentNotFound, familyTargets, type ComparisonTarget } from '../targets.js';
 import { ComparisonSchema, FamilyEntrySchema, FamilySchema, type ComparisonBody, type FamilyBody, type FamilyEntry } from '../../schemas/comparisons.js';
 import { z } from 'zod';
@@ -47,19 +55,58 @@ import { comparisonBody, flagContext } from './reply.js';
 import { computeOmnibus, renderOmnibusChart, type OmnibusOptions } from './omnibus.js';
 import { declaredMargin } from './margin.js';
 import type { OmnibusBody } from '../../schemas/omnibus.js';
-import { equivalence } from '../../../stats/equivalence.js';
 
 /** The margin a pairwise comparison uses: the checked override when given, else the measure's declared margin. */
 function effectiveMargin(t: ComparisonTarget, o: ComparisonOptions): number | null {
   return o.margin !== undefined ? o.margin : declaredMargin(t.experiment, t.measure);
 }
-import { computeWeighted } from './weighted.js';
-import { computeAdjusted } from './adjusted.js';
+import { valuesInWeighted, computeWeighted, weightedFromSnapshot, type WeightedInput } from './weighted.js';
+import { adjustedFromRows, computeAdjusted, type AdjustedInput } from './adjusted.js';
 import type { AdjustedBlock } from '../../schemas/weighted.js';
 
 import { primaryOf, roleOf } from '../measure-roles.js';
 import { flaggedAnswers } from './flagged-answers.js';
 import { ProblemError } from '../../errors.js';
+
+/**
+ * What the work on a snapshot's groups grows with, in the unit of workerMinValues: the values the arrays hold — the
+ * sorted values of a continuous item (summaries, ranks, the chart's O(n) pass), or the per-value counts of an integer
+ * item (its statistics cost O(distinct values) whatever the number of answers: 2–10 ms of CPU for a 0–100 item, so
+ * those stay in-thread unless the scale is thousands of values wide). O(groups).
+ */
+function valuesHeld(groups: readonly Float64Array[]): number {
+  let n = 0;
+  for (const g of groups) n += g.length;
+  return n;
+}
+
+/** Dots a box plot draws per group at most (distributionGroupFromSample's evenly spaced subsample). */
+const CHART_DOTS_PER_GROUP = 2000;
+
+/**
+ * What drawing a box plot grows with, in the unit of workerMinValues: the sorted values of a continuous item (O(n)
+ * summaries and whiskers, then its dots), or for an integer item read as counts the dots it draws (up to 2,000 a group:
+ * formatting them is most of the time) plus its per-value counts. O(groups × counts).
+ */
+function chartCost(task: Omit<ChartTask, 'kind'>): number {
+  if (!task.counts) return valuesHeld(task.groups);
+  let cost = 0;
+  for (const g of task.groups) {
+    let n = 0;
+    for (let k = 0; k < g.length; k++) n += g[k];
+    cost += g.length + Math.min(n, CHART_DOTS_PER_GROUP);
+  }
+  return cost;
+}
+
+/**
+ * What one pair of conditions adds to the cost of an omnibus, in the unit of workerMinValues: its Games–Howell
+ * p-value (a studentized-range integral) and Dunn test take ≈ 3 ms of CPU whatever the group sizes (8 conditions of a
+ * 0–10 item, 28 pairs: 75–83 ms of CPU, 100–160 ms of the request thread on a loaded machine), about as long as the
+ * work on 2,000 sorted values. So an omnibus of three or more conditions runs in the worker pool at the default
+ * minimum (4,000).
+ */
+export const OMNIBUS_PAIR_COST = 2000;
 
 /** Let timers and I/O run between two slices of a long computation (each slice stays well under ~50 ms). */
 const nextTurn = (): Promise<void> => new Promise((resolve) => setImmediate(resolve));
@@ -181,7 +228,7 @@ export class ComparisonService {
   private readonly pool: ComparePool | null;
   private readonly onComparison: (event: ComparisonEvent) => void;
   /** Where the heavy steps ran (tests and benchmarks). */
-  readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0, trajectories: 0 };
+  readonly paths = { workerReads: 0, workerComputes: 0, inThreadComputes: 0, trajectories: 0, workerCharts: 0, inThreadCharts: 0 };
 
   constructor(
     private readonly store: Store,
@@ -241,13 +288,14 @@ export class ComparisonService {
     const value = await this.cached(this.omnibusKey(e, m, o, s), async () => {
       let inWorker = false;
       const runner = async (task: Omit<OmnibusTask, 'kind'>) => {
-        const total = task.groups.reduce((sum, g) => sum + g.length, 0);
-        if (total < this.workerMinValues) return omnibusSorted(task);
-        const groups = task.groups.map((g) => shareable(g));
+        const k = task.groups.length;
+        const cost = valuesHeld(task.groups) + ((k * (k - 1)) / 2) * OMNIBUS_PAIR_COST;
+        if (cost < this.workerMinValues) return omnibusGroups(task);
+        const groups = task.counts ? task.groups : task.groups.map((g) => shareable(g));
         let fellBack = false;
         const r = await this.workerPool().runOr<ConditionsComparison>({ kind: 'omnibus', ...task, groups }, () => {
           fellBack = true;
-          return omnibusSorted(task);
+          return omnibusGroups(task);
         });
         inWorker = !fellBack;
         return r;
@@ -265,7 +313,7 @@ export class ComparisonService {
   async omnibusChart(e: ExperimentRecord, m: MeasureRecord, includeExcluded: boolean, stamp?: Stamp): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(e));
     const value = await this.cached(this.omnibusChartKey(e, m, includeExcluded, s), async () => {
-      const { svg, snapshot } = await renderOmnibusChart(this.store, e, m, includeExcluded);
+      const { svg, snapshot } = await renderOmnibusChart(this.store, e, m, includeExcluded, (task) => this.renderChart(task));
       return { kind: 'chart', key: this.omnibusChartKey(e, m, includeExcluded, snapshot), svg };
     });
     if (value.kind !== 'chart') throw new Error('cache entry of the wrong kind');
@@ -357,7 +405,7 @@ export class ComparisonService {
       if (attempt > 0) s = await this.stamp(t.experiment);
       const base = await this.comparison(t, o, s);
       const value = await this.cached(this.adjustedKey(t, o, covariates, s), async () => {
-        const r = await computeAdjusted(this.store, t, covariates, o);
+        const r = await computeAdjusted(this.store, t, covariates, o, (input) => this.fitAdjusted(input));
         return { kind: 'adjusted', key: this.adjustedKey(t, o, covariates, { ...s, dataVersion: r.dataVersion }), dataVersion: r.dataVersion, block: r.block };
       });
       if (value.kind !== 'adjusted') throw new Error('cache entry of the wrong kind');
@@ -371,12 +419,14 @@ export class ComparisonService {
   async chart(t: ComparisonTarget, includeExcluded: boolean, stamp?: Stamp, range: 'scale' | 'data' = 'scale'): Promise<{ svg: string; etag: string }> {
     const s = stamp ?? (await this.stamp(t.experiment));
     const value = await this.cached(this.chartKey(t, includeExcluded, s, range), async () => {
-      const { snapshot, a, b } = await this.readSamples(t, includeExcluded);
-      const summary = (x: Sample) => ({ ...describe(x), shapiroWilk: null });
-      const svg = renderDistributionChart({
+      const counts = readsCounts(t.measure);
+      const snapshot = counts ? await readSnapshot(this.store, t.measure, [t.a.key, t.b.key], includeExcluded) : await this.readSortedSnapshot(t, includeExcluded);
+      const svg = await this.renderChart({
+        groups: snapshot.groups,
+        ...(counts ? { counts: { min: t.measure.min } } : {}),
+        labels: [t.a.label, t.b.label],
         measureLabel: t.measure.label,
         scale: { min: t.measure.min, max: t.measure.max, integer: t.measure.integer },
-        groups: [distributionGroupFromSample(t.a.label, a, summary(a)), distributionGroupFromSample(t.b.label, b, summary(b))],
         id: `chart-${t.measure.id}${range === 'data' ? '-data' : ''}`,
         range,
       });
@@ -497,11 +547,61 @@ export class ComparisonService {
     return promise;
   }
 
-  private async readSamples(t: ComparisonTarget, includeExcluded: boolean): Promise<{ snapshot: MeasureSnapshot; a: Sample; b: Sample }> {
-    const snapshot = readsCounts(t.measure)
-      ? await readSnapshot(this.store, t.measure, [t.a.key, t.b.key], includeExcluded)
-      : await this.readSortedSnapshot(t, includeExcluded);
-    return { snapshot, ...samplesOf(t.measure, snapshot) };
+  /**
+   * The statistics of a weighted block: in the worker pool when its snapshot holds at least workerMinValues values
+   * (a continuous item's weighted answers are sorted to build the samples), else in-thread. The same function either way.
+   */
+  private async weightedStats(input: WeightedInput): Promise<ReturnType<typeof weightedFromSnapshot>> {
+    if (valuesInWeighted(input.snapshot) < this.workerMinValues) {
+      return weightedFromSnapshot(input);
+    }
+    let fellBack = false;
+    const r = await this.workerPool().runOr<ReturnType<typeof weightedFromSnapshot>>({ kind: 'weighted', ...input }, () => {
+      fellBack = true;
+      return weightedFromSnapshot(input);
+    });
+    if (!fellBack) this.paths.workerComputes++;
+    return r;
+  }
+
+  /**
+   * Lin's covariate-adjusted fit, O(n·p²) with p = 2 + 2k: in the worker pool when rows × (1 + covariates) reach
+   * workerMinValues, else in-thread. The same function either way.
+   */
+  private async fitAdjusted(input: AdjustedInput): Promise<ReturnType<typeof adjustedFromRows>> {
+    if (input.rows.outcome.length * (1 + input.covariateNames.length) < this.workerMinValues) {
+      return adjustedFromRows(input);
+    }
+    let fellBack = false;
+    const r = await this.workerPool().runOr<ReturnType<typeof adjustedFromRows>>({ kind: 'adjusted', ...input }, () => {
+      fellBack = true;
+      return adjustedFromRows(input);
+    });
+    if (!fellBack) this.paths.workerComputes++;
+    return r;
+  }
+
+  /**
+   * A box plot's SVG: drawn in the worker pool when its cost (chartCost) reaches workerMinValues — two continuous
+   * groups of 20,000 (O(n) summaries and whiskers, 2,000 formatted dots a group: 10–16 ms of CPU, 50–200 ms of the
+   * request thread on a loaded machine: tests/bench/read-cost.ts --cpu-prof), or an integer item with 2,000 answers
+   * or more in all (≈ 5 ms of CPU for 4,000 dots, 40–65 ms on that machine) — else in-thread. The same function
+   * either way, so the text is the same.
+   */
+  private async renderChart(task: Omit<ChartTask, 'kind'>): Promise<string> {
+    if (chartCost(task) < this.workerMinValues) {
+      this.paths.inThreadCharts++;
+      return chartGroups(task);
+    }
+    const groups = task.counts ? task.groups : task.groups.map((g) => shareable(g));
+    let fellBack = false;
+    const svg = await this.workerPool().runOr<string>({ kind: 'chart', ...task, groups }, () => {
+      fellBack = true;
+      return chartGroups(task);
+    });
+    if (fellBack) this.paths.inThreadCharts++;
+    else this.paths.workerCharts++;
+    return svg;
   }
 
   /**
@@ -529,41 +629,42 @@ export class ComparisonService {
     return this.store.responses.getSortedValuesSnapshot(t.measure.key, keys, includeExcluded);
   }
 
-  /** Stats and flags of a comparison: in a worker for large continuous groups, else in-thread. */
+  /**
+   * Stats, flags, the sensitivity view and (with a margin) the equivalence tests of a comparison: in a worker when
+   * the two groups hold at least workerMinValues values (sorted values; or per-value counts of an integer item whose
+   * scale is that wide), else in-thread (an integer item of a usual scale: 2–10 ms of CPU at any n, which a worker's
+   * queue would only delay). The same function either way.
+   */
   private async compareAndFlag(
     t: ComparisonTarget,
     o: ComparisonOptions,
     snapshot: MeasureSnapshot,
-  ): Promise<CompareResult & { a: Sample | null; b: Sample | null }> {
-    const ctx = flagContext(t, snapshot, o.includeExcluded);
-    if (readsCounts(t.measure)) {
-      const { a, b } = samplesOf(t.measure, snapshot);
-      const cmp = compareSamples(a, b, { alternative: o.alternative, confidenceLevel: o.confidenceLevel });
-      this.paths.inThreadComputes++;
-      const view = sensitivityOf(cmp, { a, b }, ctx, o.alternative, o.confidenceLevel);
-      return { cmp, flags: computeFlags(cmp, { a, b }, ctx, o.alternative), sensitivity: view, a, b };
-    }
-    const shared = (x: Float64Array): Float64Array => (x.buffer instanceof SharedArrayBuffer ? x : shareable(x));
-    const big = snapshot.groups[0].length + snapshot.groups[1].length >= this.workerMinValues;
-    const task = {
-      a: big ? shared(snapshot.groups[0]) : snapshot.groups[0],
-      b: big ? shared(snapshot.groups[1]) : snapshot.groups[1],
+    tost: { margin: number; alpha: number } | null,
+  ): Promise<CompareResult> {
+    const counts = readsCounts(t.measure);
+    const [ga, gb] = snapshot.groups;
+    const task: Omit<CompareTask, 'kind'> = {
+      a: ga,
+      b: gb,
+      ...(counts ? { counts: { min: t.measure.min } } : {}),
       alternative: o.alternative,
       confidenceLevel: o.confidenceLevel,
-      flagContext: ctx,
+      flagContext: flagContext(t, snapshot, o.includeExcluded),
+      ...(tost ? { equivalence: tost } : {}),
     };
-    if (big) {
-      let inThread = false;
-      const r = await this.workerPool().runOr<CompareResult>({ kind: 'compare', ...task }, () => {
-        inThread = true;
-        return compareSorted(task);
-      });
-      if (inThread) this.paths.inThreadComputes++;
-      else this.paths.workerComputes++;
-      return { ...r, a: null, b: null };
+    if (valuesHeld([ga, gb]) < this.workerMinValues) {
+      this.paths.inThreadComputes++;
+      return compareGroups(task);
     }
-    this.paths.inThreadComputes++;
-    return { ...compareSorted(task), a: null, b: null };
+    const shared = counts ? task : { ...task, a: shareable(ga), b: shareable(gb) };
+    let inThread = false;
+    const r = await this.workerPool().runOr<CompareResult>({ kind: 'compare', ...shared }, () => {
+      inThread = true;
+      return compareGroups(task);
+    });
+    if (inThread) this.paths.inThreadComputes++;
+    else this.paths.workerComputes++;
+    return r;
   }
 
   /**
@@ -584,8 +685,9 @@ export class ComparisonService {
     const { experiment: e, measure: m } = t;
     const keys = [t.a.key, t.b.key];
     const snapshot = readsCounts(m) ? await readSnapshot(this.store, m, keys, o.includeExcluded) : await this.readSortedSnapshot(t, o.includeExcluded);
-    const { cmp, flags: unweightedFlags, sensitivity } = await this.compareAndFlag(t, o, snapshot);
-    const weighted = await computeWeighted(this.store, t, o, cmp);
+    const margin = effectiveMargin(t, o);
+    const { cmp, flags: unweightedFlags, sensitivity, equivalence: tost } = await this.compareAndFlag(t, o, snapshot, margin === null ? null : { margin, alpha: e.alpha });
+    const weighted = await computeWeighted(this.store, t, o, cmp, (input) => this.weightedStats(input));
     const flags = weighted ? [...unweightedFlags, ...weighted.flags] : unweightedFlags;
     const ga = cmp.groups.a;
     const gb = cmp.groups.b;
@@ -606,12 +708,8 @@ export class ComparisonService {
       weighted: weighted?.block ?? null,
       flaggedAnswers: flagged,
     });
-    const margin = effectiveMargin(t, o);
-    if (margin !== null) {
-      // The two TOSTs read the same snapshot (O(distinct values) for counts; the sorted values otherwise).
-      const { a, b } = samplesOf(m, snapshot);
-      body.equivalence = equivalence(a, b, { margin, alpha: e.alpha }) as ComparisonBody['equivalence'];
-    }
+    // The two TOSTs on the same Samples as the comparison (computed with it, in the worker when it ran there).
+    if (margin !== null) body.equivalence = tost as ComparisonBody['equivalence'];
     return { body, snapshot, consistent: weighted === null || weighted.dataVersion === snapshot.dataVersion };
   }
 }
@@ -640,7 +738,7 @@ export function warmUp(pool: ComparePool = sharedComparePool()): void {
       y[i] = (i + 0.5) / n;
     }
     const task = { a: x, b: y, alternative: 'two-sided' as const, confidenceLevel: 0.95, flagContext: { ...ctx, scale: { min: 0, max: 1, integer: false } } };
-    compareSorted(task);
+    compareGroups(task);
     void pool
       .run({ kind: 'compare', ...task })
       .catch(() => undefined);

@@ -9,8 +9,13 @@
  *            on the thread's own read-only connection, in ONE read transaction with the dataVersion and counters);
  *            the arrays live on SharedArrayBuffers, so the main thread keeps them in the engine's cache without a
  *            copy. The module is named by the store at run time, so this file knows no engine;
- *   compare  fromSortedValues on the two groups, compareSamples and computeFlags: pure stats/, plain objects back;
- *   omnibus  fromSortedValues on every condition and compareConditionSamples (the omnibus route, omnibus.ts).
+ *   compare  the two groups' Samples (fromSortedValues, or fromCounts for an integer measure read as per-value
+ *            counts), compareSamples, computeFlags and the sensitivity view: pure stats/, plain objects back;
+ *   omnibus  the Samples of every condition and compareConditionSamples (the omnibus route, omnibus.ts);
+ *   weighted the statistics of a comparison's weighted block (weighted.ts) from its weighted snapshot;
+ *   adjusted Lin's covariate-adjusted fit (adjusted.ts) from the per-respondent rows;
+ *   chart    the box plot of two or more groups (views/charts/distribution.ts): the Samples, their summaries and the
+ *            SVG text, so neither the O(n) summaries nor the thousands of formatted dots cost the main thread.
  *   trajectory  one measure's answers in arrival order, read by the engine's worker module (readArrivalInWorker) on
  *            the thread's own connection, turned into the few trajectory points there (monitoring/trajectory-points.ts),
  *            so neither the read nor the arrays ever reach the main thread.
@@ -29,6 +34,7 @@ import { computeFlags, type Flag, type FlagContext } from '../../../stats/flags.
 import {
   compareConditionSamples,
   compareSamples,
+  fromCounts,
   fromSortedValues,
   type Alternative,
   type Comparison,
@@ -36,7 +42,14 @@ import {
   type Sample,
 } from '../../../stats/index.js';
 import { sensitivity, type Sensitivity } from '../../../stats/sensitivity.js';
+import { equivalence, type EquivalenceResult } from '../../../stats/equivalence.js';
+import { describe } from '../../../stats/descriptives.js';
+import { distributionGroupFromSample, type ChartScale } from '../../views/charts/common.js';
+import { renderDistributionChart } from '../../views/charts/distribution.js';
 import type { RunsSnapshot } from '../../store/types.js';
+import { weightedFromSnapshot, type WeightedInput, type WeightedResult } from './weighted.js';
+import { adjustedFromRows, type AdjustedInput } from './adjusted.js';
+import type { AdjustedBlock } from '../../schemas/weighted.js';
 import { trajectoryPoints, type ArrivalArrays, type TrajectoryOptions, type TrajectoryPointView } from '../monitoring/trajectory-points.js';
 
 export interface ReadTask {
@@ -49,13 +62,28 @@ export interface ReadTask {
   includeExcluded: boolean;
 }
 
-export interface CompareTask {
+/**
+ * How a task's groups hold their answers: sorted values (the default), or per-value counts from `counts.min` (an
+ * integer measure read as counts; services/samples.ts).
+ */
+export interface GroupsForm {
+  counts?: { min: number };
+}
+
+/** The Sample of one group of a task, by its form. */
+function sampleOf(group: Float64Array, form: GroupsForm, name: string): Sample {
+  return form.counts ? fromCounts(group, form.counts.min, name) : fromSortedValues(group, name);
+}
+
+export interface CompareTask extends GroupsForm {
   kind: 'compare';
   a: Float64Array;
   b: Float64Array;
   alternative: Alternative;
   confidenceLevel: number;
   flagContext: FlagContext;
+  /** The two one-sided tests of equivalence to compute as well (a margin is known), or absent. */
+  equivalence?: { margin: number; alpha: number };
 }
 
 export interface CompareResult {
@@ -63,6 +91,8 @@ export interface CompareResult {
   flags: readonly Flag[];
   /** The sensitivity view (stats/sensitivity.ts); absent only where a caller needs no view (warm-up). */
   sensitivity?: Sensitivity;
+  /** stats/equivalence.ts on the same Samples, when the task asked for it. */
+  equivalence?: EquivalenceResult;
 }
 
 /** The sensitivity view of a comparison, with the flags' alpha, scale, labels and fence multipliers. */
@@ -79,7 +109,7 @@ export function sensitivityOf(cmp: Comparison, samples: { a: Sample; b: Sample }
 }
 
 /** Every condition of a continuous measure at once (the omnibus route; omnibus.ts). */
-export interface OmnibusTask {
+export interface OmnibusTask extends GroupsForm {
   kind: 'omnibus';
   groups: Float64Array[];
   labels: string[];
@@ -102,7 +132,27 @@ export interface TrajectoryResult {
   points: TrajectoryPointView[];
 }
 
-type Task = ReadTask | CompareTask | OmnibusTask | TrajectoryTask;
+/** The box plot of every group of a task side by side (the pairwise chart and the omnibus chart). */
+export interface ChartTask extends GroupsForm {
+  kind: 'chart';
+  groups: Float64Array[];
+  /** One label per group, as drawn. */
+  labels: string[];
+  measureLabel: string;
+  scale: ChartScale;
+  id: string;
+  range?: 'scale' | 'data';
+}
+
+export interface WeightedTask extends WeightedInput {
+  kind: 'weighted';
+}
+
+export interface AdjustedTask extends AdjustedInput {
+  kind: 'adjusted';
+}
+
+type Task = ReadTask | CompareTask | OmnibusTask | TrajectoryTask | ChartTask | WeightedTask | AdjustedTask;
 
 /** The same values on a SharedArrayBuffer (as they are when already shared), so a worker reads them without a copy. O(n). */
 export function shareable(x: Float64Array): Float64Array {
@@ -113,19 +163,37 @@ export function shareable(x: Float64Array): Float64Array {
 }
 type Reply = { id: number; ok: true; result: unknown } | { id: number; ok: false; message: string };
 
-/** The stats part of an omnibus comparison of sorted values (also what the main thread runs in-thread). */
-export function omnibusSorted(task: Omit<OmnibusTask, 'kind'>): ConditionsComparison {
-  const samples = task.groups.map((g, i) => fromSortedValues(g, task.labels[i]));
+/** The stats part of an omnibus comparison (also what the main thread runs in-thread). */
+export function omnibusGroups(task: Omit<OmnibusTask, 'kind'>): ConditionsComparison {
+  const samples = task.groups.map((g, i) => sampleOf(g, task, task.labels[i]));
   return compareConditionSamples(samples, { labels: task.labels, alpha: task.alpha, equivalenceMargin: task.margin });
 }
 
+/** The SVG of a chart task (also what the main thread runs in-thread). */
+export function chartGroups(task: Omit<ChartTask, 'kind'>): string {
+  const samples = task.groups.map((g, i) => sampleOf(g, task, `g${i}`));
+  return renderDistributionChart({
+    measureLabel: task.measureLabel,
+    scale: task.scale,
+    groups: samples.map((x, i) => distributionGroupFromSample(task.labels[i], x, { ...describe(x), shapiroWilk: null })),
+    id: task.id,
+    ...(task.range !== undefined ? { range: task.range } : {}),
+  });
+}
+
+/** The stats part of a comparison of sorted values (the benchmarks' name for compareGroups without counts). */
+export function compareSorted(task: Omit<CompareTask, 'kind' | 'counts'>): CompareResult {
+  return compareGroups(task);
+}
+
 /** The stats part of a comparison (also what the main thread runs in-thread). */
-export function compareSorted(task: Omit<CompareTask, 'kind'>): CompareResult {
-  const a = fromSortedValues(task.a, 'a');
-  const b = fromSortedValues(task.b, 'b');
+export function compareGroups(task: Omit<CompareTask, 'kind'>): CompareResult {
+  const a = sampleOf(task.a, task, 'a');
+  const b = sampleOf(task.b, task, 'b');
   const cmp = compareSamples(a, b, { alternative: task.alternative, confidenceLevel: task.confidenceLevel });
   const flags = computeFlags(cmp, { a, b }, task.flagContext, task.alternative);
-  return { cmp, flags, sensitivity: sensitivityOf(cmp, { a, b }, task.flagContext, task.alternative, task.confidenceLevel) };
+  const view = sensitivityOf(cmp, { a, b }, task.flagContext, task.alternative, task.confidenceLevel);
+  return { cmp, flags, sensitivity: view, ...(task.equivalence ? { equivalence: equivalence(a, b, task.equivalence) } : {}) };
 }
 
 // ───────────────────────────── inside a worker ─────────────────────────────
@@ -160,10 +228,16 @@ if (!isMainThread && (workerData as { mark?: string } | null)?.mark === WORKER_M
         t.kind === 'read'
           ? (await readerFor(t.module))(t.source, t.measureKey, t.conditionKeys, t.includeExcluded)
           : t.kind === 'omnibus'
-            ? omnibusSorted(t)
+            ? omnibusGroups(t)
             : t.kind === 'trajectory'
               ? await trajectoryIn(t)
-              : compareSorted(t);
+              : t.kind === 'chart'
+                ? chartGroups(t)
+                : t.kind === 'weighted'
+                  ? weightedFromSnapshot(t)
+                  : t.kind === 'adjusted'
+                    ? adjustedFromRows(t)
+                    : compareGroups(t);
       reply = { id: msg.id, ok: true, result };
     } catch (err) {
       reply = { id: msg.id, ok: false, message: err instanceof Error ? `${err.name}: ${err.message}` : String(err) };
@@ -210,6 +284,9 @@ export class ComparePool {
   run(task: CompareTask): Promise<CompareResult>;
   run(task: OmnibusTask): Promise<ConditionsComparison>;
   run(task: TrajectoryTask): Promise<TrajectoryResult>;
+  run(task: ChartTask): Promise<string>;
+  run(task: WeightedTask): Promise<Omit<WeightedResult, 'dataVersion'>>;
+  run(task: AdjustedTask): Promise<AdjustedBlock>;
   run(task: Task): Promise<unknown> {
     const slot = this.slot();
     if (!slot) return Promise.reject(new Error('no comparison worker available'));
@@ -225,7 +302,7 @@ export class ComparePool {
   /** Run in a worker, or in-thread with `fallback` when the worker fails. */
   async runOr<T>(task: Task, fallback: () => T): Promise<T> {
     try {
-      return (await this.run(task as ReadTask & CompareTask & TrajectoryTask)) as T;
+      return (await this.run(task as ReadTask & CompareTask & TrajectoryTask & ChartTask & WeightedTask & AdjustedTask)) as T;
     } catch {
       this.stats.fallbacks++;
       return fallback();
