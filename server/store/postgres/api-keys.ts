@@ -4,10 +4,12 @@
  */
 import type { ApiKeyRecord, ApiKeyRepository, NewApiKey } from '../types.js';
 import { apiKeyRecord as toRecord, SELECT_KEYS, type KeyRow } from '../api-key-rows.js';
-import { toBuffer, type PostgresDatabase } from './pool.js';
+import { toBuffer, type PostgresDatabase, type PreparedStatement } from './pool.js';
 
 /** Advisory lock (two-int form) namespaces of this store. */
 export const LOCK_NAMESPACE = { environmentKey: 0x5342_0001, assignment: 0x5342_0002 } as const;
+
+const KEY_BY_HASH: PreparedStatement = { name: 'sb_key_by_hash', text: `${SELECT_KEYS} WHERE k.hash = $1` };
 
 export class PostgresApiKeyRepository implements ApiKeyRepository {
   constructor(private readonly db: PostgresDatabase) {}
@@ -24,7 +26,8 @@ export class PostgresApiKeyRepository implements ApiKeyRepository {
   }
 
   async findByHash(hash: Uint8Array): Promise<(ApiKeyRecord & { hash: Uint8Array }) | null> {
-    const row = (await this.db.query<KeyRow>(`${SELECT_KEYS} WHERE k.hash = $1`, [toBuffer(hash)])).rows[0];
+    // Every authenticated request runs this: one prepared statement (pool.ts PreparedStatement).
+    const row = (await this.db.prepared<KeyRow>(KEY_BY_HASH, [toBuffer(hash)])).rows[0];
     return row ? { ...toRecord(row), hash: new Uint8Array(row.hash) } : null;
   }
 

@@ -97,11 +97,27 @@ export interface PostgresDatabase {
   readonly connectionString: string;
   /** One statement outside an explicit transaction (autocommit). */
   query<R extends pg.QueryResultRow = pg.QueryResultRow>(text: string, values?: unknown[]): Promise<pg.QueryResult<R>>;
+  /**
+   * One statement outside an explicit transaction, as a named prepared statement (see PREPARED): parsed and
+   * planned once per connection, then one round trip (Bind/Execute) per call. For the hot reads of every request.
+   */
+  prepared<R extends pg.QueryResultRow = pg.QueryResultRow>(statement: PreparedStatement, values: unknown[]): Promise<pg.QueryResult<R>>;
   /** A READ COMMITTED write transaction (see the header); retried on serialization failures and deadlocks. */
   write<T>(fn: (c: Queryable) => Promise<T>): Promise<T>;
   /** A REPEATABLE READ, READ ONLY transaction: one snapshot for every statement. */
   snapshot<T>(fn: (c: Queryable) => Promise<T>): Promise<T>;
   end(): Promise<void>;
+}
+
+/**
+ * A statement every request runs, prepared once per pooled connection under a fixed name. Its text must never
+ * change while a process runs (node-postgres refuses a known name with another text) and its result columns must
+ * not depend on a table's column list (`SELECT *` would fail with "cached plan must not change result type" after
+ * a migration adds a column; build json instead). Declare each one as a module-level constant.
+ */
+export interface PreparedStatement {
+  readonly name: string;
+  readonly text: string;
 }
 
 /** Parse bigint and numeric as numbers (see the header). Per pool, so the process-wide defaults are untouched. */
@@ -214,6 +230,13 @@ export function createDatabase(connectionString: string, options: PostgresPoolOp
     async query<R extends pg.QueryResultRow>(text: string, values?: unknown[]) {
       try {
         return await pool.query<R>(text, values);
+      } catch (err) {
+        throw mapError(err, retryAfter);
+      }
+    },
+    async prepared<R extends pg.QueryResultRow>(statement: PreparedStatement, values: unknown[]) {
+      try {
+        return await pool.query<R>({ name: statement.name, text: statement.text, values });
       } catch (err) {
         throw mapError(err, retryAfter);
       }

@@ -53,8 +53,16 @@ import { addRejectedWeights, readAdjustmentRows, readRejectedWeights, readWeight
 import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, type SortedRun } from '../sorted-runs-cache.js';
 import { recordAudit, redactAudit } from './audit.js';
 import { notifyChange } from './notifier.js';
-import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type Queryable } from './pool.js';
+import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type PreparedStatement, type Queryable } from './pool.js';
 import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
+
+/** The comparison stamp: dataVersion, refused values and recorded looks of one experiment. */
+const COMPARISON_STAMP: PreparedStatement = {
+  name: 'sb_comparison_stamp',
+  text: `SELECT e.data_version, (SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r WHERE r.experiment_id = e.id) AS rejected,
+              (SELECT count(*) FROM interim_looks l WHERE l.experiment_id = e.id) AS looks
+         FROM experiments e WHERE e.id = $1`,
+};
 
 /** Most single-response requests written in one group commit. */
 export const GROUP_COMMIT_MAX = 256;
@@ -678,13 +686,9 @@ export class PostgresResponseRepository implements ResponseRepository {
     return (await this.db.query<{ n: number }>(`SELECT count(*) AS n FROM response_values WHERE measure_id = $1`, [measureKey])).rows[0].n;
   }
 
+  /** One prepared statement, no transaction (a single statement sees one snapshot): what every cached reply is checked against. */
   async getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null> {
-    const r = await this.db.query<{ data_version: number; rejected: number; looks: number }>(
-      `SELECT e.data_version, (SELECT coalesce(sum(r.count), 0) FROM rejected_value_counts r WHERE r.experiment_id = e.id) AS rejected,
-              (SELECT count(*) FROM interim_looks l WHERE l.experiment_id = e.id) AS looks
-       FROM experiments e WHERE e.id = $1`,
-      [experimentKey],
-    );
+    const r = await this.db.prepared<{ data_version: number; rejected: number; looks: number }>(COMPARISON_STAMP, [experimentKey]);
     const row = r.rows[0];
     return row ? { dataVersion: row.data_version, rejectedTotal: row.rejected, looks: row.looks } : null;
   }

@@ -1,0 +1,36 @@
+/**
+ * One experiment's definition by its id (slug) in ONE prepared statement: the experiment row, its conditions and
+ * its measures in definition order, each built as json by the server. Every request that names an experiment
+ * reads it (the comparison routes before their cache check), so this is one round trip where a REPEATABLE READ
+ * transaction with three SELECTs took five. A single statement sees one snapshot, so the row, the per-condition
+ * counters and the measures still belong to one moment. Nothing is kept in memory: every call asks the database.
+ *
+ * Rows come back as json (row_to_json keeps every column under its own name), so the statement's result type
+ * does not change when a migration adds a column, and the same row-to-record mapping as the other reads applies
+ * (store/experiment-rows.ts). row_to_json prints double precision with its own output function (the shortest text
+ * that reads back to the same double), so min, max and alpha arrive exactly; bigint keys and counters stay far
+ * below 2^53.
+ */
+import type { ExperimentRecord } from '../types.js';
+import { experimentRecord, type ConditionRow, type ExperimentRow, type MeasureRow } from '../experiment-rows.js';
+import type { PostgresDatabase, PreparedStatement } from './pool.js';
+
+const DEFINITION_BY_SLUG: PreparedStatement = {
+  name: 'sb_definition_by_slug',
+  text: `SELECT row_to_json(e) AS experiment,
+                (SELECT coalesce(json_agg(row_to_json(c) ORDER BY c.position), '[]'::json) FROM conditions c WHERE c.experiment_id = e.id) AS conditions,
+                (SELECT coalesce(json_agg(row_to_json(m) ORDER BY m.position), '[]'::json) FROM measures m WHERE m.experiment_id = e.id) AS measures
+         FROM experiments e WHERE e.slug = $1`,
+};
+
+interface DefinitionRow {
+  experiment: ExperimentRow<Record<string, unknown>>;
+  conditions: ConditionRow[];
+  measures: MeasureRow[];
+}
+
+/** The experiment with this slug, its conditions and measures, or null. */
+export async function readDefinitionBySlug(db: PostgresDatabase, slug: string): Promise<ExperimentRecord | null> {
+  const row = (await db.prepared<DefinitionRow>(DEFINITION_BY_SLUG, [slug])).rows[0];
+  return row ? experimentRecord(row.experiment, row.conditions, row.measures) : null;
+}
