@@ -1,5 +1,6 @@
 /**
- * PostgreSQL against the embedded store: `npx tsx tests/bench/postgres.ts [--seconds 8] [--sizes 100000,1000000] [--minutes 12]`
+ * PostgreSQL against the embedded store:
+ * `npx tsx tests/bench/postgres.ts [--seconds 8] [--sizes 100000,1000000] [--minutes 12] [--only ingest|comparisons] [--rounds 1]`
  * (needs `npm run build` first and PostgreSQL on 127.0.0.1:5432; not part of npm test).
  *
  * 1. Ingest over HTTP with real processes of the built server (dist/server/main.js, rate limit off):
@@ -12,7 +13,8 @@
  *    comparison, median of 5). Data are loaded straight through the store in batches of 5,000.
  * Bounded: a scenario that would start after --minutes is skipped and said so. All data invented.
  */
-import { mkdtempSync, rmSync } from 'node:fs';
+import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import type pg from 'pg';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { buildApp } from '../../server/http/app.js';
@@ -23,7 +25,7 @@ import { openSqliteStore } from '../../server/store/sqlite/store.js';
 import type { ExperimentRecord, Store, ValidResponse } from '../../server/store/types.js';
 import { Rng } from '../helpers/rng.js';
 import { ADMIN_SECRET, AUTH, HAVE_DIST, startBuiltServer, type BuiltServer } from '../reliability/built-server.js';
-import { createTestDatabase, postgresAvailable } from '../store/postgres/pg-test-db.js';
+import { createTestDatabase, postgresAvailable, type TestDatabase } from '../store/postgres/pg-test-db.js';
 
 const arg = (name: string, fallback: string) => {
   const i = process.argv.indexOf(name);
@@ -31,6 +33,9 @@ const arg = (name: string, fallback: string) => {
 };
 const SECONDS = Number(arg('--seconds', '8'));
 const SIZES = arg('--sizes', '100000,1000000').split(',').map(Number);
+/** --only ingest | comparisons: run one part. */
+const ONLY = arg('--only', '');
+const ROUNDS = Number(arg('--rounds', '1'));
 const DEADLINE = Date.now() + Number(arg('--minutes', '12')) * 60_000;
 const NOW = '2027-03-01T12:00:00.000Z';
 const log = (s: string) => process.stderr.write(`${s}\n`);
@@ -82,18 +87,120 @@ async function drive(nodes: BuiltServer[], clients: number, seconds: number, sen
   return acknowledged;
 }
 
-async function ingestScenario(name: string, env: Record<string, string>, nodeCount: number): Promise<void> {
+// Where the time goes during an ingest phase: CPU seconds of each node process, of this driver, of the PostgreSQL
+// backends serving the bench database and of the whole machine (every process, other work included), from /proc;
+// write transactions of the phase (distinct xmin of the responses it stored: one per group commit or batch), and
+// backends waiting for a lock, sampled every
+// 25 ms from pg_stat_activity (on the experiment's row: ingest transactions of other groups and nodes queue there).
+const CLOCK_TICKS = 100; // USER_HZ on Linux
+function processCpuSeconds(pid: number): number {
+  try {
+    const stat = readFileSync(`/proc/${pid}/stat`, 'utf8');
+    const fields = stat.slice(stat.lastIndexOf(')') + 2).split(' ');
+    return (Number(fields[11]) + Number(fields[12])) / CLOCK_TICKS; // utime, stime
+  } catch {
+    return 0; // the process has ended
+  }
+}
+function machineCpu(): { busy: number; total: number } {
+  const f = readFileSync('/proc/stat', 'utf8').split('\n')[0].trim().split(/\s+/).slice(1).map(Number);
+  const total = f.slice(0, 8).reduce((a, b) => a + b, 0);
+  return { busy: (total - f[3] - f[4]) / CLOCK_TICKS, total: total / CLOCK_TICKS };
+}
+
+interface PhaseProfile {
+  nodeCpu: number[];
+  driverCpu: number;
+  pgCpu: number | null;
+  machineBusy: number;
+  machineCores: number;
+  commits: number | null;
+  lockWaiting: number | null;
+  active: number | null;
+}
+
+async function profiled(nodes: BuiltServer[], admin: pg.Client | null, prefix: string, run: () => Promise<number>): Promise<{ acknowledged: number; seconds: number; profile: PhaseProfile }> {
+  const backends = async () =>
+    admin ? (await admin.query<{ pid: number }>(`SELECT pid FROM pg_stat_activity WHERE datname = current_database() AND pid <> pg_backend_pid()`)).rows.map((r) => r.pid) : [];
+  const transactions = async () =>
+    admin ? Number((await admin.query(`SELECT count(DISTINCT xmin::text) AS n FROM responses WHERE response_id LIKE $1`, [`${prefix}-%`])).rows[0].n) : 0;
+  const pgBefore = new Map((await backends()).map((pid) => [pid, processCpuSeconds(pid)]));
+  const nodeBefore = nodes.map((n) => processCpuSeconds(n.child.pid!));
+  const driverBefore = process.cpuUsage();
+  const machineBefore = machineCpu();
+  const started = performance.now();
+  let samples = 0;
+  let waiting = 0;
+  let active = 0;
+  let sampling = admin !== null;
+  const sampler = (async () => {
+    while (sampling) {
+      const r = await admin!.query<{ waiting: number; active: number }>(
+        `SELECT count(*) FILTER (WHERE wait_event_type = 'Lock')::int AS waiting, count(*) FILTER (WHERE state = 'active')::int AS active
+         FROM pg_stat_activity WHERE datname = current_database() AND pid <> pg_backend_pid()`,
+      );
+      samples++;
+      waiting += r.rows[0].waiting;
+      active += r.rows[0].active;
+      await new Promise((resolve) => setTimeout(resolve, 25));
+    }
+  })();
+  const acknowledged = await run();
+  sampling = false;
+  await sampler;
+  const seconds = (performance.now() - started) / 1000;
+  const machineAfter = machineCpu();
+  const driver = process.cpuUsage(driverBefore);
+  let pgCpu = 0;
+  for (const pid of await backends()) pgCpu += processCpuSeconds(pid) - (pgBefore.get(pid) ?? 0);
+  return {
+    acknowledged,
+    seconds,
+    profile: {
+      nodeCpu: nodes.map((n, i) => processCpuSeconds(n.child.pid!) - nodeBefore[i]),
+      driverCpu: (driver.user + driver.system) / 1e6,
+      pgCpu: admin ? pgCpu : null,
+      machineBusy: machineAfter.busy - machineBefore.busy,
+      machineCores: (machineAfter.total - machineBefore.total) / seconds,
+      commits: admin ? await transactions() : null,
+      lockWaiting: admin && samples > 0 ? waiting / samples : null,
+      active: admin && samples > 0 ? active / samples : null,
+    },
+  };
+}
+
+function describeProfile(p: PhaseProfile, seconds: number, requests: number): string {
+  const cores = (cpu: number) => (cpu / seconds).toFixed(2);
+  const parts = [
+    `CPU in cores: node${p.nodeCpu.length > 1 ? 's' : ''} ${p.nodeCpu.map(cores).join(' + ')}`,
+    p.pgCpu === null ? null : `PostgreSQL backends ${cores(p.pgCpu)}`,
+    `driver ${cores(p.driverCpu)}`,
+    `whole machine ${cores(p.machineBusy)} of ${p.machineCores.toFixed(1)}`,
+    p.commits === null ? null : `${Math.round(p.commits / seconds)} write transactions/s (${(requests / Math.max(1, p.commits)).toFixed(1)} requests each)`,
+    p.lockWaiting === null ? null : `backends waiting for a lock ${p.lockWaiting.toFixed(2)}, active ${p.active!.toFixed(2)} (mean of samples)`,
+  ];
+  return parts.filter((x) => x !== null).join('; ');
+}
+
+async function ingestScenario(name: string, env: Record<string, string>, nodeCount: number, db: TestDatabase | null): Promise<void> {
   if (!inTime(`ingest ${name}`)) return;
   const nodes: BuiltServer[] = [];
+  const admin = db ? await db.admin() : null;
   try {
     for (let i = 0; i < nodeCount; i++) nodes.push(await startBuiltServer(env.SPLITBALLOT_DB ?? '/nonexistent/unused.db', env));
     if ((await post(nodes[0].base, '/v1/experiments', { ...DEFINITION, plannedPerCondition: null })) !== 201) throw new Error('experiment not created');
     const path = `/v1/experiments/${DEFINITION.id}/responses`;
-    const singles = await drive(nodes, 32, SECONDS, async (base, n) => ((await post(base, path, answer(n, 's'))) === 201 ? 1 : 0));
-    const batchRows = await drive(nodes, 4, SECONDS, async (base, n) =>
-      (await post(base, `${path}/batch`, { responses: Array.from({ length: 500 }, (_, k) => answer(n * 500 + k, 'b')) })) === 201 ? 500 : 0,
+    const singles = await profiled(nodes, admin, 's', () => drive(nodes, 32, SECONDS, async (base, n) => ((await post(base, path, answer(n, 's'))) === 201 ? 1 : 0)));
+    const batches = await profiled(nodes, admin, 'b', () =>
+      drive(nodes, 4, SECONDS, async (base, n) =>
+        (await post(base, `${path}/batch`, { responses: Array.from({ length: 500 }, (_, k) => answer(n * 500 + k, 'b')) })) === 201 ? 500 : 0,
+      ),
     );
-    out(`ingest ${name.padEnd(24)} single answers: ${Math.round(singles / SECONDS).toLocaleString('en-US').padStart(6)} req/s   batches of 500: ${Math.round(batchRows / SECONDS).toLocaleString('en-US').padStart(7)} answers/s`);
+    out(
+      `ingest ${name.padEnd(24)} single answers: ${Math.round(singles.acknowledged / SECONDS).toLocaleString('en-US').padStart(6)} req/s   batches of 500: ${Math.round(batches.acknowledged / SECONDS).toLocaleString('en-US').padStart(7)} answers/s`,
+    );
+    out(`   singles: ${describeProfile(singles.profile, singles.seconds, singles.acknowledged)}`);
+    out(`   batches: ${describeProfile(batches.profile, batches.seconds, batches.acknowledged / 500)}`);
   } finally {
     for (const n of nodes) n.child.kill('SIGTERM');
     await Promise.all(nodes.map((n) => n.exited));
@@ -192,15 +299,19 @@ const dir = mkdtempSync(join(tmpdir(), 'sb-bench-pg-'));
 const dbs: Awaited<ReturnType<typeof createTestDatabase>>[] = [];
 try {
   const base = { SPLITBALLOT_RATE_LIMIT_INGEST: '0', SPLITBALLOT_ADMIN_KEY: ADMIN_SECRET };
-  await ingestScenario('embedded SQLite, 1 node', { ...base, SPLITBALLOT_DB: join(dir, 'ingest.db') }, 1);
-  for (const nodes of [1, 2]) {
-    const db = await createTestDatabase();
-    dbs.push(db);
-    await ingestScenario(`PostgreSQL, ${nodes} node${nodes === 1 ? '' : 's'}`, { ...base, SPLITBALLOT_DATABASE_URL: db.url }, nodes);
+  if (!ONLY || ONLY === 'ingest') await ingestScenario('embedded SQLite, 1 node', { ...base, SPLITBALLOT_DB: join(dir, 'ingest.db') }, 1, null);
+  // --rounds N repeats the PostgreSQL one-node / two-node pair (each on a fresh database), so the ratio can be
+  // taken within each round on a machine whose load changes from minute to minute.
+  for (let round = 0; round < (ONLY === 'comparisons' ? 0 : ROUNDS); round++) {
+    for (const nodes of [1, 2]) {
+      const db = await createTestDatabase();
+      dbs.push(db);
+      await ingestScenario(`PostgreSQL, ${nodes} node${nodes === 1 ? '' : 's'}`, { ...base, SPLITBALLOT_DATABASE_URL: db.url }, nodes, db);
+    }
   }
   const cmpDb = await createTestDatabase();
   dbs.push(cmpDb);
-  for (const n of SIZES) {
+  for (const n of ONLY === 'ingest' ? [] : SIZES) {
     await comparisonScenario('SQLite', async () => openSqliteStore(join(dir, 'compare.db')), n);
     await comparisonScenario('PostgreSQL', async () => openPostgresStore(cmpDb.url), n);
   }

@@ -104,6 +104,11 @@ export interface PostgresDatabase {
   prepared<R extends pg.QueryResultRow = pg.QueryResultRow>(statement: PreparedStatement, values: unknown[]): Promise<pg.QueryResult<R>>;
   /** A READ COMMITTED write transaction (see the header); retried on serialization failures and deadlocks. */
   write<T>(fn: (c: Queryable) => Promise<T>): Promise<T>;
+  /**
+   * write() whose first statement locks the rows of these experiments (as lockExperiments does), sent in the same
+   * message as BEGIN: one round trip fewer before the lock for the writers that run most often (ingest).
+   */
+  writeLocked<T>(experimentKeys: readonly number[], fn: (c: Queryable, locked: Map<number, ExperimentLock>) => Promise<T>): Promise<T>;
   /** A REPEATABLE READ, READ ONLY transaction: one snapshot for every statement. */
   snapshot<T>(fn: (c: Queryable) => Promise<T>): Promise<T>;
   end(): Promise<void>;
@@ -194,13 +199,15 @@ export function createDatabase(connectionString: string, options: PostgresPoolOp
     }
   }
 
-  async function transaction<T>(begin: string, fn: (c: pg.PoolClient) => Promise<T>): Promise<T> {
+  async function transaction<T>(begin: string, fn: (c: pg.PoolClient, begun: pg.QueryResult | pg.QueryResult[]) => Promise<T>): Promise<T> {
     for (let attempt = 1; ; attempt++) {
       try {
         return await withClient(async (c) => {
-          await c.query(begin);
           try {
-            const out = await fn(c);
+            // Inside the try: when BEGIN shares its message with the lock and the lock fails, the transaction is
+            // open and aborted, and the ROLLBACK below ends it before the client goes back to the pool.
+            const begun = (await c.query(begin)) as pg.QueryResult | pg.QueryResult[];
+            const out = await fn(c, begun);
             await c.query('COMMIT');
             return out;
           } catch (err) {
@@ -242,6 +249,17 @@ export function createDatabase(connectionString: string, options: PostgresPoolOp
       }
     },
     write: (fn) => transaction('BEGIN ISOLATION LEVEL READ COMMITTED', fn),
+    writeLocked: (experimentKeys, fn) => {
+      const sorted = [...new Set(experimentKeys)].sort((a, b) => a - b);
+      for (const k of sorted) if (!Number.isSafeInteger(k)) throw new RangeError(`not an experiment key: ${k}`);
+      if (sorted.length === 0) return transaction('BEGIN ISOLATION LEVEL READ COMMITTED', (c) => fn(c, new Map()));
+      // The simple query protocol takes no parameters; the keys are checked integers, written as literals.
+      const begin = `BEGIN ISOLATION LEVEL READ COMMITTED; ${LOCK_ROWS} IN (${sorted.join(', ')}) ORDER BY id FOR NO KEY UPDATE`;
+      return transaction(begin, (c, begun) => {
+        const results = Array.isArray(begun) ? begun : [begun];
+        return fn(c, lockedRows(results[results.length - 1].rows as LockRow[]));
+      });
+    },
     snapshot: (fn) => transaction('BEGIN ISOLATION LEVEL REPEATABLE READ, READ ONLY', fn),
     async end() {
       await pool.end();
@@ -258,15 +276,30 @@ function stripUndefined<T extends object>(o: T): Partial<T> {
  * dataVersion. Missing experiments are absent from the map. FOR NO KEY UPDATE: it blocks other writers of the same
  * experiment but not foreign-key checks of rows that refer to it.
  */
-export async function lockExperiments(c: Queryable, keys: Iterable<number>): Promise<Map<number, { status: string; dataVersion: number }>> {
+export async function lockExperiments(c: Queryable, keys: Iterable<number>): Promise<Map<number, ExperimentLock>> {
   const sorted = [...new Set(keys)].sort((a, b) => a - b);
-  const out = new Map<number, { status: string; dataVersion: number }>();
-  if (sorted.length === 0) return out;
-  const r = await c.query<{ id: number; status: string; data_version: number }>(
-    `SELECT id, status, data_version FROM experiments WHERE id = ANY($1::bigint[]) ORDER BY id FOR NO KEY UPDATE`,
-    [sorted],
-  );
-  for (const row of r.rows) out.set(row.id, { status: row.status, dataVersion: row.data_version });
+  if (sorted.length === 0) return new Map();
+  const r = await c.query<LockRow>(`${LOCK_ROWS} = ANY($1::bigint[]) ORDER BY id FOR NO KEY UPDATE`, [sorted]);
+  return lockedRows(r.rows);
+}
+
+/** What a writer learns when it locks an experiment's row. */
+export interface ExperimentLock {
+  status: string;
+  dataVersion: number;
+}
+
+interface LockRow {
+  id: number | string;
+  status: string;
+  data_version: number | string;
+}
+
+const LOCK_ROWS = `SELECT id, status, data_version FROM experiments WHERE id`;
+
+function lockedRows(rows: LockRow[]): Map<number, ExperimentLock> {
+  const out = new Map<number, ExperimentLock>();
+  for (const row of rows) out.set(Number(row.id), { status: row.status, dataVersion: Number(row.data_version) });
   return out;
 }
 

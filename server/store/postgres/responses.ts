@@ -4,18 +4,21 @@
  * Writes. Every write transaction first locks its experiment's row (`SELECT … FOR NO KEY UPDATE`, pool.ts
  * lockExperiments), so ingest, exclusion and erasure of one experiment are serialised across every process that
  * shares the database, while other experiments proceed in parallel. Ingest is ONE transaction per request or
- * batch: idempotency (client ids looked up with one `= ANY($ids)` statement; same content hash = a repeat, another
- * = a conflict, all decided before anything is written), response rows and value rows as `INSERT … SELECT FROM
- * unnest(arrays)` (one statement each, whatever the batch size), per-value counts of integer measures aggregated
- * in JS and upserted with one `INSERT … ON CONFLICT DO UPDATE`, per-condition counters, dataVersion + 1 and a
- * pg_notify (delivered on commit). The promise settles after COMMIT returned: acknowledged means committed.
+ * batch, and holds the lock for as few round trips as possible (each round trip under the lock is time every
+ * other node's writers of that experiment wait): after the lock, ONE statement reads the stored hash of every
+ * client id (same content hash = a repeat, another = a conflict, all decided in JS before anything is written)
+ * and the integer measures; then ONE statement (WRITE_GROUP) writes everything: response rows and value rows
+ * from arrays (`unnest`, whatever the batch size), per-value counts of integer measures aggregated in JS and
+ * upserted with `INSERT … ON CONFLICT DO UPDATE`, per-condition counters, dataVersion + 1 per request that stored
+ * something and the pg_notify (delivered on commit); then COMMIT. The promise settles after COMMIT returned:
+ * acknowledged means committed.
  *
  * Group commit: single-response requests to one experiment share one transaction: those of one event-loop turn,
  * and while a group commits, all that arrive meanwhile (see flushGroup). Each request keeps its own outcome (its
- * own idempotency check and conflict, dataVersion + 1 when it stores something); the group's rows go in with one
- * statement per table; a failing statement makes the group retry request by request, one SAVEPOINT each. Groups
- * of different experiments and batches run concurrently on separate pool connections; the row locks keep
- * per-experiment order across processes.
+ * own idempotency check and conflict, dataVersion + 1 when it stores something); the group's rows go in with the
+ * same one write statement; when it fails, that transaction rolls back and the group is redone request by request,
+ * one SAVEPOINT each, in a second one. Groups of different experiments and batches run concurrently on separate
+ * pool connections; the row locks keep per-experiment order across processes.
  *
  * Reads. getCounts / getValueCounts read value_counts (O(distinct values)); sorted values come from the index
  * (measure_id, condition_id, excluded, value) in order. The snapshots run in ONE REPEATABLE READ transaction:
@@ -52,7 +55,7 @@ import {
 import { addRejectedWeights, readAdjustmentRows, readRejectedWeights, readWeightedSnapshot } from './responses-weights.js';
 import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, type SortedRun } from '../sorted-runs-cache.js';
 import { recordAudit, redactAudit } from './audit.js';
-import { notifyChange } from './notifier.js';
+import { CHANGE_CHANNEL, notifyChange } from './notifier.js';
 import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type PreparedStatement, type Queryable } from './pool.js';
 import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
 
@@ -63,6 +66,57 @@ const COMPARISON_STAMP: PreparedStatement = {
               (SELECT count(*) FROM interim_looks l WHERE l.experiment_id = e.id) AS looks
          FROM experiments e WHERE e.id = $1`,
 };
+
+/**
+ * After the experiment's row lock: the stored content hash of each of the client ids $2 (idempotency) and the
+ * experiment's integer measures. Its own statement, so its snapshot is taken after the lock was granted and sees
+ * every write of the transaction that held the lock before.
+ */
+const IDEMPOTENCY_AND_MEASURES = `
+  SELECT array(SELECT id FROM measures WHERE experiment_id = $1 AND is_integer) AS integer_measures,
+         coalesce(k.ids, '{}') AS ids, coalesce(k.hashes, '{}') AS hashes
+  FROM (SELECT array_agg(response_id) AS ids, array_agg(content_hash) AS hashes
+        FROM responses WHERE experiment_id = $1 AND response_id = ANY($2::text[])) k`;
+
+/**
+ * Every write of one ingest group as one statement (data-modifying WITH parts run exactly once, to completion, on
+ * the same snapshot; each later part uses what an earlier one RETURNs, never what it wrote). Response rows are
+ * inserted in input order (ORDER BY ordinality: ids drawn in that order); value rows find their response row by
+ * that ordinality ($10), the condition from the response row. The counts of rows written come back so the caller
+ * can check that nothing was dropped.
+ */
+const WRITE_GROUP = `
+  WITH input AS (
+    SELECT * FROM unnest($2::text[], $3::bigint[], $4::text[], $5::text[], $6::text[], $7::bytea[], $8::bigint[], $9::float8[])
+      WITH ORDINALITY AS u(rid, cond, resp, sub, recv, hash, api, w, ord)
+  ), inserted AS (
+    INSERT INTO responses (experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight)
+    SELECT $1, rid, cond, resp, sub, recv, hash, api, w FROM input ORDER BY ord
+    RETURNING id, response_id, condition_id
+  ), numbered AS (
+    SELECT i.id, i.condition_id, input.ord FROM inserted i JOIN input ON input.rid = i.response_id
+  ), value_rows AS (
+    INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value)
+    SELECT n.id, v.m, n.condition_id, 0, v.v FROM unnest($10::bigint[], $11::bigint[], $12::float8[]) AS v(ord, m, v) JOIN numbered n ON n.ord = v.ord
+    RETURNING 1
+  ), count_rows AS (
+    INSERT INTO value_counts (measure_id, condition_id, excluded, value, count, weighted_count, weight_sum, weight_square_sum)
+    SELECT m, cnd, 0, v, n, wn, ws, wq
+    FROM unnest($13::bigint[], $14::bigint[], $15::float8[], $16::bigint[], $17::bigint[], $18::float8[], $19::float8[]) AS u(m, cnd, v, n, wn, ws, wq)
+    ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + EXCLUDED.count,
+      weighted_count = value_counts.weighted_count + EXCLUDED.weighted_count,
+      weight_sum = value_counts.weight_sum + EXCLUDED.weight_sum,
+      weight_square_sum = value_counts.weight_square_sum + EXCLUDED.weight_square_sum
+  ), counters AS (
+    UPDATE conditions c SET response_count = c.response_count + u.n FROM unnest($20::bigint[], $21::bigint[]) AS u(id, n) WHERE c.id = u.id
+  ), version AS (
+    UPDATE experiments SET data_version = data_version + $22 WHERE id = $1 RETURNING data_version
+  )
+  SELECT v.data_version,
+         (SELECT count(*) FROM inserted)::int AS responses,
+         (SELECT count(*) FROM value_rows)::int AS value_count,
+         pg_notify($23, json_build_object('e', $1::bigint, 'v', v.data_version, 'k', 'responses')::text) AS notified
+  FROM version v`;
 
 /** Most single-response requests written in one group commit. */
 export const GROUP_COMMIT_MAX = 256;
@@ -163,16 +217,13 @@ export async function ingestRequestsLocked(
   if (!state) return requests.map(() => ({ kind: 'not-found' }));
   if (state.status !== 'open') return requests.map(() => ({ kind: 'closed' }));
 
-  // 1. Idempotency for every request before anything is written: one lookup of all client ids.
+  // 1. One statement, after the lock: the stored hash of every client id of the group (idempotency, decided for
+  //    every request before anything is written) and the experiment's integer measures (their per-value counts).
   const clientIds = [...new Set(requests.flatMap((r) => r.items.filter((x) => !x.generated).map((x) => x.responseId)))];
   const known = new Map<string, Uint8Array>();
-  if (clientIds.length > 0) {
-    const r = await c.query<{ response_id: string; content_hash: Buffer }>(
-      `SELECT response_id, content_hash FROM responses WHERE experiment_id = $1 AND response_id = ANY($2::text[])`,
-      [experimentKey, clientIds],
-    );
-    for (const row of r.rows) known.set(row.response_id, row.content_hash);
-  }
+  const lookup = (await c.query<{ integer_measures: (string | number)[]; ids: string[]; hashes: Buffer[] }>(IDEMPOTENCY_AND_MEASURES, [experimentKey, clientIds])).rows[0];
+  lookup.ids.forEach((id, i) => known.set(id, lookup.hashes[i]));
+  const integer = new Set<number>(lookup.integer_measures.map(Number)); // bigint[] arrives as text
   interface Decided {
     request: IngestRequest;
     isNew: boolean[];
@@ -211,47 +262,21 @@ export async function ingestRequestsLocked(
 
   const writing = decided.filter((d) => d.outcome === null && d.fresh.length > 0);
   if (writing.length > 0) {
-    // 2. Response rows in request and input order (ids drawn in that order, under the experiment's lock).
+    // 2. Everything the group writes, in ONE statement (WRITE_GROUP): response rows in request and input order (ids
+    //    drawn in that order, under the experiment's lock), value rows, per-value counts of integer measures
+    //    (aggregated here first: one row per distinct key), per-condition counters, dataVersion + 1 per request that
+    //    stores something, and the change notice (delivered on commit).
     const rows = writing.flatMap((d) => d.fresh.map((item) => ({ item, request: d.request })));
-    const inserted = await c.query<{ id: number; response_id: string }>(
-      `INSERT INTO responses (experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight)
-       SELECT $1, u.rid, u.cond, u.resp, u.sub, u.recv, u.hash, u.api, u.w
-       FROM unnest($2::text[], $3::bigint[], $4::text[], $5::text[], $6::text[], $7::bytea[], $8::bigint[], $9::float8[])
-         WITH ORDINALITY AS u(rid, cond, resp, sub, recv, hash, api, w, ord)
-       ORDER BY u.ord
-       RETURNING id, response_id`,
-      [
-        experimentKey,
-        rows.map((r) => r.item.responseId),
-        rows.map((r) => r.item.conditionKey),
-        rows.map((r) => r.item.respondent),
-        rows.map((r) => r.item.submittedAt),
-        rows.map((r) => r.request.receivedAt),
-        rows.map((r) => toBuffer(r.item.contentHash)),
-        rows.map((r) => r.request.apiKeyId),
-        rows.map((r) => r.item.weight),
-      ],
-    );
-    const rowIdOf = new Map<string, number>(inserted.rows.map((r) => [r.response_id, r.id]));
-
-    // 3. Value rows, per-value counts (aggregated first: one row per distinct key), per-condition counters.
-    const integer = new Set<number>(
-      (await c.query<{ id: number }>(`SELECT id FROM measures WHERE experiment_id = $1 AND is_integer`, [experimentKey])).rows.map((r) => r.id),
-    );
-    const vResponse: number[] = [];
+    const vOrdinal: number[] = [];
     const vMeasure: number[] = [];
-    const vCondition: number[] = [];
     const vValue: number[] = [];
     // Per value: answers, and (migration 0005) those whose response carries a weight with their Σw and Σw².
     const counts = new Map<string, { m: number; c: number; v: number; n: number; wn: number; ws: number; wq: number }>();
     const perCondition = new Map<number, number>();
-    for (const { item } of rows) {
-      const rowId = rowIdOf.get(item.responseId);
-      if (rowId === undefined) throw new Error(`response ${item.responseId} was not inserted`);
+    rows.forEach(({ item }, index) => {
       for (const [measureKey, value] of item.values) {
-        vResponse.push(rowId);
+        vOrdinal.push(index + 1);
         vMeasure.push(measureKey);
-        vCondition.push(item.conditionKey);
         vValue.push(value);
         if (integer.has(measureKey)) {
           const k = `${measureKey}|${item.conditionKey}|${value}`;
@@ -270,40 +295,41 @@ export async function ingestRequestsLocked(
         }
       }
       perCondition.set(item.conditionKey, (perCondition.get(item.conditionKey) ?? 0) + 1);
-    }
-    if (vResponse.length > 0) {
-      await c.query(
-        `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value)
-         SELECT r, m, cnd, 0, v FROM unnest($1::bigint[], $2::bigint[], $3::bigint[], $4::float8[]) AS u(r, m, cnd, v)`,
-        [vResponse, vMeasure, vCondition, vValue],
-      );
-    }
-    if (counts.size > 0) {
-      const e = [...counts.values()];
-      await c.query(
-        `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count, weighted_count, weight_sum, weight_square_sum)
-         SELECT m, cnd, 0, v, n, wn, ws, wq
-         FROM unnest($1::bigint[], $2::bigint[], $3::float8[], $4::bigint[], $5::bigint[], $6::float8[], $7::float8[]) AS u(m, cnd, v, n, wn, ws, wq)
-         ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + EXCLUDED.count,
-           weighted_count = value_counts.weighted_count + EXCLUDED.weighted_count,
-           weight_sum = value_counts.weight_sum + EXCLUDED.weight_sum,
-           weight_square_sum = value_counts.weight_square_sum + EXCLUDED.weight_square_sum`,
-        [e.map((x) => x.m), e.map((x) => x.c), e.map((x) => x.v), e.map((x) => x.n), e.map((x) => x.wn), e.map((x) => x.ws), e.map((x) => x.wq)],
-      );
-    }
-    await c.query(
-      `UPDATE conditions c SET response_count = c.response_count + u.n FROM unnest($1::bigint[], $2::bigint[]) AS u(id, n) WHERE c.id = u.id`,
-      [[...perCondition.keys()], [...perCondition.values()]],
-    );
-    // 4. dataVersion: + 1 per request that stored something.
-    const r = await c.query<{ data_version: number }>(`UPDATE experiments SET data_version = data_version + $2 WHERE id = $1 RETURNING data_version`, [
+    });
+    const e = [...counts.values()];
+    const r = await c.query<{ data_version: number; responses: number; value_count: number }>(WRITE_GROUP, [
       experimentKey,
+      rows.map((x) => x.item.responseId),
+      rows.map((x) => x.item.conditionKey),
+      rows.map((x) => x.item.respondent),
+      rows.map((x) => x.item.submittedAt),
+      rows.map((x) => x.request.receivedAt),
+      rows.map((x) => toBuffer(x.item.contentHash)),
+      rows.map((x) => x.request.apiKeyId),
+      rows.map((x) => x.item.weight),
+      vOrdinal,
+      vMeasure,
+      vValue,
+      e.map((x) => x.m),
+      e.map((x) => x.c),
+      e.map((x) => x.v),
+      e.map((x) => x.n),
+      e.map((x) => x.wn),
+      e.map((x) => x.ws),
+      e.map((x) => x.wq),
+      [...perCondition.keys()],
+      [...perCondition.values()],
       writing.length,
+      CHANGE_CHANNEL,
     ]);
-    if (r.rows[0].data_version !== state.dataVersion + writing.length) {
+    const written = r.rows[0];
+    if (!written) throw new Error(`experiment ${experimentKey} disappeared under its row lock`);
+    if (written.responses !== rows.length || written.value_count !== vOrdinal.length) {
+      throw new Error(`experiment ${experimentKey}: ${written.responses} of ${rows.length} responses and ${written.value_count} of ${vOrdinal.length} values written`);
+    }
+    if (written.data_version !== state.dataVersion + writing.length) {
       throw new Error(`dataVersion of experiment ${experimentKey} moved outside its row lock`);
     }
-    await notifyChange(c, { experimentKey, dataVersion: r.rows[0].data_version, kind: 'responses' });
   }
 
   let version = state.dataVersion;
@@ -338,10 +364,7 @@ export class PostgresResponseRepository implements ResponseRepository {
    */
   async ingest(experimentKey: number, items: ValidResponse[], receivedAt: string, apiKeyId: number | null): Promise<IngestOutcome> {
     if (items.length !== 1) {
-      return this.db.write(async (c) => {
-        const locked = await lockExperiments(c, [experimentKey]);
-        return ingestLocked(c, experimentKey, locked.get(experimentKey), items, receivedAt, apiKeyId);
-      });
+      return this.db.writeLocked([experimentKey], (c, locked) => ingestLocked(c, experimentKey, locked.get(experimentKey), items, receivedAt, apiKeyId));
     }
     return new Promise<IngestOutcome>((resolve, reject) => {
       let g = this.groups.get(experimentKey);
@@ -377,22 +400,17 @@ export class PostgresResponseRepository implements ResponseRepository {
     }
     g.inFlight = true;
     type Result = { ok: true; outcome: IngestOutcome } | { ok: false; error: unknown };
-    this.db
-      .write(async (c) => {
-        const state = (await lockExperiments(c, [experimentKey])).get(experimentKey);
-        const before = state?.dataVersion;
-        // All requests in one go; if any statement fails (a bad condition key, say), redo them one savepoint each
-        // so that only the failing request is refused.
-        await c.query('SAVEPOINT whole_group');
-        try {
-          const outcomes = await ingestRequestsLocked(c, experimentKey, state, group);
-          await c.query('RELEASE SAVEPOINT whole_group');
-          return outcomes.map((outcome): Result => ({ ok: true, outcome }));
-        } catch (error) {
-          if (isUnavailable(error)) throw error;
-          await c.query('ROLLBACK TO SAVEPOINT whole_group');
-          if (state && before !== undefined) state.dataVersion = before;
-        }
+    // All requests in one go (no savepoint: the lock, one lookup, one write statement, COMMIT). If a statement fails
+    // (a bad condition key, say), that transaction rolls back and a second one redoes the requests one savepoint
+    // each, so that only the failing request is refused.
+    const together = (): Promise<Result[]> =>
+      this.db.writeLocked([experimentKey], async (c, locked) => {
+        const outcomes = await ingestRequestsLocked(c, experimentKey, locked.get(experimentKey), group);
+        return outcomes.map((outcome): Result => ({ ok: true, outcome }));
+      });
+    const oneByOne = (): Promise<Result[]> =>
+      this.db.writeLocked([experimentKey], async (c, locked) => {
+        const state = locked.get(experimentKey);
         const results: Result[] = [];
         for (const one of group) {
           await c.query('SAVEPOINT one_request');
@@ -409,6 +427,11 @@ export class PostgresResponseRepository implements ResponseRepository {
           }
         }
         return results;
+      });
+    together()
+      .catch((error: unknown) => {
+        if (isUnavailable(error)) throw error;
+        return oneByOne();
       })
       .then(
         (results) => {
