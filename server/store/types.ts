@@ -416,8 +416,12 @@ export interface ResponseRepository {
   getCountsSnapshot(measureKey: number, conditionKeys: number[], includeExcluded: boolean): Promise<MeasureSnapshot>;
   /** How many values a measure has stored (all conditions, excluded included). */
   countValues(measureKey: number): Promise<number>;
-  /** One cheap query: the dataVersion and rejected-value total of an experiment (null if it does not exist). */
-  getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null>;
+  /**
+   * One cheap query: the dataVersion and rejected-value total of an experiment (null if it does not exist).
+   * `readWith`: the record the caller has just read (experiments.getBySlug); an engine that read the stamp in the
+   * same statement as that record may answer with it, only if nothing else ran in between (see the PostgreSQL store).
+   */
+  getComparisonStamp(experimentKey: number, readWith?: ExperimentRecord): Promise<ComparisonStamp | null>;
   /**
    * Exclude (excluded = true, with a reason) or restore (false) one response, in ONE write transaction: the
    * response's flag and reason, its values' excluded flag, the per-value counts of integer measures (moved between

@@ -7,20 +7,24 @@
  *    embedded SQLite (one node), PostgreSQL one node, PostgreSQL two nodes (clients spread over both).
  *    Single answers: 32 clients each posting one response at a time (each its own responseId) for --seconds;
  *    batches: 4 clients posting batches of 500. Prints acknowledged requests/s and answers/s.
+ *    Each ingest phase also prints where the time went (CPU of each process, write transactions, lock waits).
  * 2. Comparison latency on both stores, in-process (buildApp + inject, so no network), for an integer item (0–10)
  *    and a continuous one (0–200) with N answers per condition for each N of --sizes: cold (store reopened, empty
- *    caches), warm (the same request again, median of 5), after new data (one response posted, then the
- *    comparison, median of 5). Data are loaded straight through the store in batches of 5,000.
+ *    caches), after new data (one response posted, then the comparison, median of 5), then warm (the same request
+ *    again, a cache hit validated against the database): --warm requests per store, SQLite and PostgreSQL
+ *    interleaved one by one so both see the same load, with the statements and pool checkouts of one warm request
+ *    on PostgreSQL. Data are loaded straight through the store in batches of 5,000.
  * Bounded: a scenario that would start after --minutes is skipped and said so. All data invented.
  */
 import { mkdtempSync, readFileSync, rmSync } from 'node:fs';
+import pgModule from 'pg';
 import type pg from 'pg';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { buildApp } from '../../server/http/app.js';
 import { generateSecret, hashSecret } from '../../server/services/keys.js';
 import { contentHash } from '../../server/services/ingest/validate.js';
-import { openPostgresStore } from '../../server/store/postgres/store.js';
+import { openPostgresStore, type PostgresStore } from '../../server/store/postgres/store.js';
 import { openSqliteStore } from '../../server/store/sqlite/store.js';
 import type { ExperimentRecord, Store, ValidResponse } from '../../server/store/types.js';
 import { Rng } from '../helpers/rng.js';
@@ -36,6 +40,8 @@ const SIZES = arg('--sizes', '100000,1000000').split(',').map(Number);
 /** --only ingest | comparisons: run one part. */
 const ONLY = arg('--only', '');
 const ROUNDS = Number(arg('--rounds', '1'));
+/** Warm requests per store and item (interleaved). */
+const WARM_ROUNDS = Number(arg('--warm', '200'));
 const DEADLINE = Date.now() + Number(arg('--minutes', '12')) * 60_000;
 const NOW = '2027-03-01T12:00:00.000Z';
 const log = (s: string) => process.stderr.write(`${s}\n`);
@@ -219,6 +225,7 @@ function item(e: ExperimentRecord, i: number, rng: Rng): ValidResponse {
     conditionKey: c.key,
     respondent: null,
     submittedAt: NOW,
+    weight: null,
     values: new Map([
       [e.measures[0].key, sat],
       [e.measures[1].key, price],
@@ -247,8 +254,17 @@ async function load(store: Store, slug: string, perCondition: number): Promise<v
 
 const median = (xs: number[]) => [...xs].sort((a, b) => a - b)[Math.floor(xs.length / 2)];
 
-async function comparisonScenario(engine: string, open: () => Promise<Store>, perCondition: number): Promise<void> {
-  if (!inTime(`comparisons ${engine} ${perCondition}`)) return;
+interface ComparisonEnv {
+  engine: string;
+  app: ReturnType<typeof buildApp>;
+  store: Store;
+  headers: Record<string, string>;
+  slug: string;
+}
+
+/** Load, then cold and after-new-data timings; the app stays open for the warm phase (closeEnv closes it). */
+async function comparisonScenario(engine: string, open: () => Promise<Store>, perCondition: number): Promise<ComparisonEnv | null> {
+  if (!inTime(`comparisons ${engine} ${perCondition}`)) return null;
   const slug = `bench-${perCondition}`;
   let store = await open();
   const admin = generateSecret();
@@ -258,35 +274,86 @@ async function comparisonScenario(engine: string, open: () => Promise<Store>, pe
   store = await open(); // cold: nothing cached in this process
   const app = buildApp({ port: 0, host: '127.0.0.1', dbPath: '/nonexistent/unused.db', adminKeyHash: null, corsOrigins: [], logLevel: 'silent' }, { store, logStream: { write: () => undefined } });
   await app.ready();
-  const headers = { authorization: `Bearer ${admin}` };
-  const time = async (url: string) => {
-    const t = performance.now();
-    const r = await app.inject({ method: 'GET', url, headers });
-    if (r.statusCode !== 200) throw new Error(`${url}: ${r.statusCode} ${r.body.slice(0, 200)}`);
-    return performance.now() - t;
-  };
+  const env: ComparisonEnv = { engine, app, store, headers: { authorization: `Bearer ${admin}` }, slug };
   let extra = 0;
   try {
-    for (const measure of ['satisfaction', 'fair_price']) {
+    for (const measure of MEASURES) {
       const url = `/v1/experiments/${slug}/comparisons/${measure}`;
-      const cold = await time(url);
-      const warmRuns: number[] = [];
-      for (let i = 0; i < 5; i++) warmRuns.push(await time(url));
-      const warm = median(warmRuns);
+      const cold = await timed(env, url);
       const fresh: number[] = [];
       for (let i = 0; i < 5; i++) {
-        const p = await app.inject({ method: 'POST', url: `/v1/experiments/${slug}/responses`, headers, payload: answer(extra++, 'new') });
+        const p = await app.inject({ method: 'POST', url: `/v1/experiments/${slug}/responses`, headers: env.headers, payload: answer(extra++, 'new') });
         if (p.statusCode !== 201) throw new Error(`post: ${p.statusCode}`);
-        fresh.push(await time(url));
+        fresh.push(await timed(env, url));
       }
       out(
         `compare ${engine.padEnd(10)} ${measure === 'satisfaction' ? 'integer   ' : 'continuous'} ${perCondition.toExponential(0).padStart(5)}/condition: ` +
-          `cold ${cold.toFixed(1).padStart(7)} ms   warm ${warm.toFixed(2).padStart(6)} ms   after new data ${median(fresh).toFixed(1).padStart(6)} ms`,
+          `cold ${cold.toFixed(1).padStart(7)} ms   after new data ${median(fresh).toFixed(1).padStart(6)} ms (median of 5)`,
+      );
+    }
+    return env;
+  } catch (err) {
+    await closeEnv(env);
+    throw err;
+  }
+}
+
+const MEASURES = ['satisfaction', 'fair_price'];
+
+async function timed(env: ComparisonEnv, url: string): Promise<number> {
+  const t = performance.now();
+  const r = await env.app.inject({ method: 'GET', url, headers: env.headers });
+  if (r.statusCode !== 200) throw new Error(`${url}: ${r.statusCode} ${r.body.slice(0, 200)}`);
+  return performance.now() - t;
+}
+
+async function closeEnv(env: ComparisonEnv): Promise<void> {
+  await env.app.close();
+  await env.store.close();
+}
+
+// Statements sent to PostgreSQL and pool checkouts, counted around one warm request.
+let statementsSent = 0;
+const clientQuery = pgModule.Client.prototype.query;
+pgModule.Client.prototype.query = function countedQuery(this: pgModule.Client, ...args: unknown[]) {
+  statementsSent++;
+  return (clientQuery as (...a: unknown[]) => unknown).apply(this, args);
+} as typeof clientQuery;
+
+/**
+ * Warm: the same comparison again (a cache hit validated against the database), the two stores' requests
+ * interleaved one by one (`WARM_ROUNDS` each), so both see the same machine load; medians and their ratio. On
+ * PostgreSQL the statements and pool checkouts of one warm request are counted too.
+ */
+async function warmPhase(sqlite: ComparisonEnv, postgres: ComparisonEnv, perCondition: number): Promise<void> {
+  const pool = (postgres.store as PostgresStore).database.pool;
+  let checkouts = 0;
+  const onAcquire = () => checkouts++;
+  pool.on('acquire', onAcquire);
+  try {
+    for (const measure of MEASURES) {
+      const url = (env: ComparisonEnv) => `/v1/experiments/${env.slug}/comparisons/${measure}`;
+      const runs: [number[], number[]] = [[], []];
+      for (let i = 0; i < WARM_ROUNDS; i++) {
+        runs[0].push(await timed(sqlite, url(sqlite)));
+        runs[1].push(await timed(postgres, url(postgres)));
+      }
+      const [a, b] = runs.map((r) => [...r].sort((x, y) => x - y));
+      const q = (xs: number[], f: number) => xs[Math.floor((xs.length - 1) * f)];
+      statementsSent = 0;
+      checkouts = 0;
+      await timed(postgres, url(postgres));
+      const statements = statementsSent;
+      const taken = checkouts;
+      out(
+        `warm    ${measure === 'satisfaction' ? 'integer   ' : 'continuous'} ${perCondition.toExponential(0).padStart(5)}/condition: ` +
+          `SQLite ${q(a, 0.5).toFixed(2)} ms (quartiles ${q(a, 0.25).toFixed(2)}–${q(a, 0.75).toFixed(2)})   PostgreSQL ${q(b, 0.5).toFixed(2)} ms ` +
+          `(quartiles ${q(b, 0.25).toFixed(2)}–${q(b, 0.75).toFixed(2)})   ratio ${(q(b, 0.5) / q(a, 0.5)).toFixed(2)}   ` +
+          `PostgreSQL statements per warm request ${statements}, pool checkouts ${taken}`,
       );
     }
   } finally {
-    await app.close();
-    await store.close();
+    pool.off('acquire', onAcquire);
   }
 }
 
@@ -312,8 +379,13 @@ try {
   const cmpDb = await createTestDatabase();
   dbs.push(cmpDb);
   for (const n of ONLY === 'ingest' ? [] : SIZES) {
-    await comparisonScenario('SQLite', async () => openSqliteStore(join(dir, 'compare.db')), n);
-    await comparisonScenario('PostgreSQL', async () => openPostgresStore(cmpDb.url), n);
+    const sqlite = await comparisonScenario('SQLite', async () => openSqliteStore(join(dir, 'compare.db')), n);
+    const postgres = sqlite && (await comparisonScenario('PostgreSQL', async () => openPostgresStore(cmpDb.url), n));
+    try {
+      if (sqlite && postgres) await warmPhase(sqlite, postgres, n);
+    } finally {
+      for (const env of [sqlite, postgres]) if (env) await closeEnv(env);
+    }
   }
 } finally {
   for (const db of dbs) await db.drop().catch(() => undefined);

@@ -247,7 +247,7 @@ export class ComparisonService {
 
   /** One cheap query: what the cached entries of this experiment depend on besides the definition. */
   async stamp(experiment: ExperimentRecord): Promise<Stamp> {
-    const s = await this.store.responses.getComparisonStamp(experiment.key);
+    const s = await this.store.responses.getComparisonStamp(experiment.key, experiment);
     if (!s) throw experimentNotFound(experiment.id);
     return s;
   }

@@ -40,6 +40,7 @@ import {
   type ConditionCounter,
   type ErasureOutcome,
   type ExclusionOutcome,
+  type ExperimentRecord,
   type IngestOutcome,
   type MeasureSnapshot,
   type RejectedCount,
@@ -55,6 +56,7 @@ import {
 import { addRejectedWeights, readAdjustmentRows, readRejectedWeights, readWeightedSnapshot } from './responses-weights.js';
 import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, type SortedRun } from '../sorted-runs-cache.js';
 import { recordAudit, redactAudit } from './audit.js';
+import { takeStampReadWith } from './definition-read.js';
 import { CHANGE_CHANNEL, notifyChange } from './notifier.js';
 import { bumpDataVersion, isUnavailable, lockExperiments, toBuffer, type PostgresDatabase, type PreparedStatement, type Queryable } from './pool.js';
 import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
@@ -709,8 +711,14 @@ export class PostgresResponseRepository implements ResponseRepository {
     return (await this.db.query<{ n: number }>(`SELECT count(*) AS n FROM response_values WHERE measure_id = $1`, [measureKey])).rows[0].n;
   }
 
-  /** One prepared statement, no transaction (a single statement sees one snapshot): what every cached reply is checked against. */
-  async getComparisonStamp(experimentKey: number): Promise<ComparisonStamp | null> {
+  /**
+   * What every cached reply is checked against: the stamp read in the same statement as `readWith` when the caller
+   * asks right after reading it (definition-read.ts), else one prepared statement, no transaction (a single
+   * statement sees one snapshot).
+   */
+  async getComparisonStamp(experimentKey: number, readWith?: ExperimentRecord): Promise<ComparisonStamp | null> {
+    const fused = takeStampReadWith(readWith, experimentKey);
+    if (fused) return fused;
     const r = await this.db.prepared<{ data_version: number; rejected: number; looks: number }>(COMPARISON_STAMP, [experimentKey]);
     const row = r.rows[0];
     return row ? { dataVersion: row.data_version, rejectedTotal: row.rejected, looks: row.looks } : null;

@@ -3,6 +3,7 @@
  * slug (server/store/postgres/definition-read.ts), the comparison stamp and the key by hash. They must return exactly
  * what the snapshot reads return, keep working on connections that prepared them before a migration added a column,
  * and never answer from memory: a change committed through another pool (another node) is seen by the next call.
+ * The stamp read in the same statement as a definition is used only by the stamp call that follows it at once.
  */
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import type { ExperimentRecord, ValidResponse } from '../../../server/store/types.js';
@@ -120,5 +121,56 @@ describe.skipIf(!available)('PostgreSQL hot reads', () => {
     expect(e!.measures.map((m) => m.id)).toEqual(['tiny', 'huge', 'score']);
     expect((await nodeB.apiKeys.findByHash(hashSecret('hot-secret')))!.id).toBe(key.id);
     expect(await readDefinitionBySlug(nodeB.database, 'hot-stamp')).toEqual(await nodeB.experiments.getBySlug('hot-stamp'));
+  });
+
+  it('the stamp read with the definition serves the call right after it, once; after a turn of the event loop it is read again', async () => {
+    const created = await nodeA.experiments.create({
+      id: 'hot-fused',
+      title: 'Invented survey',
+      conditions: [
+        { id: 'a', label: 'A' },
+        { id: 'b', label: 'B' },
+      ],
+      measures: [{ id: 'price', label: 'Price', min: 0, max: 100, integer: false, required: true }],
+      plannedPerCondition: null,
+      alpha: 0.05,
+      thankYouUrl: null,
+    });
+    if (created.kind !== 'created') throw new Error(created.kind);
+    const e = created.experiment;
+    await nodeA.responses.ingest(e.key, [answer(e, 'f1', 0, 1)], NOW, null);
+    await nodeA.responses.recordRejected(e.key, [{ measureKey: e.measures[0].key, reason: 'not_a_number', count: 3 }]);
+    let checkouts = 0;
+    const count = () => checkouts++;
+    nodeB.database.pool.on('acquire', count);
+    try {
+      // Right after the definition: no statement of its own, and the same stamp a statement would read.
+      const record = (await nodeB.experiments.getBySlug('hot-fused'))!;
+      checkouts = 0;
+      const fused = await nodeB.responses.getComparisonStamp(e.key, record);
+      expect(checkouts).toBe(0);
+      expect(fused).toEqual({ dataVersion: 1, rejectedTotal: 3, looks: 0 });
+      // Once only: the next call with the same record asks the database, and sees a write made meanwhile.
+      await nodeA.responses.ingest(e.key, [answer(e, 'f2', 1, 2)], NOW, null);
+      checkouts = 0;
+      expect((await nodeB.responses.getComparisonStamp(e.key, record))!.dataVersion).toBe(2);
+      expect(checkouts).toBe(1);
+
+      // A turn of the event loop after the definition read (here: a write through another node): read afresh.
+      const later = (await nodeB.experiments.getBySlug('hot-fused'))!;
+      await nodeA.responses.ingest(e.key, [answer(e, 'f3', 0, 3)], NOW, null);
+      await new Promise((resolve) => setImmediate(resolve));
+      checkouts = 0;
+      expect((await nodeB.responses.getComparisonStamp(e.key, later))!.dataVersion).toBe(3);
+      expect(checkouts).toBe(1);
+
+      // Another experiment's key with this record: not used.
+      const again = (await nodeB.experiments.getBySlug('hot-fused'))!;
+      checkouts = 0;
+      expect(await nodeB.responses.getComparisonStamp(99_999_999, again)).toBeNull();
+      expect(checkouts).toBe(1);
+    } finally {
+      nodeB.database.pool.off('acquire', count);
+    }
   });
 });
