@@ -1,6 +1,7 @@
 /**
  * PostgreSQL against the embedded store:
- * `npx tsx tests/bench/postgres.ts [--seconds 8] [--sizes 100000,1000000] [--minutes 12] [--only ingest|comparisons] [--rounds 1]`
+ * `npx tsx tests/bench/postgres.ts [--seconds 8] [--sizes 100000,1000000] [--minutes 12] [--only ingest|comparisons] [--rounds 1]
+ *   [--experiments 1] [--warm 200]`
  * (needs `npm run build` first and PostgreSQL on 127.0.0.1:5432; not part of npm test).
  *
  * 1. Ingest over HTTP with real processes of the built server (dist/server/main.js, rate limit off):
@@ -40,6 +41,8 @@ const SIZES = arg('--sizes', '100000,1000000').split(',').map(Number);
 /** --only ingest | comparisons: run one part. */
 const ONLY = arg('--only', '');
 const ROUNDS = Number(arg('--rounds', '1'));
+/** Experiments the ingest clients write to (request n to experiment n mod K). */
+const EXPERIMENTS = Number(arg('--experiments', '1'));
 /** Warm requests per store and item (interleaved). */
 const WARM_ROUNDS = Number(arg('--warm', '200'));
 const DEADLINE = Date.now() + Number(arg('--minutes', '12')) * 60_000;
@@ -96,8 +99,8 @@ async function drive(nodes: BuiltServer[], clients: number, seconds: number, sen
 // Where the time goes during an ingest phase: CPU seconds of each node process, of this driver, of the PostgreSQL
 // backends serving the bench database and of the whole machine (every process, other work included), from /proc;
 // write transactions of the phase (distinct xmin of the responses it stored: one per group commit or batch), and
-// backends waiting for a lock, sampled every
-// 25 ms from pg_stat_activity (on the experiment's row: ingest transactions of other groups and nodes queue there).
+// backends waiting for a lock, sampled every 25 ms from pg_stat_activity (on the experiment's row: ingest
+// transactions of other groups and nodes queue there).
 const CLOCK_TICKS = 100; // USER_HZ on Linux
 function processCpuSeconds(pid: number): number {
   try {
@@ -194,12 +197,18 @@ async function ingestScenario(name: string, env: Record<string, string>, nodeCou
   const admin = db ? await db.admin() : null;
   try {
     for (let i = 0; i < nodeCount; i++) nodes.push(await startBuiltServer(env.SPLITBALLOT_DB ?? '/nonexistent/unused.db', env));
-    if ((await post(nodes[0].base, '/v1/experiments', { ...DEFINITION, plannedPerCondition: null })) !== 201) throw new Error('experiment not created');
-    const path = `/v1/experiments/${DEFINITION.id}/responses`;
-    const singles = await profiled(nodes, admin, 's', () => drive(nodes, 32, SECONDS, async (base, n) => ((await post(base, path, answer(n, 's'))) === 201 ? 1 : 0)));
+    // --experiments K: K experiments, request n goes to experiment n mod K (1: every client writes to one).
+    const paths: string[] = [];
+    for (let k = 0; k < EXPERIMENTS; k++) {
+      const id = EXPERIMENTS === 1 ? DEFINITION.id : `${DEFINITION.id}-${k}`;
+      if ((await post(nodes[0].base, '/v1/experiments', { ...DEFINITION, id, plannedPerCondition: null })) !== 201) throw new Error('experiment not created');
+      paths.push(`/v1/experiments/${id}/responses`);
+    }
+    const path = (n: number) => paths[n % paths.length];
+    const singles = await profiled(nodes, admin, 's', () => drive(nodes, 32, SECONDS, async (base, n) => ((await post(base, path(n), answer(n, 's'))) === 201 ? 1 : 0)));
     const batches = await profiled(nodes, admin, 'b', () =>
       drive(nodes, 4, SECONDS, async (base, n) =>
-        (await post(base, `${path}/batch`, { responses: Array.from({ length: 500 }, (_, k) => answer(n * 500 + k, 'b')) })) === 201 ? 500 : 0,
+        (await post(base, `${path(n)}/batch`, { responses: Array.from({ length: 500 }, (_, k) => answer(n * 500 + k, 'b')) })) === 201 ? 500 : 0,
       ),
     );
     out(
@@ -361,7 +370,10 @@ async function warmPhase(sqlite: ComparisonEnv, postgres: ComparisonEnv, perCond
 
 if (!HAVE_DIST) throw new Error('run `npm run build` first (the ingest part starts dist/server/main.js)');
 if (!(await postgresAvailable('the PostgreSQL benchmark'))) process.exit(1);
-out(`tests/bench/postgres.ts — ${new Date().toISOString()}; --seconds ${SECONDS}, --sizes ${SIZES.join(',')}; invented data`);
+out(
+  `tests/bench/postgres.ts — ${new Date().toISOString()}; --seconds ${SECONDS}, --sizes ${SIZES.join(',')}, --experiments ${EXPERIMENTS}, ` +
+    `--rounds ${ROUNDS}, --warm ${WARM_ROUNDS}${ONLY ? `, --only ${ONLY}` : ''}; invented data`,
+);
 const dir = mkdtempSync(join(tmpdir(), 'sb-bench-pg-'));
 const dbs: Awaited<ReturnType<typeof createTestDatabase>>[] = [];
 try {
