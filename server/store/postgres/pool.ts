@@ -8,7 +8,8 @@
  *    experiment run one after another on every node and never deadlock. Under READ COMMITTED each statement
  *    after the lock sees everything committed before the lock was granted. A serialization failure or a
  *    deadlock (40001, 40P01) is retried a few times. The promise settles only after COMMIT returned:
- *    acknowledged means committed.
+ *    acknowledged means committed. writeLocked(keys, fn) is the same with the row lock sent in one message
+ *    with BEGIN (ingest: one round trip fewer).
  *  - snapshot(fn): BEGIN ISOLATION LEVEL REPEATABLE READ, READ ONLY: every statement sees one snapshot, so a
  *    dataVersion, the values epoch and the data read beside them belong together.
  *
@@ -98,7 +99,7 @@ export interface PostgresDatabase {
   /** One statement outside an explicit transaction (autocommit). */
   query<R extends pg.QueryResultRow = pg.QueryResultRow>(text: string, values?: unknown[]): Promise<pg.QueryResult<R>>;
   /**
-   * One statement outside an explicit transaction, as a named prepared statement (see PREPARED): parsed and
+   * One statement outside an explicit transaction, as a named prepared statement (see PreparedStatement): parsed and
    * planned once per connection, then one round trip (Bind/Execute) per call. For the hot reads of every request.
    */
   prepared<R extends pg.QueryResultRow = pg.QueryResultRow>(statement: PreparedStatement, values: unknown[]): Promise<pg.QueryResult<R>>;
