@@ -13,7 +13,7 @@
  */
 import type { BulkImport, BulkRepository, ExportRow, IngestOutcome, ValidResponse } from '../types.js';
 import { ingestLocked, type ExperimentLockState } from './responses.js';
-import { lockExperiments, mapError, type PostgresDatabase } from './pool.js';
+import { guardLentClient, lockExperiments, mapError, type PostgresDatabase } from './pool.js';
 import { exportRow, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from '../response-rows.js';
 
 /** One exported response (the port's ExportRow). */
@@ -79,13 +79,15 @@ export async function beginBulkImportPostgres(db: PostgresDatabase, experimentKe
     throw mapError(err, db.options.retryAfterSeconds);
   }
   const c = client;
+  const lent = guardLentClient(c); // lent out for the whole import: a reset connection must not end the process
   let state: ExperimentLockState | undefined;
   try {
     await c.query('BEGIN ISOLATION LEVEL READ COMMITTED');
     state = (await lockExperiments(c, [experimentKey])).get(experimentKey);
   } catch (err) {
     await c.query('ROLLBACK').catch(() => undefined);
-    c.release(err as Error);
+    lent.markBroken(err as Error);
+    lent.release();
     throw mapError(err, db.options.retryAfterSeconds);
   }
   let open = true;
@@ -93,14 +95,13 @@ export async function beginBulkImportPostgres(db: PostgresDatabase, experimentKe
   const finish = async (sql: 'COMMIT' | 'ROLLBACK') => {
     open = false;
     await busy.catch(() => undefined);
-    let broken: Error | undefined;
     try {
       await c.query(sql);
     } catch (err) {
-      broken = err as Error;
+      lent.markBroken(err as Error);
       if (sql === 'COMMIT') throw mapError(err, db.options.retryAfterSeconds);
     } finally {
-      c.release(broken);
+      lent.release();
     }
   };
   return {

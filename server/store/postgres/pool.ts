@@ -189,14 +189,14 @@ export function createDatabase(connectionString: string, options: PostgresPoolOp
     } catch (err) {
       throw mapError(err, retryAfter);
     }
-    let broken: Error | undefined;
+    const lent = guardLentClient(client);
     try {
       return await fn(client);
     } catch (err) {
-      if (isUnavailable(err)) broken = err as Error;
+      if (isUnavailable(err)) lent.markBroken(err as Error);
       throw mapError(err, retryAfter);
     } finally {
-      client.release(broken);
+      lent.release();
     }
   }
 
@@ -264,6 +264,35 @@ export function createDatabase(connectionString: string, options: PostgresPoolOp
     snapshot: (fn) => transaction('BEGIN ISOLATION LEVEL REPEATABLE READ, READ ONLY', fn),
     async end() {
       await pool.end();
+    },
+  };
+}
+
+/**
+ * A client taken with pool.connect() has no 'error' listener while it is lent out (the pool listens only to idle
+ * clients), and an 'error' event without a listener ends the process: a connection reset while a transaction
+ * runs (a server restarting in immediate mode) would take the node down instead of answering 503. This listens
+ * for as long as the client is lent out and releases it as broken (the pool then drops it) when it failed.
+ */
+export function guardLentClient(client: pg.PoolClient): { markBroken(err: Error): void; readonly broken: Error | undefined; release(): void } {
+  let broken: Error | undefined;
+  const onError = (err: Error) => {
+    broken ??= err;
+  };
+  client.on('error', onError);
+  let released = false;
+  return {
+    markBroken(err) {
+      broken ??= err;
+    },
+    get broken() {
+      return broken;
+    },
+    release() {
+      if (released) return;
+      released = true;
+      client.off('error', onError);
+      client.release(broken);
     },
   };
 }

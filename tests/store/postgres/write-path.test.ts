@@ -109,4 +109,17 @@ describe.skipIf(!available)('PostgreSQL ingest write path', () => {
     const report = await store.check();
     expect(report.ok).toBe(true);
   });
+
+  it('a connection reset while a transaction runs: 503 for that request, the process stays up, the pool goes on', async () => {
+    const e = await experiment(store, 'reset');
+    const failed = store.database.write(async (c) => {
+      // What a server restarting in immediate mode does to a connection that is lent out: a reset socket.
+      const socket = (c as unknown as { connection: { stream: { destroy(err: Error): void } } }).connection.stream;
+      setTimeout(() => socket.destroy(Object.assign(new Error('read ECONNRESET'), { code: 'ECONNRESET' })), 50);
+      await c.query('SELECT pg_sleep(1)');
+    });
+    await expect(failed).rejects.toBeInstanceOf(StoreUnavailableError);
+    const ok = await store.responses.ingest(e.key, [answer(e, 'r1', 0, 1, 1)], NOW, null);
+    expect(ok).toMatchObject({ kind: 'stored', created: 1, dataVersion: 1 });
+  });
 });
