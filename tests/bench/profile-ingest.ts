@@ -13,7 +13,8 @@
  *   - the real store transaction (store.responses.ingest: BEGIN IMMEDIATE … COMMIT);
  *   - the same transaction REPLAYED statement by statement with the SQL of server/store/sqlite/responses-ingest.ts
  *     against a second database migrated with migrations/sqlite/*.sql: experiment state, idempotency probe (100
- *     ids per statement), max(id), response rows (50 per statement), value rows (100 per statement), count upserts,
+ *     ids per statement), max(id), response rows with their packed values (50 per statement), value rows (one row
+ *     per call of one cached statement into the clustered table of migration 0008), count upserts,
  *     per-condition counters, dataVersion, COMMIT (the WAL fsync: synchronous = FULL), and one rejected-counter
  *     transaction (only written when a batch has refused values) for scale. The JavaScript bookkeeping of the
  *     real transaction is roughly its time minus the replayed statements.
@@ -142,8 +143,10 @@ function replayTransaction(db: Database.Database, experimentKey: number, items: 
   for (let i = 0; i < items.length; i++) {
     const it = items[i];
     const id = firstId + i;
-    rp.push(id, experimentKey, it.responseId, it.conditionKey, it.respondent, it.submittedAt, receivedAt, it.contentHash, null);
-    if (rp.length === 50 * 9) (responseChunks.push(rp), (rp = []));
+    let packed = '';
+    for (const [m, v] of it.values) packed += packed.length === 0 ? `${m}=${v}` : `,${m}=${v}`;
+    rp.push(id, experimentKey, it.responseId, it.conditionKey, it.respondent, it.submittedAt, receivedAt, it.contentHash, null, null, packed);
+    if (rp.length === 50 * 11) (responseChunks.push(rp), (rp = []));
     for (const [m, v] of it.values) {
       vp.push(id, m, it.conditionKey, v);
       if (vp.length === 100 * 4) (valueChunks.push(vp), (vp = []));
@@ -155,8 +158,8 @@ function replayTransaction(db: Database.Database, experimentKey: number, items: 
   step('response rows (50 / INSERT)', () => {
     for (const c of responseChunks) s.insertResponsesMany.run(c);
   });
-  step('value rows (100 / INSERT)', () => {
-    for (const c of valueChunks) s.insertValuesMany.run(c);
+  step('value rows (1 / INSERT, cached statement)', () => {
+    for (const c of valueChunks) for (let k = 0; k < c.length; k += 4) s.insertValue.run(c[k], c[k + 1], c[k + 2], c[k + 3]);
   });
   step('count upserts', () => {
     for (const [k, n] of counts) {
@@ -187,12 +190,10 @@ function prepareReplay(db: Database.Database) {
       .raw(),
     maxResponseId: db.prepare(`SELECT coalesce(max(id), 0) FROM responses`).pluck(),
     insertResponsesMany: db.prepare(
-      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       VALUES ${Array.from({ length: 50 }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight, packed_values)
+       VALUES ${Array.from({ length: 50 }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
     ),
-    insertValuesMany: db.prepare(
-      `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES ${Array.from({ length: 100 }, () => '(?, ?, ?, 0, ?)').join(', ')}`,
-    ),
+    insertValue: db.prepare(`INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES (?, ?, ?, 0, ?)`),
     upsertCount: db.prepare(
       `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, 0, ?, ?)
        ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
@@ -259,10 +260,10 @@ async function profile(): Promise<Record<string, unknown>> {
       add('JSON.parse alone', bare);
       add('parse: overlong-number scan + JSON.parse', parse);
       add('validation incl. hashing (checkBatch)', validate);
-      add('  of which canonical hashing (JSON.stringify + createHash)', hashing);
-      add('    of which JSON.stringify of the canonical form', stringifyOnly);
-      add('  validation without hashing (difference)', minus(validate, hashing));
-      add('  (alternative: crypto.hash one-shot, incl. stringify)', oneShot);
+      add('  canonical hashing alone (contentHash: canonical text + crypto.hash)', hashing);
+      add('    (earlier form: JSON.stringify of the canonical array alone)', stringifyOnly);
+      add('    (earlier form: JSON.stringify + crypto.hash one-shot)', oneShot);
+      add('  validation without hashing (difference; checkBatch builds the text while checking)', minus(validate, hashing));
       add('store transaction (real, store.responses.ingest)', tx);
       let replayTotal = ZERO;
       for (const [k, v] of Object.entries(replay)) {
