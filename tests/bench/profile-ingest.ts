@@ -14,7 +14,7 @@
  *   - the same transaction REPLAYED statement by statement with the SQL of server/store/sqlite/responses-ingest.ts
  *     against a second database migrated with migrations/sqlite/*.sql: experiment state, idempotency probe (100
  *     ids per statement), max(id), response rows with their packed values (50 per statement), value rows (one row
- *     per call of one cached statement into the clustered table of migration 0008), count upserts,
+ *     sorted by the clustered key of migration 0008 and written 100 per statement), count upserts,
  *     per-condition counters, dataVersion, COMMIT (the WAL fsync: synchronous = FULL), and one rejected-counter
  *     transaction (only written when a batch has refused values) for scale. The JavaScript bookkeeping of the
  *     real transaction is roughly its time minus the replayed statements.
@@ -158,8 +158,21 @@ function replayTransaction(db: Database.Database, experimentKey: number, items: 
   step('response rows (50 / INSERT)', () => {
     for (const c of responseChunks) s.insertResponsesMany.run(c);
   });
-  step('value rows (1 / INSERT, cached statement)', () => {
-    for (const c of valueChunks) for (let k = 0; k < c.length; k += 4) s.insertValue.run(c[k], c[k + 1], c[k + 2], c[k + 3]);
+  // As responses-ingest.ts does: the batch's value rows sorted by the clustered key, 100 per statement.
+  const sortedChunks: unknown[][] = [];
+  {
+    const all: [number, number, number, number][] = [];
+    for (const c of valueChunks) for (let k = 0; k < c.length; k += 4) all.push([c[k] as number, c[k + 1] as number, c[k + 2] as number, c[k + 3] as number]);
+    step('sort value rows by the clustered key', () => {
+      all.sort((a, b) => a[1] - b[1] || a[2] - b[2] || a[3] - b[3] || a[0] - b[0]);
+    });
+    for (let start = 0; start < all.length; start += 100) sortedChunks.push(all.slice(start, start + 100).flat());
+  }
+  step('value rows (100 / INSERT, sorted)', () => {
+    for (const c of sortedChunks) {
+      if (c.length === 400) s.insertValuesMany.run(c);
+      else for (let k = 0; k < c.length; k += 4) s.insertValue.run(c[k], c[k + 1], c[k + 2], c[k + 3]);
+    }
   });
   step('count upserts', () => {
     for (const [k, n] of counts) {
@@ -194,6 +207,9 @@ function prepareReplay(db: Database.Database) {
        VALUES ${Array.from({ length: 50 }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
     ),
     insertValue: db.prepare(`INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES (?, ?, ?, 0, ?)`),
+    insertValuesMany: db.prepare(
+      `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES ${Array.from({ length: 100 }, () => '(?, ?, ?, 0, ?)').join(', ')}`,
+    ),
     upsertCount: db.prepare(
       `INSERT INTO value_counts (measure_id, condition_id, excluded, value, count) VALUES (?, ?, 0, ?, ?)
        ON CONFLICT (measure_id, condition_id, excluded, value) DO UPDATE SET count = value_counts.count + excluded.count`,
@@ -236,6 +252,9 @@ async function profile(): Promise<Record<string, unknown>> {
       const [, stringifyOnly] = timed(() => {
         for (const x of canon) JSON.stringify([x.c, x.r, x.vals]);
       });
+      const [, earlier] = timed(() => {
+        for (const x of canon) createHash('sha256').update(JSON.stringify([x.c, x.r, x.vals]), 'utf8').digest();
+      });
       const [, oneShot] = timed(() => {
         for (const x of canon) oneShotHash('sha256', JSON.stringify([x.c, x.r, x.vals]), 'buffer');
       });
@@ -261,6 +280,7 @@ async function profile(): Promise<Record<string, unknown>> {
       add('parse: overlong-number scan + JSON.parse', parse);
       add('validation incl. hashing (checkBatch)', validate);
       add('  canonical hashing alone (contentHash: canonical text + crypto.hash)', hashing);
+      add('    (earlier form: JSON.stringify + createHash, as before migration 0008)', earlier);
       add('    (earlier form: JSON.stringify of the canonical array alone)', stringifyOnly);
       add('    (earlier form: JSON.stringify + crypto.hash one-shot)', oneShot);
       add('  validation without hashing (difference; checkBatch builds the text while checking)', minus(validate, hashing));
