@@ -36,7 +36,11 @@ export const ID_LOOKUP_CHUNK = 100;
 
 export const GROUP_COMMIT_MAX = 256;
 
-/** Integer measures spanning at most this many values are tallied in typed arrays; wider ones in a map. */
+/**
+ * Integer measures spanning at most this many values are tallied in typed arrays, when the arrays (values ×
+ * conditions) are not much larger than the transaction (at most max(1,024, 8 × its responses) cells: a single
+ * response on a wide scale gets a map, not a large array); otherwise in a map.
+ */
 export const DENSE_TALLY_MAX = 4096;
 
 /** The next turn of the event loop (captured at load, so fake timers in tests cannot stall a commit). */
@@ -85,8 +89,9 @@ class IntegerTally {
     private readonly min: number,
     private readonly size: number,
     private readonly conditionCount: number,
+    responses: number,
   ) {
-    const dense = size <= DENSE_TALLY_MAX;
+    const dense = size <= DENSE_TALLY_MAX && size * conditionCount <= Math.max(1024, 8 * responses);
     this.counts = dense ? new Int32Array(size * conditionCount) : null;
     this.sparse = dense ? null : Array.from({ length: conditionCount }, () => new Map<number, CountIncrement>());
   }
@@ -294,7 +299,7 @@ export class SqliteIngestWriter {
         conditionKeys.forEach((key, i) => conditionIndex.set(key, i));
         const tallies = new Map<number, IntegerTally | null>();
         for (const m of this.measuresOf.all(experimentKey)) {
-          tallies.set(m.id, m.is_integer === 1 ? new IntegerTally(m.min, m.max - m.min + 1, conditionKeys.length) : null);
+          tallies.set(m.id, m.is_integer === 1 ? new IntegerTally(m.min, m.max - m.min + 1, conditionKeys.length, items.length) : null);
         }
         if (apiKeyId !== null && this.apiKeyExists.get(apiKeyId) === undefined) throw new Error(`API key ${apiKeyId} does not exist`);
 
