@@ -7,9 +7,12 @@
  * (maxRSS, KiB), printed by a small wrapper, so it measures exactly the import process.
  *
  *   ROWS=200000 npm run bench:import     fewer rows
+ *   IMPORT_CPU_PROF=/tmp/prof ROWS=200000 npx tsx tests/bench/import-memory.ts
+ *                                        also write a V8 CPU profile of the import process into that folder and print
+ *                                        the functions with the most self time (after npm run build)
  */
 import { spawn } from 'node:child_process';
-import { createWriteStream, mkdtempSync, rmSync, statSync } from 'node:fs';
+import { createWriteStream, mkdtempSync, readdirSync, readFileSync, rmSync, statSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -82,7 +85,9 @@ async function main(): Promise<void> {
       process.stdout.write('maxRSS_KiB=' + process.resourceUsage().maxRSS + '\\n');
       process.exit(code);`;
     const started = Date.now();
-    const r = await run(['--input-type=module', '-e', wrapper, 'import', '--experiment', 'water-bill-2027', csv], env);
+    const profileDir = process.env.IMPORT_CPU_PROF;
+    const profiling = profileDir ? ['--cpu-prof', '--cpu-prof-dir', profileDir] : [];
+    const r = await run([...profiling, '--input-type=module', '-e', wrapper, 'import', '--experiment', 'water-bill-2027', csv], env);
     const seconds = (Date.now() - started) / 1000;
     if (r.code !== 0) throw new Error(`import failed (${r.code}): ${r.stdout}${r.stderr}`);
     const rss = Number(/maxRSS_KiB=(\d+)/.exec(r.stdout)?.[1] ?? NaN) / 1024;
@@ -92,9 +97,27 @@ async function main(): Promise<void> {
       `import benchmark: ${ROWS.toLocaleString('en')} rows (${(size / 1e6).toFixed(1)} MB CSV) in ${seconds.toFixed(1)} s ` +
         `(${Math.round(ROWS / seconds).toLocaleString('en')} rows/s incl. start-up), peak RSS ${rss.toFixed(0)} MiB\n`,
     );
+    if (profileDir) process.stdout.write(topSelfTime(profileDir));
   } finally {
     rmSync(dir, { recursive: true, force: true });
   }
+}
+
+/** The 15 functions with the most self time in the newest .cpuprofile of `folder` (share of all samples). */
+function topSelfTime(folder: string): string {
+  const newest = readdirSync(folder).filter((f) => f.endsWith('.cpuprofile')).map((f) => join(folder, f)).sort((a, b) => statSync(b).mtimeMs - statSync(a).mtimeMs)[0];
+  if (!newest) return 'no CPU profile written\n';
+  const profile = JSON.parse(readFileSync(newest, 'utf8')) as { nodes: { id: number; callFrame: { functionName: string; url: string; lineNumber: number } }[]; samples: number[] };
+  const byId = new Map(profile.nodes.map((n) => [n.id, n]));
+  const self = new Map<string, number>();
+  for (const id of profile.samples) {
+    const f = byId.get(id)!.callFrame;
+    const name = `${f.functionName || '(anonymous)'} ${f.url.replace(/^.*\/(dist|node_modules)\//, '$1/')}:${f.lineNumber + 1}`;
+    self.set(name, (self.get(name) ?? 0) + 1);
+  }
+  const total = profile.samples.length;
+  const top = [...self].sort((a, b) => b[1] - a[1]).slice(0, 15);
+  return `CPU profile ${newest}: self time of ${total} samples\n${top.map(([name, n]) => `  ${((100 * n) / total).toFixed(1).padStart(5)} %  ${name}`).join('\n')}\n`;
 }
 
 main().catch((err: unknown) => {

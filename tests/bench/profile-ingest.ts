@@ -13,7 +13,8 @@
  *   - the real store transaction (store.responses.ingest: BEGIN IMMEDIATE … COMMIT);
  *   - the same transaction REPLAYED statement by statement with the SQL of server/store/sqlite/responses-ingest.ts
  *     against a second database migrated with migrations/sqlite/*.sql: experiment state, idempotency probe (100
- *     ids per statement), max(id), response rows (50 per statement), value rows (100 per statement), count upserts,
+ *     ids per statement), max(id), response rows with their packed values (50 per statement), value rows (one row
+ *     sorted by the clustered key of migration 0008 and written 100 per statement), count upserts,
  *     per-condition counters, dataVersion, COMMIT (the WAL fsync: synchronous = FULL), and one rejected-counter
  *     transaction (only written when a batch has refused values) for scale. The JavaScript bookkeeping of the
  *     real transaction is roughly its time minus the replayed statements.
@@ -142,8 +143,10 @@ function replayTransaction(db: Database.Database, experimentKey: number, items: 
   for (let i = 0; i < items.length; i++) {
     const it = items[i];
     const id = firstId + i;
-    rp.push(id, experimentKey, it.responseId, it.conditionKey, it.respondent, it.submittedAt, receivedAt, it.contentHash, null);
-    if (rp.length === 50 * 9) (responseChunks.push(rp), (rp = []));
+    let packed = '';
+    for (const [m, v] of it.values) packed += packed.length === 0 ? `${m}=${v}` : `,${m}=${v}`;
+    rp.push(id, experimentKey, it.responseId, it.conditionKey, it.respondent, it.submittedAt, receivedAt, it.contentHash, null, null, packed);
+    if (rp.length === 50 * 11) (responseChunks.push(rp), (rp = []));
     for (const [m, v] of it.values) {
       vp.push(id, m, it.conditionKey, v);
       if (vp.length === 100 * 4) (valueChunks.push(vp), (vp = []));
@@ -155,8 +158,21 @@ function replayTransaction(db: Database.Database, experimentKey: number, items: 
   step('response rows (50 / INSERT)', () => {
     for (const c of responseChunks) s.insertResponsesMany.run(c);
   });
-  step('value rows (100 / INSERT)', () => {
-    for (const c of valueChunks) s.insertValuesMany.run(c);
+  // As responses-ingest.ts does: the batch's value rows sorted by the clustered key, 100 per statement.
+  const sortedChunks: unknown[][] = [];
+  {
+    const all: [number, number, number, number][] = [];
+    for (const c of valueChunks) for (let k = 0; k < c.length; k += 4) all.push([c[k] as number, c[k + 1] as number, c[k + 2] as number, c[k + 3] as number]);
+    step('sort value rows by the clustered key', () => {
+      all.sort((a, b) => a[1] - b[1] || a[2] - b[2] || a[3] - b[3] || a[0] - b[0]);
+    });
+    for (let start = 0; start < all.length; start += 100) sortedChunks.push(all.slice(start, start + 100).flat());
+  }
+  step('value rows (100 / INSERT, sorted)', () => {
+    for (const c of sortedChunks) {
+      if (c.length === 400) s.insertValuesMany.run(c);
+      else for (let k = 0; k < c.length; k += 4) s.insertValue.run(c[k], c[k + 1], c[k + 2], c[k + 3]);
+    }
   });
   step('count upserts', () => {
     for (const [k, n] of counts) {
@@ -187,9 +203,10 @@ function prepareReplay(db: Database.Database) {
       .raw(),
     maxResponseId: db.prepare(`SELECT coalesce(max(id), 0) FROM responses`).pluck(),
     insertResponsesMany: db.prepare(
-      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id)
-       VALUES ${Array.from({ length: 50 }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
+      `INSERT INTO responses (id, experiment_id, response_id, condition_id, respondent, submitted_at, received_at, content_hash, api_key_id, weight, packed_values)
+       VALUES ${Array.from({ length: 50 }, () => '(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)').join(', ')}`,
     ),
+    insertValue: db.prepare(`INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES (?, ?, ?, 0, ?)`),
     insertValuesMany: db.prepare(
       `INSERT INTO response_values (response_id, measure_id, condition_id, excluded, value) VALUES ${Array.from({ length: 100 }, () => '(?, ?, ?, 0, ?)').join(', ')}`,
     ),
@@ -235,6 +252,9 @@ async function profile(): Promise<Record<string, unknown>> {
       const [, stringifyOnly] = timed(() => {
         for (const x of canon) JSON.stringify([x.c, x.r, x.vals]);
       });
+      const [, earlier] = timed(() => {
+        for (const x of canon) createHash('sha256').update(JSON.stringify([x.c, x.r, x.vals]), 'utf8').digest();
+      });
       const [, oneShot] = timed(() => {
         for (const x of canon) oneShotHash('sha256', JSON.stringify([x.c, x.r, x.vals]), 'buffer');
       });
@@ -259,10 +279,11 @@ async function profile(): Promise<Record<string, unknown>> {
       add('JSON.parse alone', bare);
       add('parse: overlong-number scan + JSON.parse', parse);
       add('validation incl. hashing (checkBatch)', validate);
-      add('  of which canonical hashing (JSON.stringify + createHash)', hashing);
-      add('    of which JSON.stringify of the canonical form', stringifyOnly);
-      add('  validation without hashing (difference)', minus(validate, hashing));
-      add('  (alternative: crypto.hash one-shot, incl. stringify)', oneShot);
+      add('  canonical hashing alone (contentHash: canonical text + crypto.hash)', hashing);
+      add('    (earlier form: JSON.stringify + createHash, as before migration 0008)', earlier);
+      add('    (earlier form: JSON.stringify of the canonical array alone)', stringifyOnly);
+      add('    (earlier form: JSON.stringify + crypto.hash one-shot)', oneShot);
+      add('  validation without hashing (difference; checkBatch builds the text while checking)', minus(validate, hashing));
       add('store transaction (real, store.responses.ingest)', tx);
       let replayTotal = ZERO;
       for (const [k, v] of Object.entries(replay)) {

@@ -14,14 +14,16 @@
  * Idempotency content: SHA-256 over the canonical JSON of [condition, respondent, [[measure, value] … in
  * definition order]], with the weight appended ([…, weight]) when the response carries one (so the hashes of
  * unweighted responses are unchanged). submittedAt and responseId are not part of it, so a retry with a fresh
- * client timestamp is still the same response.
+ * client timestamp is still the same response. The canonical text is written directly (canonicalContent: the exact
+ * bytes JSON.stringify gives for that array, built while the values are checked) and hashed with one crypto.hash
+ * call; tests/services/ingest/content-hash.test.ts compares it with JSON.stringify + createHash over random responses.
  *
  * The survey weight (top-level `weight`, form field `weight`; experiments with weights "optional" or "required"):
  * refused like an impossible value, in this order: sent although the experiment takes none → not_allowed; absent or
  * null where required → missing; then not a number → too many characters → not finite → not > 0 or above the
  * definition's maxWeight (out_of_range). Every refusal is counted per (experiment, reason).
  */
-import { createHash, randomUUID } from 'node:crypto';
+import { hash, randomUUID } from 'node:crypto';
 import { z } from 'zod';
 import type {
   ExperimentRecord,
@@ -135,18 +137,55 @@ function listIds(ids: string[]): string {
   return ids.length <= 20 ? ids.join(', ') : `${ids.slice(0, 20).join(', ')}, …`;
 }
 
+/**
+ * The canonical content text: exactly JSON.stringify([condition, respondent, [[measure, value] …], weight?]), written
+ * from parts. `pairs` is the inner list without its brackets: `["m1",4],["m2",0.5]` (canonicalPair gives one).
+ */
+export function canonicalContent(condition: string, respondent: string | null, pairs: string, weight: number | null): string {
+  const head = `[${JSON.stringify(condition)},${respondent === null ? 'null' : JSON.stringify(respondent)},[${pairs}]`;
+  return weight === null ? `${head}]` : `${head},${numberJson(weight)}]`;
+}
+
+/** JSON text of a finite number: what JSON.stringify writes (String(n); -0 is written "0" by both). */
+function numberJson(n: number): string {
+  return String(n);
+}
+
+/** One `["measure",value]` pair of the canonical text; `measurePrefix` is `["measure",` (see lookupOf). */
+export function canonicalPair(measurePrefix: string, value: number): string {
+  return `${measurePrefix}${numberJson(value)}]`;
+}
+
+/** SHA-256 of a canonical content text (one crypto.hash call), as a view on the digest. */
+export function hashCanonical(canonical: string): Uint8Array {
+  const digest = hash('sha256', canonical, 'buffer');
+  return new Uint8Array(digest.buffer, digest.byteOffset, digest.byteLength);
+}
+
 export function contentHash(condition: string, respondent: string | null, values: [string, number][], weight: number | null = null): Uint8Array {
-  const canonical = JSON.stringify(weight === null ? [condition, respondent, values] : [condition, respondent, values, weight]);
-  return new Uint8Array(createHash('sha256').update(canonical, 'utf8').digest());
+  let pairs = '';
+  for (const [measure, value] of values) pairs += (pairs.length === 0 ? '' : ',') + canonicalPair(`[${JSON.stringify(measure)},`, value);
+  return hashCanonical(canonicalContent(condition, respondent, pairs, weight));
 }
 
 /** Conditions and measures of an experiment by id, made once per experiment record (records are not mutated). */
-const lookups = new WeakMap<ExperimentRecord, { conditions: Map<string, ExperimentRecord['conditions'][number]>; measures: Map<string, MeasureRecord> }>();
+interface Lookup {
+  conditions: Map<string, ExperimentRecord['conditions'][number]>;
+  measures: Map<string, MeasureRecord>;
+  /** `["measure",` per measure, in definition order: the start of its canonical pair. */
+  measurePrefixes: string[];
+}
 
-function lookupOf(experiment: ExperimentRecord) {
+const lookups = new WeakMap<ExperimentRecord, Lookup>();
+
+function lookupOf(experiment: ExperimentRecord): Lookup {
   let l = lookups.get(experiment);
   if (!l) {
-    l = { conditions: new Map(experiment.conditions.map((c) => [c.id, c])), measures: new Map(experiment.measures.map((m) => [m.id, m])) };
+    l = {
+      conditions: new Map(experiment.conditions.map((c) => [c.id, c])),
+      measures: new Map(experiment.measures.map((m) => [m.id, m])),
+      measurePrefixes: experiment.measures.map((m) => `[${JSON.stringify(m.id)},`),
+    };
     lookups.set(experiment, l);
   }
   return l;
@@ -212,72 +251,74 @@ export function checkItem(experiment: ExperimentRecord, raw: unknown, prefix: re
   const weight = weightOfItem(experiment, item.weight, prefix, out);
   if (!ok || checked === null || !weight.ok) return false;
   const respondent = item.respondent ?? null;
-  const canonical: [string, number][] = [];
-  const values = new Map<number, number>();
-  for (const m of experiment.measures) {
-    const v = checked.get(m.key);
-    if (v !== undefined) {
-      canonical.push([m.id, v]);
-      values.set(m.key, v);
-    }
-  }
   out.valid.push({
     responseId: item.responseId ?? randomUUID(),
     generated: item.responseId === undefined,
     conditionKey: condition!.key,
     respondent,
     submittedAt: item.submittedAt === undefined ? receivedAt : new Date(item.submittedAt).toISOString(),
-    values,
+    values: checked.values,
     weight: weight.weight,
-    contentHash: contentHash(condition!.id, respondent, canonical, weight.weight),
+    contentHash: hashCanonical(canonicalContent(condition!.id, respondent, checked.pairs, weight.weight)),
   });
   return true;
 }
 
-/** Check every value; returns measureKey → value when all are valid, else null (errors and counters appended). */
+/**
+ * Check every value. When all are valid: measureKey → value in definition order, and the canonical pairs of the
+ * content hash (canonicalPair, same order), built in the same pass; else null (errors and counters appended). No
+ * allocation per value on the common path beyond the map entry and the text.
+ */
 function checkValues(
   experiment: ExperimentRecord,
   values: Record<string, unknown>,
   prefix: readonly PropertyKey[],
   out: CheckResult,
-): Map<number, number> | null {
+): { values: Map<number, number>; pairs: string } | null {
   let ok = true;
   const result = new Map<number, number>();
-  const known = lookupOf(experiment).measures;
-  for (const key of Object.keys(values)) {
-    if (!known.has(key)) {
-      ok = false;
-      out.errors.push({
-        path: formatPath([...prefix, 'values', key]),
-        message: `is not a measure of this experiment (measures: ${listIds(experiment.measures.map((m) => m.id))})`,
-      });
-    }
+  let pairs = '';
+  const lookup = lookupOf(experiment);
+  const known = lookup.measures;
+  for (const key in values) {
+    if (!Object.prototype.hasOwnProperty.call(values, key) || known.has(key)) continue;
+    ok = false;
+    out.errors.push({
+      path: formatPath([...prefix, 'values', key]),
+      message: `is not a measure of this experiment (measures: ${listIds(experiment.measures.map((m) => m.id))})`,
+    });
   }
-  for (const m of experiment.measures) {
+  const measures = experiment.measures;
+  for (let i = 0; i < measures.length; i++) {
+    const m = measures[i];
     const raw = Object.prototype.hasOwnProperty.call(values, m.id) ? values[m.id] : undefined;
-    // The path is only built for an error (a batch of 10,000 valid items would build 30,000 strings for nothing).
-    const path = (): string => formatPath([...prefix, 'values', m.id]);
     if (raw === undefined || raw === null) {
       if (m.required) {
         ok = false;
-        out.errors.push({ path: path(), message: 'is required' });
+        out.errors.push({ path: formatPath([...prefix, 'values', m.id]), message: 'is required' });
       }
       continue;
     }
+    let value: number;
     if (typeof raw === 'number' && raw >= m.min && raw <= m.max && (!m.integer || Number.isInteger(raw))) {
       // Fast path of checkValue for a plainly valid number (finite, because it lies within [min, max]).
-      result.set(m.key, raw === 0 ? 0 : raw);
-      continue;
+      value = raw === 0 ? 0 : raw;
+    } else {
+      const c = checkValue(m, raw);
+      if (!c.ok) {
+        ok = false;
+        // The path is only built for an error (a batch of 10,000 valid items would build 30,000 strings for nothing).
+        out.errors.push({ path: formatPath([...prefix, 'values', m.id]), ...c.error });
+        out.rejected.push({ measureKey: m.key, reason: c.reason, count: 1 });
+        continue;
+      }
+      value = c.value;
     }
-    const c = checkValue(m, raw);
-    if (c.ok) result.set(m.key, c.value);
-    else {
-      ok = false;
-      out.errors.push({ path: path(), ...c.error });
-      out.rejected.push({ measureKey: m.key, reason: c.reason, count: 1 });
-    }
+    if (!ok) continue;
+    result.set(m.key, value);
+    pairs += pairs.length === 0 ? canonicalPair(lookup.measurePrefixes[i], value) : `,${canonicalPair(lookup.measurePrefixes[i], value)}`;
   }
-  return ok ? result : null;
+  return ok ? { values: result, pairs } : null;
 }
 
 /** Check a single JSON or form response body. */

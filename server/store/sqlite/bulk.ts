@@ -16,6 +16,7 @@
  */
 import { exportRow, STORED_RESPONSE_COLUMNS, type StoredResponseRow } from '../response-rows.js';
 import type { SqliteDatabase } from './open.js';
+import { forEachPacked } from './packed-values.js';
 import type { SqliteResponseRepository } from './responses.js';
 import type { BulkImport, BulkRepository, ExportRow } from '../types.js';
 
@@ -37,9 +38,10 @@ function prepareExport(store: SqliteBulkParts) {
        WHERE r.experiment_id = ? AND r.id > ? AND r.id <= ?
        ORDER BY r.id LIMIT ?`,
     ),
+    // The values of a page from the responses' packed copies (migration 0008): the same rowid range as the page.
     values: db
-      .prepare<[number, number], [number, number, number]>(
-        `SELECT response_id, measure_id, value FROM response_values WHERE response_id BETWEEN ? AND ?`,
+      .prepare<[number, number, number], [number, string]>(
+        `SELECT id, packed_values FROM responses WHERE experiment_id = ? AND id BETWEEN ? AND ?`,
       )
       .raw(),
   };
@@ -74,10 +76,13 @@ export async function* exportResponsePages(
       byId.set(r.id, row);
       return row;
     });
-    for (const [responseRowId, measureKey, value] of stmts.values.all(rows[0].id, rows[rows.length - 1].id)) {
+    for (const [responseRowId, packed] of stmts.values.all(experimentKey, rows[0].id, rows[rows.length - 1].id)) {
       const row = byId.get(responseRowId);
-      const i = column.get(measureKey);
-      if (row !== undefined && i !== undefined) row.values[i] = value;
+      if (row === undefined) continue;
+      forEachPacked(packed, (measureKey, value) => {
+        const i = column.get(measureKey);
+        if (i !== undefined) row.values[i] = value;
+      });
     }
     after = rows[rows.length - 1].id;
     return out;

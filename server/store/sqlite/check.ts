@@ -1,6 +1,7 @@
 /** splitballot check: integrity of a SQLite database file and the stored counts against the rows they summarise. */
 import { existsSync } from 'node:fs';
 import { openDatabase, type SqliteDatabase } from './open.js';
+import { forEachPacked } from './packed-values.js';
 
 // ---------------------------------------------------------------------------------------------------------------
 // Check
@@ -182,6 +183,53 @@ export function checkDatabase(db: SqliteDatabase, onStage: (stage: string) => vo
       )
       .all() as { measure: string; n: number }[];
     for (const r of outside) add(`${r.n} values of measure ${r.measure} are outside its limits or not whole on an integer measure`);
+
+    // Migration 0008: response_values has no REFERENCES; its rows must still belong to a stored response and a measure.
+    const orphans = db
+      .prepare(
+        `SELECT count(*) FROM response_values v
+         WHERE NOT EXISTS (SELECT 1 FROM responses r WHERE r.id = v.response_id)
+            OR NOT EXISTS (SELECT 1 FROM measures m WHERE m.id = v.measure_id)`,
+      )
+      .pluck()
+      .get() as number;
+    if (orphans > 0) add(`${orphans} values belong to no stored response or to no measure`);
+
+    // Migration 0008: each response's packed copy of its values (responses.packed_values) names exactly its value
+    // rows: every pair is found by its full key, no measure twice, and there are as many pairs as value rows.
+    if (columnExists(db, 'responses', 'packed_values')) {
+      onStage('values: packed copies on the response rows against response_values');
+      const probe = db
+        .prepare<[number, number, number, number, number], number>(
+          `SELECT 1 FROM response_values WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND response_id = ?`,
+        )
+        .pluck();
+      const rows = db
+        .prepare<[], [number, string, number, number, string]>(`SELECT id, response_id, condition_id, excluded, packed_values FROM responses ORDER BY id`)
+        .raw();
+      let pairs = 0;
+      let missing = 0;
+      let malformed = 0;
+      for (const [id, responseId, conditionKey, excluded, packed] of rows.iterate()) {
+        const seen = new Set<number>();
+        try {
+          forEachPacked(packed, (measureKey, value) => {
+            pairs++;
+            if (seen.has(measureKey) || !Number.isFinite(value)) throw new Error('duplicate measure');
+            seen.add(measureKey);
+            if (probe.get(measureKey, conditionKey, excluded, value, id) === undefined) {
+              missing++;
+              if (missing <= 5) add(`response ${responseId}: its value ${value} of measure ${measureKey} is not stored in response_values`);
+            }
+          });
+        } catch {
+          malformed++;
+          if (malformed <= 5) add(`response ${responseId}: its packed values are malformed`);
+        }
+      }
+      if (missing > 5) add(`… and ${missing - 5} more packed values missing from response_values`);
+      if (pairs !== counts.values) add(`the responses' packed copies name ${pairs} values but response_values holds ${counts.values}`);
+    }
 
     const versions = db
       .prepare(

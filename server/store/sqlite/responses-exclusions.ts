@@ -7,6 +7,7 @@
  */
 import { AuditWriter } from './audit.js';
 import type { SqliteDatabase } from './open.js';
+import { unpackValues } from './packed-values.js';
 import type {
   CleanUpOutcome,
   CleanUpRequest,
@@ -27,7 +28,8 @@ export class SqliteExclusionWriter {
   private readonly experimentState;
   private readonly bumpVersion;
   private readonly responseForExclusion;
-  private readonly integerValuesOf;
+  private readonly packedOf;
+  private readonly integerMeasuresOf;
   private readonly weightOf;
   private readonly setResponseExcluded;
   private readonly setValuesExcluded;
@@ -60,15 +62,16 @@ export class SqliteExclusionWriter {
       `SELECT r.id, r.condition_id, c.slug AS condition, r.excluded, r.excluded_reason
        FROM responses r JOIN conditions c ON c.id = r.condition_id WHERE r.experiment_id = ? AND r.response_id = ?`,
     );
-    this.integerValuesOf = db
-      .prepare<[number], [number, number]>(
-        `SELECT v.measure_id, v.value FROM response_values v JOIN measures m ON m.id = v.measure_id
-         WHERE v.response_id = ? AND m.is_integer = 1`,
-      )
-      .raw();
+    // A response's values come from its packed copy (migration 0008): with its condition and excluded flag they give
+    // every value row's full primary key, so each row is changed or deleted by key.
+    this.packedOf = db.prepare<[number], string>(`SELECT packed_values FROM responses WHERE id = ?`).pluck();
+    this.integerMeasuresOf = db.prepare<[number], number>(`SELECT id FROM measures WHERE experiment_id = ? AND is_integer = 1`).pluck();
     this.weightOf = db.prepare<[number], number | null>(`SELECT weight FROM responses WHERE id = ?`).pluck();
     this.setResponseExcluded = db.prepare<[number, string | null, number]>(`UPDATE responses SET excluded = ?, excluded_reason = ? WHERE id = ?`);
-    this.setValuesExcluded = db.prepare<[number, number]>(`UPDATE response_values SET excluded = ? WHERE response_id = ?`);
+    this.setValuesExcluded = db.prepare<[number, number, number, number, number, number]>(
+      `UPDATE response_values SET excluded = ?
+       WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND response_id = ?`,
+    );
     // One answer leaves a row: its count, and (when its response carries a weight) the weighted count and sums. The
     // sums of a row left with no weighted answer are set to exactly 0, so rounding never leaves a residue behind.
     this.decrementCount = db.prepare<[{ n: number; wn: number; ws: number; wq: number; measure: number; condition: number; excluded: number; value: number }]>(
@@ -106,7 +109,9 @@ export class SqliteExclusionWriter {
     this.responsesOfRespondent = db.prepare<[number, string], { id: number; response_id: string; condition_id: number; excluded: number }>(
       `SELECT id, response_id, condition_id, excluded FROM responses WHERE experiment_id = ? AND respondent = ?`,
     );
-    this.deleteValuesOf = db.prepare<[number]>(`DELETE FROM response_values WHERE response_id = ?`);
+    this.deleteValuesOf = db.prepare<[number, number, number, number, number]>(
+      `DELETE FROM response_values WHERE measure_id = ? AND condition_id = ? AND excluded = ? AND value = ? AND response_id = ?`,
+    );
     this.deleteResponse = db.prepare<[number]>(`DELETE FROM responses WHERE id = ?`);
     this.dropCondition = db.prepare<[number, number, number]>(
       `UPDATE conditions SET response_count = response_count - ?, excluded_count = excluded_count - ? WHERE id = ?`,
@@ -132,9 +137,10 @@ export class SqliteExclusionWriter {
         const from = row.excluded as 0 | 1;
         const reason = change.excluded ? change.reason : null;
         this.setResponseExcluded.run(target, reason, row.id);
-        this.setValuesExcluded.run(target, row.id);
+        const integerMeasures = new Set(this.integerMeasuresOf.all(experimentKey));
+        const values = this.moveValues(row.id, row.condition_id, from, target);
         const weight = this.weightOf.get(row.id) ?? null;
-        for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, from, target);
+        for (const [measureKey, value] of values) if (integerMeasures.has(measureKey)) this.moveCount(measureKey, row.condition_id, value, weight, from, target);
         this.bumpExcluded.run(change.excluded ? 1 : -1, row.condition_id);
         const dataVersion = this.bumpVersion.get(experimentKey) as number;
         this.audit.record({
@@ -180,11 +186,12 @@ export class SqliteExclusionWriter {
       const dataVersion = this.bumpVersion.get(experimentKey) as number;
       if (request.action === 'exclude') {
         const perCondition = new Map<number, number>();
+        const integerMeasures = new Set(this.integerMeasuresOf.all(experimentKey));
         for (const row of targets) {
           this.setResponseExcluded.run(1, request.reason, row.id);
-          this.setValuesExcluded.run(1, row.id);
+          const values = this.moveValues(row.id, row.condition_id, 0, 1);
           const weight = this.weightOf.get(row.id) ?? null;
-          for (const [measureKey, value] of this.integerValuesOf.all(row.id)) this.moveCount(measureKey, row.condition_id, value, weight, 0, 1);
+          for (const [measureKey, value] of values) if (integerMeasures.has(measureKey)) this.moveCount(measureKey, row.condition_id, value, weight, 0, 1);
           perCondition.set(row.condition_id, (perCondition.get(row.condition_id) ?? 0) + 1);
           // One audit row per response, so that each can be restored (and its exclusion traced) one by one.
           this.audit.record({ experimentKey, action: 'exclude', responseId: row.response_id, reason: request.reason, count: 1, apiKeyId, at, dataVersion });
@@ -219,15 +226,32 @@ export class SqliteExclusionWriter {
     perCondition: Map<number, { responses: number; excluded: number }>,
   ): void {
     const weight = this.weightOf.get(row.id) ?? null;
-    const integerValues = this.integerValuesOf.all(row.id);
-    this.deleteValuesOf.run(row.id);
+    const integerMeasures = new Set(this.integerMeasuresOf.all(experimentKey));
+    const values = this.moveValues(row.id, row.condition_id, row.excluded as 0 | 1, null);
     this.deleteResponse.run(row.id);
-    for (const [measureKey, value] of integerValues) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
+    for (const [measureKey, value] of values) if (integerMeasures.has(measureKey)) this.moveCount(measureKey, row.condition_id, value, weight, row.excluded as 0 | 1, null);
     this.audit.redactResponse(experimentKey, row.response_id);
     const c = perCondition.get(row.condition_id) ?? { responses: 0, excluded: 0 };
     c.responses += 1;
     c.excluded += row.excluded;
     perCondition.set(row.condition_id, c);
+  }
+
+  /**
+   * Move one response's value rows from excluded = `from` to `to` (null: delete them), each by its full primary key
+   * read from the response's packed copy. Returns the [measureKey, value] pairs. A row that is not where the packed
+   * copy says is a broken invariant: it throws, and the caller's transaction rolls back.
+   */
+  private moveValues(responseRowId: number, conditionKey: number, from: 0 | 1, to: 0 | 1 | null): [number, number][] {
+    const values = unpackValues(this.packedOf.get(responseRowId) ?? '');
+    for (const [measureKey, value] of values) {
+      const changes =
+        to === null
+          ? this.deleteValuesOf.run(measureKey, conditionKey, from, value, responseRowId).changes
+          : this.setValuesExcluded.run(to, measureKey, conditionKey, from, value, responseRowId).changes;
+      if (changes !== 1) throw new Error(`response row ${responseRowId} has no value row for measure ${measureKey} (value ${value}, excluded ${from})`);
+    }
+    return values;
   }
 
   private moveCount(measureKey: number, conditionKey: number, value: number, weight: number | null, from: 0 | 1, to: 0 | 1 | null): void {

@@ -8,6 +8,7 @@ import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { mergeNewValues, runKey, sharedFloat64, SortedValuesCache, toShared, type SortedRun } from '../sorted-runs-cache.js';
 import type { SqliteDatabase } from './open.js';
+import { forEachPacked, packedValueOf } from './packed-values.js';
 import { STORED_RESPONSE_COLUMNS, storedResponse, type StoredResponseRow } from '../response-rows.js';
 import type {
   ComparisonStamp,
@@ -57,8 +58,13 @@ export function mergeSorted(a: Float64Array, b: Float64Array): Float64Array {
 
 /** Multi-row INSERT sizes of the batch path (rows per statement; 9 and 4 parameters a row). */
 
-export const NEW_VALUES_OF_RUN_SQL = `SELECT value FROM response_values
-  WHERE response_id > ? AND response_id <= ? AND +measure_id = ? AND +condition_id = ? AND +excluded = ?`;
+/**
+ * The responses of one run that arrived after a known response id, with their packed values (migration 0008): a
+ * range of the responses table's rowid, O(new responses), whatever the size of the run. The measure's value is taken
+ * from each packed copy. Exported for the query-plan test.
+ */
+export const NEW_VALUES_OF_RUN_SQL = `SELECT packed_values FROM responses
+  WHERE id > ? AND id <= ? AND condition_id = ? AND excluded = ?`;
 
 /** Most single-response requests written in one group commit. */
 
@@ -89,6 +95,7 @@ export class SqliteResponseReads implements SortedRunsReader {
   private readonly rejectedOf;
   private readonly storedResponse;
   private readonly storedValues;
+  private readonly measureSlugs;
   private readonly answersAt;
   private readonly receivedSince;
   private readonly measureRow;
@@ -119,10 +126,10 @@ export class SqliteResponseReads implements SortedRunsReader {
        FROM responses r JOIN conditions c ON c.id = r.condition_id
        WHERE r.experiment_id = ? AND r.response_id = ?`,
     );
-    this.storedValues = db.prepare<[number], { measure: string; value: number }>(
-      `SELECT m.slug AS measure, v.value AS value FROM response_values v JOIN measures m ON m.id = v.measure_id
-       WHERE v.response_id = ? ORDER BY m.position`,
-    );
+    this.storedValues = db.prepare<[number], string>(`SELECT packed_values FROM responses WHERE id = ?`).pluck();
+    this.measureSlugs = db
+      .prepare<[number], [number, string]>(`SELECT id, slug FROM measures WHERE experiment_id = ? ORDER BY position`)
+      .raw();
     this.receivedSince = db.prepare<[number, string], number>(`SELECT count(*) FROM responses WHERE experiment_id = ? AND received_at >= ?`).pluck();
     this.answersAt = db.prepare<[number, number, number, number, number], { response_id: string; value: number; received_at: string; excluded: number }>(
       `SELECT r.response_id, v.value, r.received_at, v.excluded FROM response_values v JOIN responses r ON r.id = v.response_id
@@ -170,11 +177,7 @@ export class SqliteResponseReads implements SortedRunsReader {
     );
     this.epochStmt = tryPrepare(db, `SELECT epoch FROM values_epoch WHERE id = 1`);
     this.maxResponseId = db.prepare<[], number>(`SELECT coalesce(max(id), 0) FROM responses`).pluck();
-    this.newValuesOfRun = db
-      .prepare<[number, number, number, number, number], number>(
-        NEW_VALUES_OF_RUN_SQL,
-      )
-      .pluck();
+    this.newValuesOfRun = db.prepare<[number, number, number, number], string>(NEW_VALUES_OF_RUN_SQL).pluck();
     this.conditionCounter = db.prepare<[number], { response_count: number; excluded_count: number }>(
       `SELECT response_count, excluded_count FROM conditions WHERE id = ?`,
     );
@@ -190,8 +193,13 @@ export class SqliteResponseReads implements SortedRunsReader {
     return this.db.transaction(() => {
       const row = this.storedResponse.get(experimentKey, responseId);
       if (!row) return null;
+      const byKey = new Map<number, number>();
+      forEachPacked(this.storedValues.get(row.id) ?? '', (measureKey, value) => byKey.set(measureKey, value));
       const values: Record<string, number> = {};
-      for (const v of this.storedValues.all(row.id)) values[v.measure] = v.value;
+      for (const [measureKey, slug] of this.measureSlugs.all(experimentKey)) {
+        const value = byKey.get(measureKey);
+        if (value !== undefined) values[slug] = value;
+      }
       return storedResponse(row, values);
     })();
   }
@@ -274,7 +282,11 @@ export class SqliteResponseReads implements SortedRunsReader {
       return run.values;
     }
     if (run && mergeable(run, view)) {
-      const added = this.newValuesOfRun.all(run.lastRowId, view.lastRowId, measureKey, conditionKey, excluded);
+      const added: number[] = [];
+      for (const packed of this.newValuesOfRun.iterate(run.lastRowId, view.lastRowId, conditionKey, excluded)) {
+        const value = packedValueOf(packed, measureKey);
+        if (value !== undefined) added.push(value);
+      }
       const values = mergeNewValues(run.values, added);
       this.sortedCache.stats.merges++;
       this.sortedCache.stats.mergedRows += added.length;

@@ -137,10 +137,10 @@ describe('sorted-values cache', () => {
     expect(s.hits).toBeGreaterThan(0);
   });
 
-  it('reads only the newer rows through the primary key (not a walk of the whole run through the value index)', async () => {
+  it('reads only the newer responses through their rowid range (not a walk of the whole run)', async () => {
     const { store } = await newStore();
-    const plan = store.db.prepare(`EXPLAIN QUERY PLAN ${NEW_VALUES_OF_RUN_SQL}`).all(1, 2, 3, 4, 0) as { detail: string }[];
-    expect(plan.map((p) => p.detail)).toEqual(['SEARCH response_values USING PRIMARY KEY (response_id>? AND response_id<?)']);
+    const plan = store.db.prepare(`EXPLAIN QUERY PLAN ${NEW_VALUES_OF_RUN_SQL}`).all(1, 2, 3, 0) as { detail: string }[];
+    expect(plan.map((p) => p.detail)).toEqual(['SEARCH responses USING INTEGER PRIMARY KEY (rowid>? AND rowid<?)']);
   });
 
   it('a full read done elsewhere (readRunsSnapshot, as in a worker) and adopted equals the in-thread snapshot', async () => {
