@@ -53,7 +53,7 @@ import { analyseRankSum, rankSumFromAnalysis } from './rank-sum.js';
 import type { Sample } from './sample.js';
 import type { Alternative, Comparison, ExactMode } from './types.js';
 import { freezeDeep } from './types.js';
-import { welchFromMoments, welchTest } from './welch.js';
+import { welchT, welchTest } from './welch.js';
 
 export type SensitivityScenarioCode = 'without_far_out' | 'winsorised' | 'without_most_influential';
 
@@ -123,27 +123,28 @@ function resultOf(a: Sample, b: Sample, alternative: Alternative, confidenceLeve
   return { n: { a: a.n, b: b.n }, welch, rankSum };
 }
 
-/** A Sample from (value, count) pairs in increasing value order, merging equal values and dropping zero counts. */
-function rebuild(pairs: { value: number; count: number }[]): Sample {
-  const values: number[] = [];
-  const counts: number[] = [];
-  for (const { value, count } of pairs) {
+/**
+ * A Sample from parallel (value, count) arrays in increasing value order (equal neighbours allowed), merging equal
+ * values and dropping zero counts; -0 becomes 0. Typed arrays throughout: these Samples hold up to millions of values.
+ */
+function rebuild(values: Float64Array, counts: Float64Array): Sample {
+  const outValues = new Float64Array(values.length);
+  const outCounts = new Float64Array(values.length);
+  let k = 0;
+  let n = 0;
+  for (let i = 0; i < values.length; i++) {
+    const count = counts[i];
     if (count <= 0) continue;
-    if (values.length > 0 && values[values.length - 1] === value) counts[counts.length - 1] += count;
+    const value = values[i] === 0 ? 0 : values[i];
+    n += count;
+    if (k > 0 && outValues[k - 1] === value) outCounts[k - 1] += count;
     else {
-      values.push(value === 0 ? 0 : value);
-      counts.push(count);
+      outValues[k] = value;
+      outCounts[k] = count;
+      k++;
     }
   }
-  let n = 0;
-  for (const c of counts) n += c;
-  return Object.freeze({ values: Float64Array.from(values), counts: Float64Array.from(counts), n });
-}
-
-function pairsOf(s: Sample): { value: number; count: number }[] {
-  const out: { value: number; count: number }[] = [];
-  for (let i = 0; i < s.values.length; i++) out.push({ value: s.values[i], count: s.counts[i] });
-  return out;
+  return Object.freeze({ values: outValues.slice(0, k), counts: outCounts.slice(0, k), n });
 }
 
 type Fences = { low: number; high: number } | null;
@@ -203,7 +204,36 @@ interface Altered {
   values: { group: 'a' | 'b'; value: number; count: number }[];
 }
 
-/** Leave out (or, with `clamp`, move to the fence) every answer beyond each group's fences. */
+/** First index of the increasing `values` whose value is not below `x` (values.length when none). */
+function firstNotBelow(values: Float64Array, x: number): number {
+  let lo = 0;
+  let hi = values.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >>> 1;
+    if (values[mid] < x) lo = mid + 1;
+    else hi = mid;
+  }
+  return lo;
+}
+
+/** First index of the increasing `values` whose value is above `x` (values.length when none). */
+function firstAbove(values: Float64Array, x: number): number {
+  let lo = 0;
+  let hi = values.length;
+  while (lo < hi) {
+    const mid = (lo + hi) >>> 1;
+    if (values[mid] <= x) lo = mid + 1;
+    else hi = mid;
+  }
+  return lo;
+}
+
+/**
+ * Leave out (or, with `clamp`, move to the fence) every answer beyond each group's fences. The values are increasing,
+ * so the answers below the low fence are a prefix and those above the high fence a suffix: found by bisection, the
+ * kept middle copied once. The ten answers farthest from the fences' midpoint are among the first ten of the prefix
+ * and the last ten of the suffix, listed in increasing value order before the (stable) sort by distance.
+ */
 function beyondFences(samples: { a: Sample; b: Sample }, fences: { a: Fences; b: Fences }, clamp: boolean): Altered {
   const out: Partial<Record<'a' | 'b', Sample>> = {};
   const affected = { a: 0, b: 0 };
@@ -215,22 +245,32 @@ function beyondFences(samples: { a: Sample; b: Sample }, fences: { a: Fences; b:
       out[key] = s;
       continue;
     }
-    const pairs: { value: number; count: number }[] = [];
-    const caught: Altered['values'] = [];
-    for (const p of pairsOf(s)) {
-      const low = p.value < f.low;
-      const high = p.value > f.high;
-      if (!low && !high) {
-        pairs.push(p);
-        continue;
-      }
-      affected[key] += p.count;
-      caught.push({ group: key, value: p.value, count: p.count });
-      if (clamp) pairs.push({ value: low ? f.low : f.high, count: p.count });
+    const keepFrom = firstNotBelow(s.values, f.low);
+    const keepTo = Math.max(keepFrom, firstAbove(s.values, f.high));
+    let lowCount = 0;
+    for (let i = 0; i < keepFrom; i++) lowCount += s.counts[i];
+    let highCount = 0;
+    for (let i = keepTo; i < s.values.length; i++) highCount += s.counts[i];
+    affected[key] += lowCount + highCount;
+    const kept = keepTo - keepFrom;
+    const lead = clamp && lowCount > 0 ? 1 : 0;
+    const tail = clamp && highCount > 0 ? 1 : 0;
+    const v = new Float64Array(lead + kept + tail);
+    const c = new Float64Array(lead + kept + tail);
+    if (lead) {
+      v[0] = f.low;
+      c[0] = lowCount;
     }
-    // Clamped values sit at the ends, so the order stays increasing after a stable sort by value.
-    pairs.sort((x, y) => x.value - y.value);
-    out[key] = rebuild(pairs);
+    v.set(s.values.subarray(keepFrom, keepTo), lead);
+    c.set(s.counts.subarray(keepFrom, keepTo), lead);
+    if (tail) {
+      v[lead + kept] = f.high;
+      c[lead + kept] = highCount;
+    }
+    out[key] = rebuild(v, c);
+    const caught: Altered['values'] = [];
+    for (let i = 0; i < Math.min(keepFrom, 10); i++) caught.push({ group: key, value: s.values[i], count: s.counts[i] });
+    for (let i = Math.max(keepTo, s.values.length - 10); i < s.values.length; i++) caught.push({ group: key, value: s.values[i], count: s.counts[i] });
     const mid = (f.low + f.high) / 2;
     caught.sort((x, y) => Math.abs(y.value - mid) - Math.abs(x.value - mid));
     values.push(...caught.slice(0, 10));
@@ -239,10 +279,10 @@ function beyondFences(samples: { a: Sample; b: Sample }, fences: { a: Fences; b:
 }
 
 /** The single answer whose removal moves Welch's t the most; null when no group can lose one (n < 3). */
-function mostInfluential(samples: { a: Sample; b: Sample }, alternative: Alternative): Altered | null {
+function mostInfluential(samples: { a: Sample; b: Sample }): Altered | null {
   const ma = moments(samples.a);
   const mb = moments(samples.b);
-  const full = welchFromMoments(ma, mb, { alternative, confidenceLevel: 0.95 }).t;
+  const full = welchT(ma, mb);
   if (full === null) return null;
   let best: { key: 'a' | 'b'; index: number; shift: number } | null = null;
   for (const key of ['a', 'b'] as const) {
@@ -255,7 +295,7 @@ function mostInfluential(samples: { a: Sample; b: Sample }, alternative: Alterna
       const mean1 = (g.n * g.mean - x) / n1;
       const ss = g.variance * (g.n - 1) - (x - g.mean) * (x - mean1);
       const reduced = { n: n1, mean: mean1, variance: Math.max(0, ss / (n1 - 1)) };
-      const t1 = welchFromMoments(key === 'a' ? reduced : ma, key === 'b' ? reduced : mb, { alternative, confidenceLevel: 0.95 }).t;
+      const t1 = welchT(key === 'a' ? reduced : ma, key === 'b' ? reduced : mb);
       if (t1 === null) continue;
       const shift = Math.abs(t1 - full);
       if (best === null || shift > best.shift) best = { key, index: i, shift };
@@ -263,9 +303,9 @@ function mostInfluential(samples: { a: Sample; b: Sample }, alternative: Alterna
   }
   if (best === null) return null;
   const s = samples[best.key];
-  const pairs = pairsOf(s);
-  pairs[best.index] = { value: pairs[best.index].value, count: pairs[best.index].count - 1 };
-  const reduced = rebuild(pairs);
+  const counts = Float64Array.from(s.counts);
+  counts[best.index] -= 1;
+  const reduced = rebuild(s.values, counts);
   const value = s.values[best.index];
   return {
     a: best.key === 'a' ? reduced : samples.a,
@@ -347,7 +387,7 @@ export function sensitivity(cmp: Comparison, samples: { a: Sample; b: Sample }, 
   scenario(
     'without_most_influential',
     "The single answer whose removal moves Welch's t the most left out.",
-    mostInfluential(samples, alternative),
+    mostInfluential(samples),
     null,
     (alt) => `Without the single answer ${fmt(alt.values[0].value)} in "${labels[alt.values[0].group]}"`,
     'Neither group has 3 or more answers with a defined t statistic, so no answer can be left out.',

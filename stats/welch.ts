@@ -111,26 +111,37 @@ function tTestResult(difference: number, se: number, df: number, opts: TTestOpti
  */
 export function welchFromMoments(ma: Moments, mb: Moments, opts: TTestOptions): TTestResult {
   const { level, difference } = checkInputs(ma, mb, opts);
-  if (ma.n < 2 || mb.n < 2) {
-    return undefinedResult(level, difference, "Welch's test needs at least two observations in each group (a sample variance for each).");
-  }
+  const parts = welchParts(ma, mb);
+  if ('reason' in parts) return undefinedResult(level, difference, parts.reason);
+  return tTestResult(parts.difference, parts.se, parts.df, opts);
+}
+
+/**
+ * Welch's mean difference, standard error and degrees of freedom from the two groups' moments, or why they are
+ * undefined: the one rule behind welchFromMoments, and behind welchT for callers that rank many leave-one-out
+ * variants by t alone (no p-value, no quantile). Inputs are not checked here (welchFromMoments checks them). O(1).
+ */
+function welchParts(ma: Moments, mb: Moments): { difference: number; se: number; df: number } | { reason: string } {
+  if (ma.n < 2 || mb.n < 2) return { reason: "Welch's test needs at least two observations in each group (a sample variance for each)." };
   const va = (ma.variance as number) / ma.n;
   const vb = (mb.variance as number) / mb.n;
   const se2 = va + vb;
-  if (se2 === Infinity) return undefinedResult(level, difference, OVERFLOW);
+  if (se2 === Infinity) return { reason: OVERFLOW };
   if (!(se2 > 0)) {
-    return undefinedResult(
-      level,
-      difference,
-      'Both groups have zero variance, so the standard error is 0 and t is undefined (R stops with "data are essentially constant").',
-    );
+    return { reason: 'Both groups have zero variance, so the standard error is 0 and t is undefined (R stops with "data are essentially constant").' };
   }
   const se = Math.sqrt(se2);
   // df = se⁴ / (va²/(na−1) + vb²/(nb−1)), written as a ratio of squares of ratios to avoid over/underflow.
   const ra = va / se2;
   const rb = vb / se2;
   const df = 1 / ((ra * ra) / (ma.n - 1) + (rb * rb) / (mb.n - 1));
-  return tTestResult(difference as number, se, df, opts);
+  return { difference: (ma.mean as number) - (mb.mean as number), se, df };
+}
+
+/** Welch's t from moments — exactly welchFromMoments(…).t (the same operations), without its p-value and interval. O(1). */
+export function welchT(ma: Moments, mb: Moments): number | null {
+  const parts = welchParts(ma, mb);
+  return 'reason' in parts ? null : parts.difference / parts.se;
 }
 
 /**

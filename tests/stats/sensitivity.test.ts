@@ -3,6 +3,7 @@ import { compare, compareSamples, fromCounts, fromValues, type Sample } from '..
 import { sensitivity, type SensitivityResult } from '../../stats/sensitivity.js';
 import { expand } from '../../stats/sample.js';
 import { expectRel, loadFixture } from './fixtures.js';
+import { Rng } from '../helpers/rng.js';
 
 interface Both {
   n: { a: number; b: number };
@@ -158,6 +159,72 @@ describe('sensitivity equals compare() on the reduced data', () => {
     const s2 = sensitivity(ca, { a: va, b: vb }, { alpha: 0.05, scale: { min: 0, max: 100, integer: false }, labels: LABELS });
     expect(s2.scenarios.map((x) => x.result)).toEqual(s.scenarios.map((x) => x.result));
   });
+});
+
+describe('sensitivity on many random samples: the scenarios against brute force over the raw answers', () => {
+  // Seeded invented data: whole numbers (many ties) or doubles, with a few far answers on either side.
+  const rng = new Rng(20261203);
+  const draw = (n: number, ties: boolean): number[] =>
+    Array.from({ length: n }, () => {
+      const far = rng.uniform() < 0.06 ? (rng.uniform() < 0.5 ? -1 : 1) * (20 + 30 * rng.uniform()) : 0;
+      const v = 50 + 8 * rng.normal() + far;
+      return ties ? Math.round(v) + 0 : v; // + 0: no -0 (a Sample stores 0)
+    });
+  /** What a scenario must list: per group the answers beyond the fences, the ten farthest from the fences' midpoint first. */
+  const listed = (x: readonly number[], f: { low: number; high: number } | null, group: 'a' | 'b') => {
+    if (!f) return [];
+    const tally = new Map<number, number>();
+    for (const v of x) if (v < f.low || v > f.high) tally.set(v, (tally.get(v) ?? 0) + 1);
+    const mid = (f.low + f.high) / 2;
+    return [...tally]
+      .sort((p, q) => p[0] - q[0])
+      .map(([value, count]) => ({ group, value, count }))
+      .sort((p, q) => Math.abs(q.value - mid) - Math.abs(p.value - mid))
+      .slice(0, 10);
+  };
+
+  for (let round = 0; round < 40; round++) {
+    const ties = round % 2 === 0;
+    const a = draw(15 + Math.floor(rng.uniform() * 150), ties);
+    const b = draw(15 + Math.floor(rng.uniform() * 150), ties);
+    it(`round ${round} (${ties ? 'whole numbers' : 'doubles'}, n = ${a.length} + ${b.length})`, () => {
+      const sa = fromValues(a, 'a');
+      const sb = fromValues(b, 'b');
+      const s = sensitivity(compareSamples(sa, sb), { a: sa, b: sb }, { alpha: 0.05, scale: { min: -100, max: 200, integer: false }, labels: LABELS });
+      const [far, wins, infl] = s.scenarios;
+      for (const [sc, keepOrClamp] of [
+        [far, 'keep'],
+        [wins, 'clamp'],
+      ] as const) {
+        const fa = sc.fences!.a;
+        const fb = sc.fences!.b;
+        const alter = (x: number[], f: { low: number; high: number } | null) =>
+          !f ? x : keepOrClamp === 'keep' ? x.filter((v) => v >= f.low && v <= f.high) : x.map((v) => Math.min(f.high, Math.max(f.low, v)));
+        const beyond = (x: number[], f: { low: number; high: number } | null) => (f ? x.filter((v) => v < f.low || v > f.high).length : 0);
+        expect(sc.affected).toEqual({ a: beyond(a, fa), b: beyond(b, fb) });
+        expect(sc.values).toEqual([...listed(a, fa, 'a'), ...listed(b, fb, 'b')]);
+        if (sc.result) expectSameAsCompare(sc.result, alter(a, fa), alter(b, fb), sc.code);
+        else expect(sc.affected).toEqual({ a: 0, b: 0 });
+      }
+      // The most influential answer: brute-force leave-one-out over every raw answer, by |Δt| (first of equals kept).
+      const tFull = compare(a, b).welch.t as number;
+      let best: { group: 'a' | 'b'; value: number; shift: number } | null = null;
+      for (const group of ['a', 'b'] as const) {
+        const x = group === 'a' ? a : b;
+        const seen = new Set<number>();
+        for (const v of [...x].sort((p, q) => p - q)) {
+          if (seen.has(v)) continue;
+          seen.add(v);
+          const i = x.indexOf(v);
+          const rest = [...x.slice(0, i), ...x.slice(i + 1)];
+          const t = compare(group === 'a' ? rest : a, group === 'b' ? rest : b).welch.t as number;
+          const shift = Math.abs(t - tFull);
+          if (best === null || shift > best.shift + 1e-9 * Math.abs(best.shift)) best = { group, value: v, shift };
+        }
+      }
+      expect(infl.values.map((v) => [v.group, v.value])).toEqual([[best!.group, best!.value]]);
+    });
+  }
 });
 
 describe('sensitivity: when a scenario does not apply', () => {
