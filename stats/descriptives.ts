@@ -71,6 +71,18 @@ export interface Moments {
   variance: number | null;
 }
 
+/**
+ * The moments of a group of (n ≥ 3, mean, variance) with one answer x left out: mean' = (n·mean − x)/(n − 1) and the
+ * sum-of-squares downdate SS' = SS − (x − mean)(x − mean'), clamped at 0. O(1): how the quality flags and the
+ * sensitivity view recompute Welch's test without one answer.
+ */
+export function momentsWithout(g: { n: number; mean: number; variance: number }, x: number): { n: number; mean: number; variance: number } {
+  const n1 = g.n - 1;
+  const mean1 = (g.n * g.mean - x) / n1;
+  const ss = g.variance * (g.n - 1) - (x - g.mean) * (x - mean1);
+  return { n: n1, mean: mean1, variance: Math.max(0, ss / (n1 - 1)) };
+}
+
 /** Mean of a non-empty Sample by the compensated two-pass method. O(K). */
 function sampleMean(s: Sample): number {
   const { values, counts, n } = s;

@@ -43,6 +43,7 @@ import { chiSquareUpperTail } from './distributions.js';
 import type { Sample } from './sample.js';
 import type { Comparison } from './types.js';
 import { freezeDeep } from './types.js';
+import { momentsWithout } from './descriptives.js';
 import { welchFromMoments } from './welch.js';
 
 export type FlagCode =
@@ -329,12 +330,7 @@ function welchWithout(
 ): number | null {
   const g = which === 'a' ? ma : mb;
   if (g.n < 3) return null;
-  const n1 = g.n - 1;
-  const mean1 = (g.n * g.mean - x) / n1;
-  // Sum of squares downdate: SS' = SS − (x − mean)(x − mean').
-  const ss = g.variance * (g.n - 1) - (x - g.mean) * (x - mean1);
-  const variance1 = Math.max(0, ss / (n1 - 1));
-  const reduced = { n: n1, mean: mean1, variance: variance1 };
+  const reduced = momentsWithout(g, x);
   const r = welchFromMoments(which === 'a' ? reduced : ma, which === 'b' ? reduced : mb, { alternative, confidenceLevel: 0.95 });
   return r.p;
 }

@@ -46,7 +46,7 @@
  * tests, each as costly as the comparison's own Welch, rank-sum and Hodges–Lehmann steps (O(K) for an integer
  * item read from counts; O(n log n) at worst for continuous values).
  */
-import { moments } from './descriptives.js';
+import { moments, momentsWithout } from './descriptives.js';
 import { SHORT_RATING_SCALE_POINTS, fmt, fmtP, plural } from './flags.js';
 import { hodgesLehmann } from './hodges-lehmann.js';
 import { analyseRankSum, rankSumFromAnalysis } from './rank-sum.js';
@@ -289,12 +289,9 @@ function mostInfluential(samples: { a: Sample; b: Sample }): Altered | null {
     const g = key === 'a' ? ma : mb;
     const s = samples[key];
     if (g.n < 3 || g.mean === null || g.variance === null) continue;
-    const n1 = g.n - 1;
+    const whole = { n: g.n, mean: g.mean, variance: g.variance };
     for (let i = 0; i < s.values.length; i++) {
-      const x = s.values[i];
-      const mean1 = (g.n * g.mean - x) / n1;
-      const ss = g.variance * (g.n - 1) - (x - g.mean) * (x - mean1);
-      const reduced = { n: n1, mean: mean1, variance: Math.max(0, ss / (n1 - 1)) };
+      const reduced = momentsWithout(whole, s.values[i]);
       const t1 = welchT(key === 'a' ? reduced : ma, key === 'b' ? reduced : mb);
       if (t1 === null) continue;
       const shift = Math.abs(t1 - full);
