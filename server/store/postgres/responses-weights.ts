@@ -21,6 +21,7 @@ import {
   type WeightSums,
 } from '../types.js';
 import type { Queryable } from './pool.js';
+import { weightSumsOf, type WeightSumsRow } from '../weight-rows.js';
 
 interface MeasureRow {
   min: number;
@@ -62,12 +63,7 @@ export async function readRejectedWeights(c: Queryable, experimentKey: number): 
 }
 
 async function readSums(c: Queryable, measureKey: number, m: MeasureRow, conditionKey: number, includeExcluded: boolean): Promise<WeightSums> {
-  const size = m.max - m.min + 1;
-  const counts = new Float64Array(size);
-  const weightSums = new Float64Array(size);
-  const weightSquareSums = new Float64Array(size);
-  let unweighted = 0;
-  const r = await c.query<[number, number, number, number, number]>({
+  const r = await c.query<WeightSumsRow>({
     text: includeExcluded
       ? `SELECT value, sum(count), sum(weighted_count), sum(weight_sum), sum(weight_square_sum) FROM value_counts
          WHERE measure_id = $1 AND condition_id = $2 GROUP BY value`
@@ -76,15 +72,7 @@ async function readSums(c: Queryable, measureKey: number, m: MeasureRow, conditi
     values: [measureKey, conditionKey],
     rowMode: 'array',
   });
-  for (const [value, count, weighted, s1, s2] of r.rows) {
-    const k = value - m.min;
-    unweighted += count - weighted;
-    if (weighted === 0) continue; // no weighted answer: its sums are 0 by the rule of migration 0005
-    counts[k] += weighted;
-    weightSums[k] += s1;
-    weightSquareSums[k] += s2;
-  }
-  return { counts, weightSums, weightSquareSums, unweighted };
+  return weightSumsOf(r.rows, m);
 }
 
 async function readPairs(c: Queryable, measureKey: number, conditionKey: number, includeExcluded: boolean): Promise<WeightedPairs> {

@@ -12,6 +12,7 @@
  *  - the refused-weight counters (rejected_weight_counts).
  */
 import type { SqliteDatabase } from './open.js';
+import { weightSumsOf } from '../weight-rows.js';
 import {
   MAX_DENSE_COUNTS,
   type AdjustmentRows,
@@ -90,21 +91,7 @@ export class SqliteWeightReads {
 
   /** Dense per-value weighted counts and sums of one group (entry k: value min + k). */
   private readSums(measureKey: number, m: MeasureRow, conditionKey: number, includeExcluded: boolean): WeightSums {
-    const size = m.max - m.min + 1;
-    const counts = new Float64Array(size);
-    const weightSums = new Float64Array(size);
-    const weightSquareSums = new Float64Array(size);
-    let unweighted = 0;
-    const rows = includeExcluded ? this.sumsBoth.all(measureKey, conditionKey) : this.sumsOne.all(measureKey, conditionKey, 0);
-    for (const [value, count, weighted, s1, s2] of rows) {
-      const k = value - m.min;
-      unweighted += count - weighted;
-      if (weighted === 0) continue; // no weighted answer: its sums are 0 by the rule of migration 0005
-      counts[k] += weighted;
-      weightSums[k] += s1;
-      weightSquareSums[k] += s2;
-    }
-    return { counts, weightSums, weightSquareSums, unweighted };
+    return weightSumsOf(includeExcluded ? this.sumsBoth.all(measureKey, conditionKey) : this.sumsOne.all(measureKey, conditionKey, 0), m);
   }
 
   private readPairs(measureKey: number, conditionKey: number, includeExcluded: boolean): WeightedPairs {
