@@ -20,6 +20,7 @@ import { primaryOutcomeChange } from '../primary-outcome.js';
 import { recordAudit } from './audit.js';
 import { notifyChange } from './notifier.js';
 import { lockExperiments, type PostgresDatabase, type Queryable } from './pool.js';
+import { readDefinitionBySlug } from './definition-read.js';
 
 type PgExperimentRow = ExperimentRow<Record<string, unknown>>;
 type PgConditionRow = ConditionRow & { experiment_id: number };
@@ -90,8 +91,9 @@ export class PostgresExperimentRepository implements ExperimentRepository {
     });
   }
 
+  /** The read every request that names an experiment makes: one prepared statement (definition-read.ts), not a transaction of three. */
   async getBySlug(slug: string): Promise<ExperimentRecord | null> {
-    return this.db.snapshot(async (c) => (await readExperiments(c, 'WHERE e.slug = $1', [slug]))[0] ?? null);
+    return readDefinitionBySlug(this.db, slug);
   }
 
   async list(onlyKey: number | null = null): Promise<ExperimentRecord[]> {

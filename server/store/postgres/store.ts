@@ -11,7 +11,6 @@ import { PostgresApiKeyRepository } from './api-keys.js';
 import { PostgresAuditRepository } from './audit.js';
 import { beginBulkImportPostgres, exportResponsePagesPostgres, postgresBulk, type PgBulkImport, type PgExportRow } from './bulk.js';
 import { checkPostgres, type PostgresCheckReport } from './check.js';
-import { readDefinitionBySlug } from './definition-read.js';
 import { PostgresExperimentRepository } from './experiments.js';
 import { loadPostgresMigrations, migratePostgres, postgresMigrationsCurrent, type PgMigrateResult, type PgMigration } from './migrate.js';
 import { PostgresAssignmentRepository, PostgresLookRepository } from './monitoring.js';
@@ -75,8 +74,6 @@ export async function openPostgresStore(url: string | undefined, options: OpenPo
   }
   const responses = new PostgresResponseRepository(db);
   const experiments = new PostgresExperimentRepository(db);
-  // The read every request that names an experiment makes: one prepared statement instead of a transaction of three.
-  experiments.getBySlug = (slug) => readDefinitionBySlug(db, slug);
   const notifiers = new Set<ChangeNotifier>();
   let closed = false;
   return {
